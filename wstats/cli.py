@@ -235,6 +235,7 @@ def _estimate_args(p: argparse.ArgumentParser) -> None:
 
 
 def _run_estimate(args: argparse.Namespace) -> int:
+    _parse_rows(args.rows)  # usage mistakes first, before any file is touched
     from wstats._estimate import estimate
 
     codebook = _load_codebook(args.codebook)
@@ -304,6 +305,7 @@ def _nonresponse_args(p: argparse.ArgumentParser) -> None:
 
 
 def _run_nonresponse(args: argparse.Namespace) -> int:
+    _parse_rows(args.rows)
     from wstats._nonresponse import nonresponse
 
     codebook = _load_codebook(args.codebook)

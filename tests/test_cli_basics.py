@@ -1,0 +1,97 @@
+"""The command line's own contract: help, version, registry, docs coverage, one-line errors."""
+
+from __future__ import annotations
+
+import re
+import subprocess
+import sys
+from pathlib import Path
+
+import pytest
+
+import wstats
+import wstats.errors
+from wstats.cli import COMMANDS, build_parser, main
+
+ROOT = Path(__file__).resolve().parents[1]
+
+
+def test_version_matches_package(capsys: pytest.CaptureFixture[str]) -> None:
+    with pytest.raises(SystemExit) as exc:
+        main(["--version"])
+    assert exc.value.code == 0
+    assert capsys.readouterr().out.strip() == f"wstats {wstats.__version__}"
+
+
+@pytest.mark.parametrize("name", sorted(COMMANDS))
+def test_every_command_has_help_with_an_example(name: str) -> None:
+    parser = build_parser()
+    sub = parser._subparsers._group_actions[0].choices[name]  # type: ignore[union-attr]
+    text = sub.format_help()
+    assert "example:" in text
+    assert f"wstats {name}" in text
+    assert COMMANDS[name].example.startswith(f"wstats {name}")
+
+
+@pytest.mark.parametrize("name", sorted(COMMANDS))
+def test_every_command_is_documented(name: str) -> None:
+    docs = (ROOT / "docs" / "cli.md").read_text(encoding="utf-8")
+    assert re.search(rf"^## `wstats {name}", docs, flags=re.M), f"docs/cli.md lacks {name}"
+
+
+def test_every_error_class_is_in_the_catalogue() -> None:
+    catalogue = (ROOT / "docs" / "errors.md").read_text(encoding="utf-8")
+    classes = [
+        obj for obj in vars(wstats.errors).values()
+        if isinstance(obj, type) and issubclass(obj, wstats.errors.WstatsError)
+    ]
+    assert len(classes) >= 10
+    for cls in classes:
+        heading = rf"^### `{cls.__name__}` \(exit {cls.exit_code}"
+        assert re.search(heading, catalogue, flags=re.M), f"{cls.__name__} not documented"
+
+
+def test_public_names_are_exactly_the_documented_list() -> None:
+    # The one public door: a new public name must be added here on purpose.
+    expected = {
+        "AnalysisError", "Codebook", "CodebookError", "ColumnError", "Dataset",
+        "DecodedColumn", "Design", "DesignError", "EstimateTable", "EstimationError",
+        "ExpressionError", "NonresponseTable", "OutputError", "ReadError", "Reasons",
+        "ReliabilityStandard", "SingletonStratumError", "UsageError", "WeightError",
+        "WstatsError", "__version__", "bounds", "build_table", "check_codebook", "convert",
+        "decode", "draft_codebook", "estimate", "load_codebook", "load_table_spec",
+        "methods_paragraph", "nonresponse", "read", "read_raw", "run_analysis",
+    }
+    assert set(wstats.__all__) == expected
+    assert wstats.__all__ == sorted(wstats.__all__)
+    for name in wstats.__all__:
+        assert getattr(wstats, name) is not None
+
+
+def test_usage_error_is_one_line_exit_2() -> None:
+    proc = subprocess.run([sys.executable, "-m", "wstats", "estimate"],
+                          capture_output=True, text=True)
+    assert proc.returncode == 2
+    assert proc.stdout == ""
+    lines = proc.stderr.strip().splitlines()
+    assert len(lines) == 1 and lines[0].startswith("wstats: error:")
+    assert "Traceback" not in proc.stderr
+
+
+def test_bad_rows_option_names_the_option(tmp_path: Path) -> None:
+    proc = subprocess.run(
+        [sys.executable, "-m", "wstats", "estimate", str(tmp_path / "x.csv"), "A",
+         "--weight", "W", "--rows", "10"], capture_output=True, text=True)
+    assert proc.returncode == 2
+    assert "--rows '10'" in proc.stderr
+
+
+def test_help_imports_nothing_heavy() -> None:
+    # Start-up cost: --help must not import pandas, scipy, statsmodels, pyreadstat or pyarrow.
+    code = ("import sys; from wstats.cli import main\n"
+            "try:\n    main(['--help'])\nexcept SystemExit:\n    pass\n"
+            "heavy = [m for m in ('pandas', 'scipy', 'statsmodels', 'pyreadstat', 'pyarrow', "
+            "'numpy') if m in sys.modules]\nprint('HEAVY:' + ','.join(heavy))")
+    proc = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True)
+    assert proc.returncode == 0, proc.stderr
+    assert proc.stdout.strip().splitlines()[-1] == "HEAVY:"

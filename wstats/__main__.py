@@ -1,0 +1,9 @@
+"""Allow ``python -m wstats``."""
+
+from __future__ import annotations
+
+import sys
+
+from wstats.cli import main
+
+sys.exit(main())
