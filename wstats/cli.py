@@ -15,7 +15,7 @@ from pathlib import Path
 from typing import Any
 
 from wstats import __version__
-from wstats.errors import UsageError, WstatsError
+from wstats.errors import UsageError, WstatsError, WstatsWarning
 
 __all__ = ["COMMANDS", "main"]
 
@@ -520,6 +520,7 @@ def main(argv: Sequence[str] | None = None) -> int:
     """Run the command line; return the exit code."""
     argv = list(sys.argv[1:] if argv is None else argv)
     debug = "--debug" in argv
+    _show_warnings_as_lines(debug)
     argv = [a for a in argv if a != "--debug"]
     try:
         args = build_parser().parse_args(argv)
@@ -537,6 +538,20 @@ def main(argv: Sequence[str] | None = None) -> int:
         return 130
     except BrokenPipeError:
         return 0
+
+
+def _show_warnings_as_lines(debug: bool) -> None:
+    """Print each wstats warning once, as one line on stderr; others only with --debug."""
+    import warnings
+
+    def show(message: Warning | str, category: type[Warning], *_: Any, **__: Any) -> None:
+        if issubclass(category, WstatsWarning):
+            print(f"wstats: warning: {_one_line(str(message))}", file=sys.stderr)
+        elif debug:
+            print(f"wstats: library warning ({category.__name__}): {message}", file=sys.stderr)
+
+    warnings.showwarning = show
+    warnings.simplefilter("once", WstatsWarning)
 
 
 def _one_line(message: str) -> str:

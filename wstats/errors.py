@@ -40,6 +40,7 @@ __all__ = [
     "UsageError",
     "WeightError",
     "WstatsError",
+    "WstatsWarning",
     "did_you_mean",
 ]
 
@@ -96,6 +97,10 @@ class OutputError(WstatsError):
     """An output cannot be written: it exists, its folder is missing or read-only, disk full."""
 
     exit_code = 3
+
+
+class WstatsWarning(UserWarning):
+    """A condition worth a look that does not stop the computation (printed once)."""
 
 
 def did_you_mean(name: str, choices: Iterable[str]) -> str:
