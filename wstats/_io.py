@@ -1,0 +1,215 @@
+"""Output files written safely: all or nothing, never over an existing file unless asked.
+
+An output is written to a temporary file in the target's own folder and renamed into place
+only when writing succeeded, so a reader of the target never sees half a file and a failed
+run leaves nothing behind. Rename is atomic only within one file system, hence the same
+folder. Special files (``/dev/stdout``, ``/dev/full``, a FIFO) cannot be renamed onto; they
+are written directly, and since there is nothing on them to destroy they need no overwrite.
+"""
+
+from __future__ import annotations
+
+import errno
+import hashlib
+import os
+import stat
+import tempfile
+from collections.abc import Iterator
+from contextlib import AbstractContextManager, contextmanager
+from pathlib import Path
+from typing import IO, Any, Literal, overload
+
+from wstats.errors import OutputError, ReadError
+
+__all__ = ["atomic_output", "atomic_write", "check_output", "sha256_of"]
+
+_CHUNK = 1 << 20
+_FULL = (errno.ENOSPC, errno.EDQUOT)
+
+
+def check_output(path: str | os.PathLike[str], overwrite: bool = False) -> Path:
+    """Return *path* as a Path after checking that it can be written.
+
+    Parameters
+    ----------
+    path : the output file.
+    overwrite : allow replacing an existing regular file.
+
+    Returns
+    -------
+    Path
+        The output path, unchanged.
+
+    Raises
+    ------
+    OutputError
+        The output exists (without *overwrite*), is a folder, or its folder is missing or
+        not writable.
+    """
+    target = Path(path)
+    if target.is_dir():
+        raise OutputError(f"output '{target}' is a folder; give a file name")
+    if target.exists() and _is_special(target):
+        return target
+    if target.exists() and not overwrite:
+        raise OutputError(f"output '{target}' exists; pass --overwrite to replace it")
+    folder = target.parent
+    if not folder.is_dir():
+        raise OutputError(
+            f"folder '{folder}' for output '{target.name}' does not exist; create it first"
+        )
+    if not os.access(folder, os.W_OK | os.X_OK):
+        raise OutputError(f"folder '{folder}' is not writable; choose another output folder")
+    return target
+
+
+@overload
+def atomic_output(
+    path: str | os.PathLike[str], overwrite: bool = ..., binary: Literal[True] = ...
+) -> AbstractContextManager[IO[bytes]]: ...
+@overload
+def atomic_output(
+    path: str | os.PathLike[str], overwrite: bool = ..., *, binary: Literal[False]
+) -> AbstractContextManager[IO[str]]: ...
+@contextmanager
+def atomic_output(
+    path: str | os.PathLike[str], overwrite: bool = False, binary: bool = True
+) -> Iterator[IO[Any]]:
+    """Yield an open file that becomes *path* only if the ``with`` block succeeds.
+
+    Parameters
+    ----------
+    path : the output file.
+    overwrite : allow replacing an existing file.
+    binary : open the file in binary mode (default) or as UTF-8 text.
+
+    Yields
+    ------
+    IO
+        A temporary file in the same folder as *path* (or *path* itself when it is a special
+        file such as ``/dev/stdout``).
+
+    Raises
+    ------
+    OutputError
+        See :func:`check_output`; also when the disk is full or writing fails otherwise.
+
+    Examples
+    --------
+    >>> with atomic_output("table.md", binary=False) as fh:  # doctest: +SKIP
+    ...     fh.write("| a |\\n")
+    """
+    target = check_output(path, overwrite)
+    if target.exists() and _is_special(target):
+        with _mapped_errors(target):
+            with _open(target, binary) as fh:
+                yield fh
+        return
+    with _mapped_errors(target, creating=True):
+        fd, tmp_name = tempfile.mkstemp(
+            prefix=f".{target.name}.", suffix=".part", dir=target.parent
+        )
+    tmp = Path(tmp_name)
+    try:
+        with _mapped_errors(target):
+            os.close(fd)  # reopened by name so that ``fh.name`` is the temporary path
+            with _open(tmp, binary) as fh:
+                yield fh
+                fh.flush()
+                os.fsync(fh.fileno())
+            os.chmod(tmp, _default_mode())
+            os.replace(tmp, target)
+    finally:
+        tmp.unlink(missing_ok=True)
+
+
+def atomic_write(path: str | os.PathLike[str], data: str | bytes, overwrite: bool = False) -> None:
+    """Write *data* to *path* all at once (UTF-8 for text).
+
+    Parameters
+    ----------
+    path : the output file.
+    data : text (written as UTF-8, newlines unchanged) or bytes.
+    overwrite : allow replacing an existing file.
+
+    Raises
+    ------
+    OutputError
+        The output exists, its folder is missing or read-only, or the disk is full.
+
+    Examples
+    --------
+    >>> atomic_write("methods.txt", "Estimates are weighted.\\n")  # doctest: +SKIP
+    """
+    payload = data.encode("utf-8") if isinstance(data, str) else data
+    with atomic_output(path, overwrite) as fh:
+        fh.write(payload)
+
+
+def sha256_of(path: str | os.PathLike[str]) -> str:
+    """Return the hex SHA-256 digest of a file, read in 1 MiB chunks.
+
+    Parameters
+    ----------
+    path : the file.
+
+    Returns
+    -------
+    str
+        64 hexadecimal characters.
+
+    Raises
+    ------
+    ReadError
+        The file is missing or cannot be read.
+    """
+    digest = hashlib.sha256()
+    try:
+        with open(path, "rb") as fh:
+            for chunk in iter(lambda: fh.read(_CHUNK), b""):
+                digest.update(chunk)
+    except OSError as exc:
+        raise ReadError(f"cannot read '{path}' to fingerprint it: {exc.strerror}") from exc
+    return digest.hexdigest()
+
+
+def _is_special(path: Path) -> bool:
+    """Tell whether *path* exists and is neither a regular file nor a folder."""
+    mode = path.stat().st_mode
+    return not (stat.S_ISREG(mode) or stat.S_ISDIR(mode))
+
+
+def _open(path: Path, binary: bool) -> IO[Any]:
+    """Open *path* for writing, binary or as UTF-8 text."""
+    return open(path, "wb" if binary else "w", **_text_args(binary))
+
+
+def _text_args(binary: bool) -> dict[str, Any]:
+    """Return the open() keywords for text mode: UTF-8, newlines written as given."""
+    return {} if binary else {"encoding": "utf-8", "newline": ""}
+
+
+def _default_mode() -> int:
+    """Return the permission bits a new file gets under the current umask."""
+    # mkstemp creates 0600 files; a normal output should get the usual 0666 & ~umask.
+    mask = os.umask(0)
+    os.umask(mask)
+    return 0o666 & ~mask
+
+
+@contextmanager
+def _mapped_errors(target: Path, creating: bool = False) -> Iterator[None]:
+    """Turn OSError while creating or writing *target* into a one-line OutputError."""
+    try:
+        yield
+    except OSError as exc:
+        if exc.errno in _FULL:
+            raise OutputError(
+                f"no space left on the device while writing '{target}'; "
+                "free some space or write elsewhere"
+            ) from exc
+        if creating and isinstance(exc, PermissionError):
+            raise OutputError(
+                f"folder '{target.parent}' is not writable; choose another output folder"
+            ) from exc
+        raise OutputError(f"cannot write '{target}': {exc.strerror or exc}") from exc

@@ -1,0 +1,221 @@
+"""SAS, SPSS and Stata files (and transport files the fast reader declines) via pyreadstat.
+
+Metadata kept: variable labels, value labels, display formats, the file label, SPSS
+user-missing declarations (``.sav``/``.zsav``; the raw codes stay in the data) and tagged
+missing values (Stata ``.a``-``.z``; SAS ``.A``-``.Z``, ``._`` in ``.sas7bdat``), which
+pyreadstat hands over as letters inside an object column and which become NaN plus a tag.
+
+Limits of pyreadstat, recorded here so nobody hunts for them: ``read_por`` has neither
+``user_missing`` nor ``encoding``, so user-missing declarations of ``.por`` files are lost;
+``read_xport`` has no ``user_missing``, so tagged missing values of transport files read here
+are plain NaN (the fast transport reader keeps them); SPSS user-missing declarations on
+character columns are dropped because :class:`RawColumn` holds numeric declarations only.
+"""
+
+from __future__ import annotations
+
+import codecs
+import re
+from collections.abc import Iterator, Sequence
+from pathlib import Path
+from typing import TYPE_CHECKING, Any
+
+import numpy as np
+
+from wstats._readers import (
+    Rows,
+    encoding_error,
+    is_utf8,
+    progress_bar,
+    select_columns,
+)
+from wstats._readers._types import RawColumn, RawTable
+from wstats.errors import ReadError
+
+if TYPE_CHECKING:
+    import pandas as pd
+
+__all__ = ["read_stat", "stat_columns"]
+
+#: format -> (pyreadstat function, takes ``encoding``, takes ``user_missing``)
+_READERS: dict[str, tuple[str, bool, bool]] = {
+    "xpt": ("read_xport", True, False),
+    "sas7bdat": ("read_sas7bdat", True, True),
+    "sav": ("read_sav", True, True),
+    "zsav": ("read_sav", True, True),
+    "por": ("read_por", False, False),
+    "dta": ("read_dta", True, True),
+}
+_CHUNK_ROWS = 50_000
+_ENCODING_TROUBLE = re.compile(r"encoding|character set", re.IGNORECASE)
+_XPT_RECORD = 80  # transport files are made of 80-byte records
+
+
+def stat_columns(path: Path, fmt: str, encoding: str = "utf-8") -> list[str]:
+    """Return the column names of a pyreadstat-readable file from its metadata."""
+    meta = _metadata(path, fmt, encoding)
+    return list(meta.column_names)
+
+
+def read_stat(
+    path: Path,
+    fmt: str,
+    columns: Sequence[str] | None = None,
+    rows: Rows | None = None,
+    progress: bool = False,
+    encoding: str = "utf-8",
+) -> RawTable:
+    """Read a SAS, SPSS, Stata or transport file with pyreadstat into a RawTable."""
+    meta = _metadata(path, fmt, encoding)
+    names = select_columns(path, meta.column_names, columns)
+    kinds = meta.readstat_variable_types
+    numeric = {name: kinds.get(name) != "string" for name in names}
+    chunks = list(_read_chunks(path, fmt, names, rows, progress, encoding, meta.number_rows))
+    cols: dict[str, RawColumn] = {}
+    for name in names:
+        data, tags = _join([_column_arrays(frame[name], numeric[name]) for frame in chunks])
+        cols[name] = _raw_column(name, data, tags, numeric[name], meta)
+    return RawTable(
+        path=str(path),
+        format=fmt,
+        reader="pyreadstat",
+        n_rows=sum(len(frame) for frame in chunks),
+        columns=cols,
+        file_columns=list(meta.column_names),
+        file_label=meta.file_label or None,
+    )
+
+
+def _call(path: Path, fmt: str, encoding: str, **kwargs: Any) -> tuple[pd.DataFrame, Any]:
+    """Call the pyreadstat reader for *fmt*, turning its failures into ReadError."""
+    import pyreadstat
+
+    func, takes_encoding, takes_missing = _READERS[fmt]
+    if takes_encoding and not is_utf8(encoding):
+        # readstat hands the name to iconv, which knows "ISO8859-1" but not "latin-1".
+        kwargs["encoding"] = codecs.lookup(encoding).name.upper()
+    if takes_missing:
+        kwargs["user_missing"] = True
+    try:
+        frame, meta = getattr(pyreadstat, func)(str(path), **kwargs)
+    except UnicodeError as exc:
+        raise encoding_error(path, exc, encoding) from exc
+    except (pyreadstat.ReadstatError, pyreadstat.PyreadstatError, OSError, ValueError) as exc:
+        if _ENCODING_TROUBLE.search(str(exc)):
+            raise encoding_error(path, exc, encoding) from exc
+        raise ReadError(
+            f"'{path}' cannot be read as {fmt} data ({exc}); it may be truncated or corrupt"
+        ) from exc
+    return frame, meta
+
+
+def _metadata(path: Path, fmt: str, encoding: str) -> Any:
+    """Read only the metadata of a file (names, types, labels, row count)."""
+    if fmt == "xpt" and path.stat().st_size % _XPT_RECORD:
+        # pyreadstat silently returns the rows before the cut; a partial record means a cut.
+        raise ReadError(f"'{path}' is truncated: its size is not a whole number of 80-byte records")
+    return _call(path, fmt, encoding, metadataonly=True)[1]
+
+
+def _read_chunks(
+    path: Path,
+    fmt: str,
+    names: list[str],
+    rows: Rows | None,
+    progress: bool,
+    encoding: str,
+    total: int | None,
+) -> Iterator[pd.DataFrame]:
+    """Yield the data in one piece, or in chunks behind a progress bar."""
+    start, stop = rows if rows is not None else (0, None)
+    limit = 0 if stop is None else stop - start
+    opts: dict[str, Any] = {"usecols": names, "disable_datetime_conversion": True}
+    wanted = _rows_wanted(total, start, stop)
+    if not progress or wanted is None or wanted <= _CHUNK_ROWS:
+        yield _call(path, fmt, encoding, row_offset=start, row_limit=limit, **opts)[0]
+        return
+    with progress_bar(progress, f"reading {path.name}", wanted) as advance:
+        done = 0
+        while done < wanted:
+            size = min(_CHUNK_ROWS, wanted - done)
+            frame = _call(path, fmt, encoding, row_offset=start + done, row_limit=size, **opts)[0]
+            done += size
+            advance(done)
+            yield frame
+
+
+def _rows_wanted(total: int | None, start: int, stop: int | None) -> int | None:
+    """Return how many rows a read will return, when the file's metadata says how many it has."""
+    if total is None or total < 0:
+        return None
+    end = total if stop is None else min(stop, total)
+    return max(end - start, 0)
+
+
+def _column_arrays(series: pd.Series, numeric: bool) -> tuple[np.ndarray, np.ndarray | None]:
+    """Return (data, tags) for one column of a pyreadstat frame."""
+    if not numeric:
+        return series.to_numpy(dtype=object, na_value=""), None
+    if series.dtype.kind in "fiub":
+        return series.to_numpy(dtype=np.float64, na_value=np.nan), None
+    # Tag letters make the column object (or str, when a chunk holds only letters).
+    return _split_tags(series)
+
+
+def _split_tags(series: pd.Series) -> tuple[np.ndarray, np.ndarray]:
+    """Split a numeric column holding tag letters into float64 data (NaN there) and tags."""
+    import pandas as pd
+
+    data = pd.to_numeric(series, errors="coerce").to_numpy(dtype=np.float64, na_value=np.nan)
+    letters = np.isnan(data) & series.notna().to_numpy(dtype=bool)
+    tags = np.zeros(len(data), dtype=np.uint8)
+    if letters.any():
+        found = series.to_numpy(dtype=object)[letters].astype("U1")
+        tags[letters] = found.view(np.uint32).astype(np.uint8)
+    return data, tags
+
+
+def _join(
+    parts: list[tuple[np.ndarray, np.ndarray | None]],
+) -> tuple[np.ndarray, np.ndarray | None]:
+    """Concatenate the (data, tags) pieces of one column read in chunks."""
+    if len(parts) == 1:
+        return parts[0]
+    data = np.concatenate([p[0] for p in parts])
+    if all(p[1] is None for p in parts):
+        return data, None
+    tags = [np.zeros(len(d), np.uint8) if t is None else t for d, t in parts]
+    return data, np.concatenate(tags)
+
+
+def _raw_column(
+    name: str, data: np.ndarray, tags: np.ndarray | None, numeric: bool, meta: Any
+) -> RawColumn:
+    """Attach the file's metadata for *name* to its data."""
+    labels = meta.variable_value_labels.get(name, {})
+    return RawColumn(
+        name=name,
+        data=data,
+        label=meta.column_names_to_labels.get(name) or None,
+        value_labels={_code(k, numeric): str(v) for k, v in labels.items()},
+        tags=tags,
+        user_missing=_user_missing(meta.missing_ranges.get(name, [])) if numeric else [],
+        numeric=numeric,
+        format=meta.original_variable_types.get(name) or None,
+    )
+
+
+def _code(key: Any, numeric: bool) -> float | str:
+    """Return a value-label code as float for numeric columns (tag letters stay str)."""
+    if numeric and isinstance(key, (int, float)) and not isinstance(key, bool):
+        return float(key)
+    return str(key)
+
+
+def _user_missing(ranges: list[dict[str, Any]]) -> list[float | tuple[float, float]]:
+    """Turn pyreadstat's ``[{'lo': .., 'hi': ..}]`` into single codes and (low, high) ranges."""
+    out: list[float | tuple[float, float]] = []
+    for item in ranges:
+        low, high = float(item["lo"]), float(item["hi"])
+        out.append(low if low == high else (low, high))
+    return out
