@@ -35,7 +35,7 @@ class RawColumn:
     label: str | None = None
     value_labels: dict[float | str, str] = field(default_factory=dict)
     tags: np.ndarray | None = None
-    user_missing: list[float | tuple[float, float]] = field(default_factory=list)
+    user_missing: list[float | str | tuple[float, float]] = field(default_factory=list)
     numeric: bool = True
     format: str | None = None
 
