@@ -1,0 +1,65 @@
+"""The methods paragraph: every required fact is stated, in each target format."""
+
+from __future__ import annotations
+
+import pytest
+
+from wstats._methods import methods_paragraph
+from wstats._reliability import STANDARDS
+from wstats.errors import UsageError
+
+DESIGN = {"weight": "FINALWT", "strata": "STRAT_ID", "psu": "CLUSTER_ID", "fpc": None,
+          "n_strata": 12, "n_psu": 36, "df": 24, "singleton": "center",
+          "variance_method": "linearization", "replicate_method": None, "n_replicates": 0}
+SETTINGS = {"level": 0.9, "proportion_ci": "korn-graubard"}
+REASONS = {"skipped": 903, "dont_know": 41, "refused": 12, "invalid": 0, "not_eligible": 7}
+
+
+def _text(fmt: str = "text", **kw: object) -> str:
+    args = {"design_summary": DESIGN, "settings": SETTINGS, "reasons_used": REASONS,
+            "nonresponse_range": (0.012, 0.184), "data_name": "tbchs_sample.xpt",
+            "standard": STANDARDS["nchs-2017"], "fmt": fmt,
+            "recodes": ["EXER_FREQ: 888 → 0"],
+            "reason_descriptions": {"not_eligible": "not eligible for the item"}}
+    args.update(kw)
+    return methods_paragraph(**args)  # type: ignore[arg-type]
+
+
+def test_states_every_required_fact() -> None:
+    text = _text()
+    for fact in ("tbchs_sample.xpt", "weighted by FINALWT", "Taylor linearization",
+                 "12 strata, 36 PSUs, 24 degrees of freedom",
+                 "variance contribution measured around the overall mean",
+                 "90% level", "Korn–Graubard", "not asked an item",
+                 "don't know, refused and not eligible for the item",
+                 "EXER_FREQ: 888 → 0", "from 1.2% to 18.4%", "'nchs-2017'",
+                 "survey's own documentation", "agency publishing the estimates"):
+        assert fact in text, fact
+    assert "invalid" not in text  # a reason with zero rows is not mentioned
+    assert "\n" not in text
+
+
+def test_replicate_designs_name_the_method() -> None:
+    d = {**DESIGN, "variance_method": "replicate", "replicate_method": "jackknife",
+         "n_replicates": 80, "df": 79}
+    text = _text(design_summary=d)
+    assert "80 replicate weights (delete-one-PSU jackknife)" in text
+    assert "Taylor" not in text
+
+
+def test_no_standard_and_no_reasons() -> None:
+    text = _text(standard=None, reasons_used=[], nonresponse_range=None, recodes=[])
+    assert "No reliability standard was applied" in text
+    assert "nonresponse" not in text.lower().replace("counted as item nonresponse", "")
+
+
+def test_latex_and_markdown_escape() -> None:
+    latex = _text("latex")
+    assert r"90\% level" in latex and r"EXER\_FREQ" in latex and "$\\rightarrow$" in latex
+    md = _text("markdown")
+    assert r"EXER\_FREQ" in md and "90% level" in md
+
+
+def test_unknown_format_is_a_usage_error() -> None:
+    with pytest.raises(UsageError, match="methods format 'rtf' is unknown"):
+        _text("rtf")

@@ -1,0 +1,307 @@
+"""A format-neutral table model (Grid) built once from each result type, drawn by each format.
+
+Estimate and nonresponse tables become a Grid here: sections per variable, cells already
+formatted (see :mod:`wstats.render._cells`), flag marks in the cells and their footnotes.
+Each format module then only decides how rows, spans and notes are drawn.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+from collections.abc import Iterator, Mapping, Sequence
+from dataclasses import dataclass, field
+from typing import TYPE_CHECKING, Any, Protocol
+
+from wstats.render._cells import (
+    SUPPRESSED,
+    FlagNotes,
+    auto_decimals,
+    fmt_count,
+    fmt_number,
+    group_text,
+    interval,
+    reason_breakdown,
+    reason_legend,
+    with_marks,
+)
+
+if TYPE_CHECKING:
+    import pandas as pd
+
+    from wstats._results import EstimateTable
+
+__all__ = [
+    "Column",
+    "Grid",
+    "NonresponseLike",
+    "PublicationLike",
+    "Span",
+    "design_line",
+    "estimate_grid",
+    "nonresponse_grid",
+    "provenance_lines",
+    "publication_grid",
+]
+
+_REASON_HEADERS = {"valid": "Valid", "skipped": "Skipped", "dont_know": "Don't know",
+                   "refused": "Refused", "invalid": "Invalid", "missing": "Missing"}
+_STAT_WORDS = {"proportion": "percent", "mean": "mean", "total": "total", "ratio": "ratio",
+               "quantile": "quantile"}
+
+
+class NonresponseLike(Protocol):
+    """What the renderers need from a nonresponse table (see ``wstats._nonresponse``)."""
+
+    frame: pd.DataFrame
+    by: tuple[str, ...]
+    reasons: tuple[str, ...]
+    level: float
+    design: Mapping[str, Any]
+    settings: Mapping[str, Any]
+
+    def records(self) -> list[dict[str, Any]]: ...
+
+
+class PublicationLike(Protocol):
+    """What the renderers need from a publication table (see ``wstats._pubtable``)."""
+
+    title: str
+    cells: pd.DataFrame
+    columns: Sequence[Any]
+    footnotes: tuple[str, ...]
+    methods: str
+    provenance: Mapping[str, Any]
+    estimates: EstimateTable
+
+
+@dataclass(frozen=True)
+class Column:
+    """One column: key, header text and alignment (``l`` text, ``r`` numbers)."""
+
+    key: str
+    header: str
+    align: str = "r"
+
+
+@dataclass(frozen=True)
+class Span:
+    """A header cell spanning columns ``start`` to ``stop - 1`` (a grouping variable)."""
+
+    text: str
+    start: int
+    stop: int
+
+
+@dataclass(frozen=True)
+class Grid:
+    """A formatted table: columns, optional spanning headers, rows of text, notes.
+
+    ``kinds`` has one entry per row: ``data``, ``section`` (a label spanning the table; only
+    its first cell is used) or ``summary`` (sample-size rows at the foot).
+    """
+
+    title: str
+    columns: tuple[Column, ...]
+    rows: tuple[tuple[str, ...], ...]
+    kinds: tuple[str, ...]
+    notes: tuple[str, ...] = ()
+    spans: tuple[Span, ...] = ()
+    caption: str = ""
+    methods: str = ""
+
+    def headers(self) -> list[str]:
+        """Return one header per column, spanning text folded in (``Sex: Male``)."""
+        out = [c.header for c in self.columns]
+        for s in self.spans:
+            for i in range(s.start, s.stop):
+                out[i] = f"{s.text}: {out[i]}" if out[i] else s.text
+        return out
+
+
+@dataclass
+class _Rows:
+    """Accumulates rows and their kinds while a grid is built."""
+
+    rows: list[tuple[str, ...]] = field(default_factory=list)
+    kinds: list[str] = field(default_factory=list)
+
+    def add(self, cells: Sequence[str], kind: str = "data") -> None:
+        """Append one row."""
+        self.rows.append(tuple(cells))
+        self.kinds.append(kind)
+
+
+def _sections(frame: pd.DataFrame, keys: list[str]) -> Iterator[tuple[tuple[Any, ...], Any]]:
+    """Yield (key, sub-frame) runs of consecutive rows sharing *keys*, in frame order."""
+    if frame.empty:
+        return
+    labels = frame[keys].astype(str).agg("\x1f".join, axis=1)
+    run = (labels != labels.shift()).cumsum()
+    for _, sub in frame.groupby(run, sort=False):
+        yield tuple(sub.iloc[0][k] for k in keys), sub
+
+
+def estimate_grid(table: EstimateTable) -> Grid:
+    """Return the grid of an estimate table: a section per variable x statistic."""
+    frame, by = table.frame, list(table.by)
+    labels: Mapping[str, str] = dict(table.settings.get("labels", {}) or {})
+    has_level = bool(frame["level"].notna().any() or (frame["statistic"] == "quantile").any())
+    ci = f"{fmt_number(table.level * 100, 1).rstrip('0').rstrip('.')}% CI"
+    cols = [*(Column(b, b, "l") for b in by)]
+    cols += [Column("level", "Level", "l")] if has_level else []
+    cols += [Column("estimate", "Estimate"), Column("se", "SE"), Column("ci", ci),
+             Column("n", "n"), Column("not_valid", "Not valid", "l")]
+    notes, acc, order = FlagNotes(), _Rows(), _reason_order(table)
+    for (var, stat), sub in _sections(frame, ["variable", "statistic"]):
+        title = f"{var} · {labels[var]}" if var in labels else str(var)
+        acc.add([f"{title} ({_STAT_WORDS.get(stat, stat)})"], "section")
+        pct = stat == "proportion"
+        se_dec = 2 if pct else auto_decimals(_median_se(sub))
+        dec = 1 if pct else max(0, se_dec - 1)
+        for row in sub.to_dict(orient="records"):
+            cells = [group_text(row[b]) for b in by]
+            cells += [_level_text(row)] if has_level else []
+            cells += _number_cells(row, notes, dec, se_dec, pct)
+            cells += [fmt_count(row["n"]), reason_breakdown(row["reasons"], order)]
+            acc.add(cells)
+    legend = reason_legend(r for d in frame["reasons"] for r, c in dict(d).items() if c)
+    return Grid(
+        title=str(table.settings.get("title", "Estimates")), columns=tuple(cols),
+        rows=tuple(acc.rows), kinds=tuple(acc.kinds),
+        notes=tuple([*notes.notes(), *([legend] if legend else [])]),
+        caption=design_line(table.design, table.settings, table.level),
+    )
+
+
+def _reason_order(table: Any) -> list[str]:
+    """Return reason names in vocabulary order when the table says, else core order."""
+    names = table.settings.get("reasons") if hasattr(table, "settings") else None
+    return list(names or ("skipped", "dont_know", "refused", "invalid", "missing"))
+
+
+def _median_se(sub: pd.DataFrame) -> float:
+    """Return the median finite SE of a section (NaN when none)."""
+    se = sub["se"].astype(float)
+    se = se[se.notna() & (se > 0) & (se < math.inf)]
+    return float(se.median()) if len(se) else math.nan
+
+
+def _level_text(row: Mapping[str, Any]) -> str:
+    """Return the Level cell: category label, quantile probability, or ''."""
+    if row["statistic"] == "quantile":
+        return f"p = {fmt_number(row['p'], 2).rstrip('0').rstrip('.')}"
+    level = row["level"]
+    return "" if level is None or (isinstance(level, float) and math.isnan(level)) else str(level)
+
+
+def _number_cells(
+    row: Mapping[str, Any], notes: FlagNotes, dec: int, se_dec: int, pct: bool
+) -> list[str]:
+    """Return Estimate, SE and CI cells (percent scale for proportions; marks; suppression)."""
+    marks = notes.mark(tuple(row["flags"] or ()), bool(row["suppress"]))
+    if row["suppress"]:
+        return [with_marks(SUPPRESSED, marks), "", ""]
+    k = 100.0 if pct else 1.0
+    est = float(row["estimate"]) * k
+    if math.isnan(est):
+        return [with_marks("n/a", marks), "", ""]
+    big = abs(est) >= 1e4
+    text = fmt_number(est, dec, grouping=big) + ("%" if pct else "")
+    lo = fmt_number(float(row["ci_low"]) * k, dec, grouping=big)
+    hi = fmt_number(float(row["ci_high"]) * k, dec, grouping=big)
+    return [with_marks(text, marks), fmt_number(float(row["se"]) * k, se_dec, grouping=big),
+            interval(lo, hi)]
+
+
+def nonresponse_grid(table: NonresponseLike) -> Grid:
+    """Return the grid of a nonresponse table: a section per variable, a row per domain."""
+    frame, by = table.frame, list(table.by)
+    reasons = [r for r in table.reasons if f"count_{r}" in frame.columns]
+    ci = f"{fmt_number(table.level * 100, 1).rstrip('0').rstrip('.')}% CI"
+    cols = [*(Column(b, b, "l") for b in by), Column("n_rows", "Rows"), Column("asked", "Asked")]
+    cols += [Column(f"count_{r}", _REASON_HEADERS.get(r, r)) for r in reasons]
+    cols += [Column("rate", "Nonresponse"), Column("ci", ci)]
+    notes, acc = FlagNotes(), _Rows()
+    for (var,), sub in _sections(frame, ["variable"]):
+        acc.add([str(var)], "section")
+        for row in sub.to_dict(orient="records"):
+            marks = notes.mark(tuple(row.get("flags") or ()))
+            rate = fmt_number(float(row["nonresponse_rate"]) * 100, 1)
+            ci_text = interval(fmt_number(float(row["ci_low"]) * 100, 1),
+                               fmt_number(float(row["ci_high"]) * 100, 1))
+            acc.add([*(group_text(row[b]) for b in by), fmt_count(row["n_rows"]),
+                     fmt_count(row["asked"]), *(fmt_count(row[f"count_{r}"]) for r in reasons),
+                     with_marks(f"{rate}%" if rate else "n/a", marks), ci_text])
+    defn = table.settings.get("definition") or (
+        "Nonresponse: weighted share of asked rows (not skipped) that are not valid.")
+    return Grid(
+        title=str(table.settings.get("title", "Item nonresponse")), columns=tuple(cols),
+        rows=tuple(acc.rows), kinds=tuple(acc.kinds), notes=(*notes.notes(), str(defn)),
+        caption=design_line(table.design, table.settings, table.level),
+    )
+
+
+def publication_grid(table: PublicationLike) -> Grid:
+    """Return the grid of a publication table (cells already formatted by the builder)."""
+    cells = table.cells
+    keys = [c.key for c in table.columns]
+    cols = [Column("label", "", "l"), *(Column(c.key, c.header) for c in table.columns)]
+    spans, i = [], 0
+    while i < len(table.columns):
+        group = table.columns[i].group
+        j = i
+        while j < len(table.columns) and table.columns[j].group == group:
+            j += 1
+        if group:
+            spans.append(Span(str(group), i + 1, j + 1))
+        i = j
+    acc = _Rows()
+    for row in cells.to_dict(orient="records"):
+        acc.add([str(row["label"]), *(str(row[k] or "") for k in keys)], str(row["kind"]))
+    return Grid(title=table.title, columns=tuple(cols), rows=tuple(acc.rows),
+                kinds=tuple(acc.kinds), notes=tuple(table.footnotes), spans=tuple(spans),
+                caption=design_line(table.estimates.design, table.estimates.settings,
+                                    table.estimates.level),
+                methods=table.methods)
+
+
+def design_line(design: Mapping[str, Any], settings: Mapping[str, Any], level: float) -> str:
+    """Return a one-line summary of the design and interval method."""
+    parts = []
+    if design.get("weight"):
+        parts.append(f"weight {design['weight']}")
+    if design.get("n_strata") is not None:
+        parts.append(f"{design['n_strata']} strata")
+    if design.get("n_psu") is not None:
+        parts.append(f"{design['n_psu']} PSUs")
+    if design.get("df") is not None:
+        parts.append(f"df {group_text(design['df'])}")
+    method = settings.get("proportion_ci")
+    level_text = fmt_number(level * 100, 1).rstrip("0").rstrip(".")
+    ci = f"{level_text}% intervals" + (f" ({method} for proportions)" if method else "")
+    return "Design: " + ", ".join(parts) + "; " + ci if parts else ci
+
+
+def provenance_lines(provenance: Mapping[str, Any] | None) -> list[str]:
+    """Return ``key: value`` lines (sorted, dotted keys, JSON values) for comment headers."""
+    from wstats._provenance import normalize
+
+    lines: list[str] = []
+
+    def walk(prefix: str, value: Any) -> None:
+        if isinstance(value, dict) and value:
+            for k, v in value.items():
+                walk(f"{prefix}.{k}" if prefix else k, v)
+        else:
+            lines.append(f"{prefix}: {json.dumps(value, ensure_ascii=False)}")
+
+    walk("", normalize(dict(provenance or {})))
+    return lines
+
+
+def default_provenance(table: Any) -> dict[str, Any]:
+    """Return a minimal provenance for a table rendered without one (library use)."""
+    from wstats._provenance import provenance
+
+    return provenance([], None, dict(getattr(table, "design", {}) or {}), "", time=False)

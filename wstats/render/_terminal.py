@@ -1,0 +1,208 @@
+"""Terminal: rich renderables (only ``cli.py`` prints them).
+
+Readable without colour: flags are marks in the cell text with footnotes naming the rule,
+suppressed cells say ``[suppressed]``, numbers are right-aligned and never wrapped. A table
+wider than the screen is cut into column blocks, each repeating the leading label columns,
+instead of squeezing numbers.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Iterable, Sequence
+from typing import TYPE_CHECKING, Any
+
+from rich.cells import cell_len
+
+from wstats.render._grid import (
+    Grid,
+    NonresponseLike,
+    PublicationLike,
+    estimate_grid,
+    nonresponse_grid,
+    publication_grid,
+)
+
+if TYPE_CHECKING:
+    from rich.console import Console, ConsoleOptions, RenderableType, RenderResult
+
+    from wstats._results import EstimateTable
+
+__all__ = [
+    "GridView", "estimate_terminal", "nonresponse_terminal", "render_check", "table_terminal",
+]
+
+_SHORT = 16  # label columns up to this width are kept on one line
+_WRAP_AT = 14  # a wrappable text column is given at least this width
+_PAD = 3  # what rich adds per column: one space of padding each side and the rule space
+
+
+def estimate_terminal(table: EstimateTable, provenance: Any = None) -> RenderableType:
+    """Return a rich renderable of an estimate table (a block per variable)."""
+    return GridView(estimate_grid(table), per_section=True)
+
+
+def nonresponse_terminal(table: NonresponseLike, provenance: Any = None) -> RenderableType:
+    """Return a rich renderable of a nonresponse table (a block per variable)."""
+    return GridView(nonresponse_grid(table), per_section=True)
+
+
+def table_terminal(table: PublicationLike, provenance: Any = None) -> RenderableType:
+    """Return a rich renderable of a publication table (methods paragraph below)."""
+    return GridView(publication_grid(table), per_section=False)
+
+
+class GridView:
+    """Draw a Grid at whatever width the console offers."""
+
+    def __init__(self, grid: Grid, per_section: bool) -> None:
+        self.grid = grid
+        self.per_section = per_section
+
+    def __rich_console__(self, console: Console, options: ConsoleOptions) -> RenderResult:
+        from rich.text import Text
+
+        g = self.grid
+        yield Text(g.title, style="bold")
+        if g.caption:
+            yield Text(g.caption)
+        for title, rows, kinds in _blocks(g, self.per_section):
+            for cols in _column_blocks(g, rows, options.max_width):
+                yield _table(g, cols, rows, kinds, title)
+        for note in g.notes:
+            yield Text(note)
+        if g.methods:
+            yield Text("")
+            yield Text("Methods. " + g.methods)
+
+
+def _blocks(
+    g: Grid, per_section: bool
+) -> Iterable[tuple[str | None, list[tuple[str, ...]], list[str]]]:
+    """Yield (title, rows, kinds) per section, or the whole grid as one block."""
+    if not per_section:
+        yield None, list(g.rows), list(g.kinds)
+        return
+    title: str | None = None
+    rows: list[tuple[str, ...]] = []
+    kinds: list[str] = []
+    for row, kind in zip(g.rows, g.kinds, strict=True):
+        if kind == "section":
+            if rows or title is not None:
+                yield title, rows, kinds
+            title, rows, kinds = row[0], [], []
+        else:
+            rows.append(row)
+            kinds.append(kind)
+    if rows or title is not None:
+        yield title, rows, kinds
+
+
+def _column_blocks(
+    g: Grid, rows: Sequence[tuple[str, ...]], width: int
+) -> list[list[int]]:
+    """Split column indexes into blocks that fit *width*, repeating leading text columns."""
+    headers = _headers(g)
+    lead = _leading_text(g)
+    need = []
+    for i, col in enumerate(g.columns):
+        longest = max([cell_len(h) for h in headers[i].split("\n")]
+                      + [cell_len(r[i]) for r in rows if i < len(r)])
+        # trailing text (the reason breakdown) may wrap; numbers and labels may not
+        wrap = col.align == "l" and i >= lead
+        need.append((min(longest, _WRAP_AT) if wrap else longest) + _PAD)
+    base, current, used = list(range(lead)), list[int](), sum(need[:lead])
+    blocks: list[list[int]] = []
+    for i in range(lead, len(g.columns)):
+        if current and used + need[i] - _PAD > width:
+            blocks.append(base + current)
+            current, used = [], sum(need[:lead])
+        current.append(i)
+        used += need[i]
+    blocks.append(base + current)
+    return blocks
+
+
+def _leading_text(g: Grid) -> int:
+    """Return how many leading columns are labels (repeated in every column block)."""
+    n = 0
+    while n < len(g.columns) and g.columns[n].align == "l" and g.columns[n].key != "not_valid":
+        n += 1
+    return max(n, 1)
+
+
+def _headers(g: Grid) -> list[str]:
+    """Return headers with the grouping variable on a first line (``Sex\\nMale``)."""
+    out = [c.header for c in g.columns]
+    for s in g.spans:
+        for i in range(s.start, s.stop):
+            out[i] = f"{s.text}\n{out[i]}"
+    return out
+
+
+def _table(
+    g: Grid, cols: list[int], rows: Sequence[tuple[str, ...]], kinds: Sequence[str],
+    title: str | None,
+) -> RenderableType:
+    """Build one rich Table of the chosen columns."""
+    from rich import box
+    from rich.table import Table
+    from rich.text import Text
+
+    table = Table(title=title, title_justify="left", title_style="bold", box=box.SIMPLE_HEAD,
+                  show_edge=False, pad_edge=False, expand=False)
+    headers = _headers(g)
+    for i in cols:
+        numeric = g.columns[i].align == "r"
+        longest = max((cell_len(r[i]) for r in rows if i < len(r)), default=0)
+        table.add_column(Text(headers[i]), justify="right" if numeric else "left",
+                         no_wrap=numeric or longest <= _SHORT, overflow="fold")
+    for row, kind in zip(rows, kinds, strict=True):
+        cells = [Text(row[i] if i < len(row) else "") for i in cols]
+        if kind in ("section", "summary"):
+            cells[0].stylize("bold")
+        table.add_row(*cells)
+    return table
+
+
+def render_check(report: Any) -> RenderableType:
+    """Return a rich renderable of a codebook check (``wstats._draft.CodebookCheck``)."""
+    from rich.console import Group
+    from rich.text import Text
+
+    parts: list[RenderableType] = [Text("Codebook check", style="bold")]
+    explained = report.frame
+    if len(explained):
+        rows = [(str(r["variable"]), str(r["raw_code"]), str(r["reason"]),
+                 f"{int(r['count']):,}") for r in explained.to_dict(orient="records")]
+        parts.append(_plain_table("Codes explained by a rule",
+                                  ["Variable", "Raw code", "Meaning", "Rows"], rows))
+    unexplained = report.unexplained
+    if len(unexplained):
+        odd = [(str(r["variable"]), str(r["code"]), f"{int(r['count']):,}")
+               for r in unexplained.to_dict(orient="records")]
+        parts.append(_plain_table("Values no rule explains (now 'invalid')",
+                                  ["Variable", "Value", "Rows"], odd))
+    for name, close in report.absent:
+        hint = f"; did you mean '{close}'?" if close else ""
+        parts.append(Text(f"absent: codebook variable {name} is not in the file{hint}"))
+    parts += [Text(f"problem: {p}") for p in report.problems]
+    parts.append(Text("OK: every codebook variable was found and applied" if report.ok
+                      else "NOT OK: see the absent variables and problems above"))
+    return Group(*parts)
+
+
+def _plain_table(title: str, headers: Sequence[str],
+                 rows: Sequence[Sequence[str]]) -> RenderableType:
+    """Return a simple rich table, counts right-aligned (the last column)."""
+    from rich import box
+    from rich.table import Table
+    from rich.text import Text
+
+    table = Table(title=title, title_justify="left", box=box.SIMPLE_HEAD, show_edge=False,
+                  pad_edge=False)
+    for i, h in enumerate(headers):
+        last = i == len(headers) - 1
+        table.add_column(Text(h), justify="right" if last else "left", no_wrap=last)
+    for row in rows:
+        table.add_row(*(Text(c) for c in row))
+    return table
