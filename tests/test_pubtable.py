@@ -12,10 +12,10 @@ import pytest
 from render_tables import PROVENANCE
 from test_render import check_golden, draw
 
+from wstats._cellfmt import fmt_count, fmt_number
 from wstats._pubtable import build_table, load_table_spec
 from wstats.errors import AnalysisError, OutputError
 from wstats.render import TABLE_RENDERERS, write_table
-from wstats.render._cells import fmt_count, fmt_number
 
 CODEBOOK = """
 [survey]

@@ -9,7 +9,7 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from wstats.render._cells import (
+from wstats._cellfmt import (
     FlagNotes,
     auto_decimals,
     cell_text,

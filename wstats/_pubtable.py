@@ -2,7 +2,7 @@
 
 :func:`build_table` reads only the columns the spec needs, estimates through
 :func:`wstats.estimate` (whole population, then once per grouping variable), formats every
-cell (``wstats.render._cells``: the one place numbers become text) and adds the unweighted n
+cell (``wstats._cellfmt``: the one place numbers become text) and adds the unweighted n
 and weighted N rows, footnotes, a methods paragraph and provenance.
 """
 
@@ -226,7 +226,7 @@ def _label(data: Dataset, name: str) -> str:
 
 def _column_key(rec: Mapping[str, Any], by: Sequence[str]) -> str:
     """Return the column key of one estimate row: ``all`` or ``VAR=level``."""
-    from wstats.render._cells import group_text
+    from wstats._cellfmt import group_text
 
     for b in by:
         v = rec.get(b)
@@ -237,7 +237,7 @@ def _column_key(rec: Mapping[str, Any], by: Sequence[str]) -> str:
 
 def _columns(spec: TableSpec, est: EstimateTable, data: Dataset) -> tuple[TableColumn, ...]:
     """Return the whole-population column, then each group level in estimate order."""
-    from wstats.render._cells import group_text
+    from wstats._cellfmt import group_text
 
     cols = [TableColumn("all", spec.total)] if spec.total is not None else []
     for b in spec.by:
@@ -254,8 +254,8 @@ def _domain_sizes(
     import numpy as np
     import pandas as pd
 
+    from wstats._cellfmt import group_text
     from wstats._expr import parse_expression
-    from wstats.render._cells import group_text
 
     w = data[design.weight].values
     keep = np.isfinite(w)
@@ -333,7 +333,7 @@ class _Layout:
 
     def __init__(self, spec: TableSpec, est: EstimateTable, columns: Sequence[TableColumn],
                  data: Dataset) -> None:
-        from wstats.render._cells import FlagNotes
+        from wstats._cellfmt import FlagNotes
 
         self.spec, self.est, self.columns, self.data = spec, est, columns, data
         self.flags = FlagNotes()
@@ -349,7 +349,7 @@ class _Layout:
         """Return the cells (text) and numbers frames, sample-size rows last."""
         import pandas as pd
 
-        from wstats.render._cells import fmt_count
+        from wstats._cellfmt import fmt_count
 
         text: list[dict[str, Any]] = []
         nums: list[dict[str, Any]] = []
@@ -392,7 +392,7 @@ class _Layout:
 
     def _cell(self, rec: Mapping[str, Any] | None, stat: str, row: RowSpec) -> tuple[str, float]:
         """Return the text and number of one cell (marks added, suppressed hidden)."""
-        from wstats.render._cells import cell_text, with_marks
+        from wstats._cellfmt import cell_text, with_marks
 
         if rec is None:
             return "", math.nan
@@ -417,7 +417,7 @@ class _Layout:
 
     def _levels(self, i: int, row: RowSpec) -> list[str]:
         """Return the level labels to show, in estimate order, filtered by ``levels``."""
-        from wstats.render._cells import group_text
+        from wstats._cellfmt import group_text
 
         found = list(dict.fromkeys(k[2] for k in self.index
                                    if k[0] == row.variable and k[1] == "proportion"))

@@ -294,7 +294,7 @@ class _Spec:
 
     def template(self, value: Any, key: str, statistic: str | None) -> str:
         """Check a cell template's placeholders."""
-        from wstats.render._cells import CELL_FIELDS, template_fields
+        from wstats._cellfmt import CELL_FIELDS, template_fields
 
         text = self.text(value, key)
         try:

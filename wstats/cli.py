@@ -81,7 +81,8 @@ def _add_output_options(p: argparse.ArgumentParser, formats: Sequence[str]) -> N
 def _split(values: Sequence[str] | None) -> list[str]:
     out: list[str] = []
     for v in values or ():
-        out.extend(x.strip() for x in v.split(",") if x.strip())
+        if v:
+            out.extend(x.strip() for x in v.split(",") if x.strip())
     return out
 
 
@@ -332,11 +333,15 @@ def _run_table(args: argparse.Namespace) -> int:
     from wstats._pubtable import build_table, load_table_spec
 
     spec = load_table_spec(args.spec)
+    if args.format == "xlsx" and not args.output:
+        raise UsageError("xlsx output needs -o FILE.xlsx")
     table = build_table(spec, progress=sys.stderr.isatty())
-    if args.format == "xlsx" or (args.output and _format_for(args) == "xlsx"):
-        args.format = "xlsx"
-        if not args.output:
-            raise UsageError("xlsx output needs -o FILE.xlsx")
+    if not args.output and not args.format and table.outputs:
+        from wstats.render import write_table
+
+        for path in write_table(table, overwrite=args.overwrite):
+            print(f"wrote {path}", file=sys.stderr)
+        return 0
     _emit(table, "table", args, [str(spec.data)], str(spec.codebook) if spec.codebook else None)
     return 0
 

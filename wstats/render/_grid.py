@@ -1,7 +1,7 @@
 """A format-neutral table model (Grid) built once from each result type, drawn by each format.
 
 Estimate and nonresponse tables become a Grid here: sections per variable, cells already
-formatted (see :mod:`wstats.render._cells`), flag marks in the cells and their footnotes.
+formatted (see :mod:`wstats._cellfmt`), flag marks in the cells and their footnotes.
 Each format module then only decides how rows, spans and notes are drawn.
 """
 
@@ -13,7 +13,7 @@ from collections.abc import Iterator, Mapping, Sequence
 from dataclasses import dataclass, field
 from typing import TYPE_CHECKING, Any, Protocol
 
-from wstats.render._cells import (
+from wstats._cellfmt import (
     SUPPRESSED,
     FlagNotes,
     auto_decimals,

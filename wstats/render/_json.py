@@ -12,7 +12,7 @@ import math
 from collections.abc import Iterable, Mapping
 from typing import TYPE_CHECKING, Any
 
-from wstats.render._cells import rule_info
+from wstats._cellfmt import rule_info
 from wstats.render._csv import SUPPRESSED_FIELDS
 from wstats.render._grid import NonresponseLike, PublicationLike, default_provenance
 
