@@ -1,14 +1,60 @@
-"""The sample design: what the user declares (Design) and its validated arrays (BoundDesign)."""
+"""The sample design: what the user declares (Design) and its validated arrays (BoundDesign).
+
+Conventions (each changes numbers):
+
+- PSU ids are nested within strata: PSU 1 of stratum A and PSU 1 of stratum B are two PSUs.
+  Without a PSU column every row is its own PSU; without strata there is one stratum.
+- FPC is applied at the first stage only: a value > 1 is the population count of PSUs N_h
+  (f_h = n_h/N_h), a value in (0, 1] the sampling fraction f_h itself.
+- Strata with one PSU (``singleton``): ``fail`` raises; ``certainty`` lets them contribute
+  nothing; ``center`` (an ad hoc, conservative heuristic with no published source) measures
+  the singleton PSU total against the grand mean of all PSU totals; ``collapse`` sorts the
+  strata by value and pools every singleton stratum with the next stratum in that order (a
+  run of singletons joins the first stratum after it; a singleton that is last joins the pool
+  before it); each pool is then one stratum (Cochran 1977; Hansen, Hurwitz & Madow 1953).
+- Degrees of freedom: number of PSUs minus number of (variance) strata.
+- Row numbers in messages count data rows from 1.
+"""
 
 from __future__ import annotations
 
 from collections.abc import Sequence
 from dataclasses import dataclass, field
+from typing import TYPE_CHECKING, Any
 
-__all__ = ["REPLICATE_METHODS", "SINGLETON_TREATMENTS", "Design"]
+import numpy as np
+
+from wstats._reasons import VALID
+from wstats._replicates import (
+    jackknife_strata_factors,
+    replicate_df,
+    replicate_scale,
+    resolve_replicate_columns,
+)
+from wstats.errors import DesignError, SingletonStratumError, WeightError, did_you_mean
+
+if TYPE_CHECKING:
+    import numpy.typing as npt
+
+    from wstats._column import Dataset, DecodedColumn
+
+    Array = npt.NDArray[np.float64]
+    Index = npt.NDArray[np.int64]
+
+__all__ = ["REPLICATE_METHODS", "SINGLETON_TREATMENTS", "BoundDesign", "Design"]
 
 SINGLETON_TREATMENTS = ("fail", "certainty", "center", "collapse")
 REPLICATE_METHODS = ("brr", "fay", "jackknife", "jackknife-strata", "bootstrap", "sdr", "custom")
+_SHOW = 5  # how many offending strata a message lists
+
+
+def _one_of(what: str, value: str, allowed: Sequence[str]) -> None:
+    """Raise DesignError unless *value* is one of *allowed*."""
+    if value not in allowed:
+        raise DesignError(
+            f"design {what} '{value}' is not one of {', '.join(allowed)}"
+            f"{did_you_mean(str(value), allowed)}"
+        )
 
 
 @dataclass(frozen=True)
@@ -35,6 +81,11 @@ class Design:
     drop_incomplete : drop rows with a missing weight/stratum/PSU (reported) instead of failing.
     domain_df : ``design`` (PSUs - strata of the whole design, default) or ``domain`` (only
         strata and PSUs holding domain members).
+
+    Examples
+    --------
+    >>> Design("FINALWT", strata="STRAT_ID", psu="CLUSTER_ID").singleton
+    'fail'
     """
 
     weight: str
@@ -51,3 +102,417 @@ class Design:
     drop_incomplete: bool = False
     domain_df: str = "design"
     extra: dict[str, str] = field(default_factory=dict)
+
+    def __post_init__(self) -> None:
+        """Check the options that do not need data."""
+        if not isinstance(self.weight, str) or not self.weight:
+            raise DesignError("the design needs a weight column; give weight='COLUMN'")
+        _one_of("singleton", self.singleton, SINGLETON_TREATMENTS)
+        _one_of("replicate_center", self.replicate_center, ("full", "mean"))
+        _one_of("domain_df", self.domain_df, ("design", "domain"))
+        if self.replicates is None:
+            if self.replicate_method is not None:
+                raise DesignError(
+                    f"replicate_method '{self.replicate_method}' was given without replicate "
+                    "weights; name them with replicates=[...] or a glob"
+                )
+            return
+        self._check_replicate_options()
+
+    def _check_replicate_options(self) -> None:
+        """Check method, rho, scale and factors of a replicate-weight design."""
+        if self.replicate_method is None:
+            raise DesignError(
+                "replicate weights were given without replicate_method; choose one of "
+                + ", ".join(REPLICATE_METHODS)
+            )
+        _one_of("replicate_method", self.replicate_method, REPLICATE_METHODS)
+        if not 0.0 <= self.fay_rho < 1.0:
+            raise DesignError(f"fay_rho {self.fay_rho} is outside [0, 1); use e.g. 0.5")
+        if self.replicate_scale is not None and not self.replicate_scale > 0:
+            raise DesignError(f"replicate_scale {self.replicate_scale} must be positive")
+        if self.replicate_method == "custom" and self.replicate_scale is None:
+            raise DesignError("replicate_method 'custom' needs replicate_scale (e.g. 0.05)")
+        if self.replicate_factors is not None:
+            f = np.asarray(self.replicate_factors, dtype=np.float64)
+            if not (np.isfinite(f).all() and (f >= 0).all()):
+                raise DesignError("replicate_factors must be finite and non-negative")
+        if self.fpc is not None:
+            raise DesignError(
+                "fpc cannot be combined with replicate weights; fold the correction into "
+                "replicate_factors or replicate_scale"
+            )
+
+    def bind(self, data: Dataset) -> BoundDesign:
+        """Validate the design against *data* and return its arrays.
+
+        Parameters
+        ----------
+        data : the decoded dataset holding the design columns.
+
+        Returns
+        -------
+        BoundDesign
+
+        Raises
+        ------
+        DesignError, WeightError, SingletonStratumError
+            When a column is absent or unusable, weights are bad, or strata hold one PSU.
+        """
+        return _bind(self, data)
+
+
+@dataclass(frozen=True, eq=False)
+class BoundDesign:
+    """A design checked against data, as arrays ready for the estimators.
+
+    Attributes
+    ----------
+    design : the declared :class:`Design`.
+    rows : indices of the data rows used (None = all rows; set when rows were dropped).
+    weights : float64 full-sample weights of the rows used.
+    psu : global PSU index 0..P-1 of each row; PSUs are numbered stratum by stratum.
+    psu_stratum : variance stratum 0..H-1 of each PSU (after any collapsing).
+    n_h : number of PSUs per variance stratum.
+    f_h : first-stage sampling fraction per variance stratum (0 without FPC).
+    stratum_labels : label of each variance stratum (pooled strata joined by ``+``).
+    singleton_strata : number of strata that held one PSU before any treatment.
+    replicate_weights : n x R float64 matrix, or None for linearization.
+    replicate_columns : names of the replicate-weight columns.
+    scale, factors : replicate variance scale and per-replicate factors (see _replicates).
+    df : design degrees of freedom.
+    dropped_rows : rows dropped for a missing weight/stratum/PSU/FPC (``drop_incomplete``).
+    zero_weights : rows with weight exactly 0 (kept; they count in n_h but add nothing).
+    """
+
+    design: Design
+    rows: Index | None
+    weights: Array
+    psu: Index
+    psu_stratum: Index
+    n_h: Index
+    f_h: Array
+    stratum_labels: tuple[str, ...]
+    singleton_strata: int
+    replicate_weights: Array | None
+    replicate_columns: tuple[str, ...]
+    scale: float
+    factors: Array | None
+    df: float
+    dropped_rows: int
+    zero_weights: int
+
+    @property
+    def n_rows(self) -> int:
+        """Rows used for estimation."""
+        return len(self.weights)
+
+    @property
+    def n_psu(self) -> int:
+        """Number of PSUs."""
+        return len(self.psu_stratum)
+
+    @property
+    def n_strata(self) -> int:
+        """Number of variance strata."""
+        return len(self.n_h)
+
+    @property
+    def uses_replicates(self) -> bool:
+        """True when variances come from replicate weights."""
+        return self.replicate_weights is not None
+
+    def column(self, col: DecodedColumn) -> DecodedColumn:
+        """Return *col* restricted to the rows used (itself when no row was dropped)."""
+        if self.rows is None:
+            return col
+        from dataclasses import replace
+
+        raw = None if col.raw is None else col.raw[self.rows]
+        return replace(col, values=col.values[self.rows], reasons=col.reasons[self.rows], raw=raw)
+
+    def summary(self) -> dict[str, Any]:
+        """Return a JSON-ready description of the design as used."""
+        d = self.design
+        reps = self.replicate_weights is not None
+        return {
+            "weight": d.weight,
+            "strata": d.strata,
+            "psu": d.psu,
+            "fpc": d.fpc,
+            "n_strata": self.n_strata,
+            "n_psu": self.n_psu,
+            "df": self.df,
+            "singleton": d.singleton,
+            "singleton_strata": self.singleton_strata,
+            "variance_method": "replicates" if reps else "linearization",
+            "replicate_method": d.replicate_method if reps else None,
+            "n_replicates": len(self.replicate_columns),
+            "replicate_center": d.replicate_center if reps else None,
+            "n_rows": self.n_rows,
+            "dropped_rows": self.dropped_rows,
+            "zero_weights": self.zero_weights,
+            "domain_df": d.domain_df,
+        }
+
+
+def singleton_error(labels: Sequence[str]) -> SingletonStratumError:
+    """Return the error listing strata with one PSU and the alternatives."""
+    shown = ", ".join(f"'{s}'" for s in labels[:_SHOW])
+    more = f" and {len(labels) - _SHOW} more" if len(labels) > _SHOW else ""
+    return SingletonStratumError(
+        f"{len(labels)} strata have a single PSU ({shown}{more}); the variance cannot be "
+        "estimated there: choose singleton='certainty', 'center' or 'collapse'"
+    )
+
+
+
+# ---------------------------------------------------------------- binding
+
+
+def _bind(design: Design, data: Dataset) -> BoundDesign:
+    """Validate *design* against *data* and build the BoundDesign."""
+    src = data.source or "the data"
+    cols = _design_columns(design, data, src)
+    keep = _complete_rows(design, cols, data.n_rows)
+    rows = None if keep.all() else np.flatnonzero(keep)
+    w = _check_weights(_take(cols["weight"].values, rows), design.weight, rows)
+    stratum, labels = _codes(cols.get("strata"), rows, len(w))
+    psu_codes, _ = _codes(cols.get("psu"), rows, len(w))
+    psu, psu_stratum = _psu_index(stratum, psu_codes if design.psu else None)
+    n_h = np.bincount(psu_stratum, minlength=len(labels)).astype(np.int64)
+    f_h = _fpc(cols.get("fpc"), design.fpc, rows, stratum, n_h, labels)
+    singles = int((n_h == 1).sum())
+    if design.replicates is None:
+        if len(psu_stratum) < 2:
+            raise DesignError(
+                f"the design has {len(psu_stratum)} PSU in {src}; a variance needs at least 2 "
+                "PSUs (check the psu column or use replicate weights)"
+            )
+        psu_stratum, n_h, f_h, labels = _singletons(design.singleton, psu_stratum, n_h, f_h,
+                                                     labels)
+    reps = _replicates(design, data, rows, w, stratum, n_h, src)
+    df = float(len(psu_stratum) - len(n_h))
+    if reps is not None:
+        named = design.strata is not None or design.psu is not None
+        df = replicate_df(design.replicate_method or "", reps[0].shape[1], df if named else None)
+    return BoundDesign(
+        design=design, rows=rows, weights=w, psu=psu, psu_stratum=psu_stratum, n_h=n_h,
+        f_h=f_h, stratum_labels=tuple(labels), singleton_strata=singles,
+        replicate_weights=None if reps is None else reps[0],
+        replicate_columns=() if reps is None else reps[1],
+        scale=1.0 if reps is None else reps[2], factors=None if reps is None else reps[3],
+        df=df, dropped_rows=int((~keep).sum()), zero_weights=int((w == 0).sum()),
+    )
+
+
+def _take(a: npt.NDArray[Any], rows: Index | None) -> npt.NDArray[Any]:
+    """Return *a* restricted to *rows* (all when None)."""
+    return a if rows is None else a[rows]
+
+
+def _row_no(rows: Index | None, i: int) -> int:
+    """Return the 1-based data row number of position *i* among the rows used."""
+    return int(i if rows is None else rows[i]) + 1
+
+
+def _design_columns(design: Design, data: Dataset, src: str) -> dict[str, DecodedColumn]:
+    """Return role -> column for the declared design columns; raise if one is absent."""
+    roles = {"weight": design.weight, "strata": design.strata, "psu": design.psu,
+             "fpc": design.fpc}
+    out: dict[str, DecodedColumn] = {}
+    for role, name in roles.items():
+        if name is None:
+            continue
+        if name not in data.columns:
+            # a reader may list every file column (the data may hold only those read)
+            known = data.metadata.get("file_columns") or list(data.columns)
+            if name in known:
+                raise DesignError(
+                    f"column '{name}' given as {role} is in {src} but was not read; "
+                    "read the design columns together with the variables"
+                )
+            raise DesignError(
+                f"column '{name}' given as {role} is not in {src}{did_you_mean(name, known)}"
+            )
+        out[role] = data.columns[name]
+    w = out["weight"]
+    if w.kind == "text" or w.values.dtype.kind not in "fiub":
+        raise WeightError(
+            f"weight column '{design.weight}' in {src} holds text, not numbers; "
+            "name the numeric final-weight column"
+        )
+    if "fpc" in out and out["fpc"].values.dtype.kind not in "fiub":
+        raise DesignError(f"fpc column '{design.fpc}' in {src} holds text; it must be numeric")
+    return out
+
+
+def _complete_rows(design: Design, cols: dict[str, DecodedColumn], n: int) -> npt.NDArray[Any]:
+    """Return the mask of rows with every design value present; raise unless dropping."""
+    keep = np.ones(n, dtype=bool)
+    for role, col in cols.items():
+        bad = col.reasons != VALID
+        if col.values.dtype.kind == "f":
+            bad |= np.isnan(col.values)
+        count = int(bad.sum())
+        if count and not design.drop_incomplete:
+            error = WeightError if role == "weight" else DesignError
+            raise error(
+                f"{role} column '{col.name}' is missing in {count} rows (first: row "
+                f"{int(np.argmax(bad)) + 1}); fix the data or set drop_incomplete=True"
+            )
+        keep &= ~bad
+    if not keep.any():
+        raise DesignError("no row has a complete weight/stratum/PSU; check the design columns")
+    return keep
+
+
+def _check_weights(w: npt.NDArray[Any], name: str, rows: Index | None) -> Array:
+    """Return weights as float64 after checking they are finite, >= 0 and not all zero."""
+    w = np.asarray(w, dtype=np.float64)
+    for bad, what in ((~np.isfinite(w), "infinite"), (w < 0, "negative")):
+        if bad.any():
+            raise WeightError(
+                f"weight column '{name}' has {int(bad.sum())} {what} values (first: row "
+                f"{_row_no(rows, int(np.argmax(bad)))}); weights must be finite and >= 0"
+            )
+    if not (w > 0).any():
+        raise WeightError(f"weight column '{name}' is 0 in every row; name the analysis weight")
+    return w
+
+
+def _label(col: DecodedColumn, value: Any) -> str:
+    """Return the label of a stratum/PSU value: its value label, else the value as text."""
+    if isinstance(value, float | np.floating):
+        if value in col.value_labels:
+            return col.value_labels[float(value)]
+        return str(int(value)) if float(value).is_integer() else repr(float(value))
+    return str(value)
+
+
+def _codes(col: DecodedColumn | None, rows: Index | None, n: int) -> tuple[Index, list[str]]:
+    """Return codes 0..K-1 in sorted value order and the labels of the K values."""
+    if col is None:
+        return np.zeros(n, dtype=np.int64), ["all"]
+    values = _take(col.values, rows)
+    if values.dtype.kind not in "fiub":
+        values = values.astype(str)
+    uniq, inverse = np.unique(values, return_inverse=True)
+    return inverse.astype(np.int64).ravel(), [_label(col, v) for v in uniq.tolist()]
+
+
+def _psu_index(stratum: Index, psu: Index | None) -> tuple[Index, Index]:
+    """Return the global PSU index of each row (nested in strata) and the stratum per PSU."""
+    if psu is None:
+        order = np.argsort(stratum, kind="stable")
+        index = np.empty(len(stratum), dtype=np.int64)
+        index[order] = np.arange(len(stratum))
+        return index, stratum[order]
+    key = stratum * (int(psu.max(initial=0)) + 1) + psu
+    uniq, inverse = np.unique(key, return_inverse=True)
+    return inverse.astype(np.int64).ravel(), (uniq // (int(psu.max(initial=0)) + 1))
+
+
+def _fpc(col: DecodedColumn | None, name: str | None, rows: Index | None, stratum: Index,
+         n_h: Index, labels: list[str]) -> Array:
+    """Return the first-stage sampling fraction per stratum from the FPC column."""
+    if col is None:
+        return np.zeros(len(n_h))
+    v = np.asarray(_take(col.values, rows), dtype=np.float64)
+    if not (np.isfinite(v) & (v > 0)).all():
+        bad = ~(np.isfinite(v) & (v > 0))
+        raise DesignError(
+            f"fpc column '{name}' has {int(bad.sum())} values that are not positive (first: row "
+            f"{_row_no(rows, int(np.argmax(bad)))}); give PSU counts (> 1) or fractions in (0, 1]"
+        )
+    order = np.argsort(stratum, kind="stable")
+    starts = np.flatnonzero(np.r_[True, np.diff(stratum[order]) != 0])
+    low, high = np.minimum.reduceat(v[order], starts), np.maximum.reduceat(v[order], starts)
+    varying = np.flatnonzero(low != high)
+    if len(varying):
+        raise DesignError(
+            f"fpc column '{name}' is not constant within stratum '{labels[varying[0]]}' "
+            f"({low[varying[0]]:g} to {high[varying[0]]:g}); it must be one value per stratum"
+        )
+    short = np.flatnonzero((low > 1) & (low < n_h))
+    if len(short):
+        h = short[0]
+        raise DesignError(
+            f"fpc column '{name}' gives {low[h]:g} PSUs in stratum '{labels[h]}' but {n_h[h]} "
+            "were sampled there; give the population count of PSUs (>= sampled) or a fraction"
+        )
+    return np.asarray(np.where(low > 1, n_h / low, low), dtype=np.float64)
+
+
+def _singletons(treatment: str, psu_stratum: Index, n_h: Index, f_h: Array,
+                labels: list[str]) -> tuple[Index, Index, Array, list[str]]:
+    """Apply the singleton treatment: fail, or collapse strata; others act in the variance."""
+    single = n_h == 1
+    if not single.any() or treatment in ("certainty", "center"):
+        return psu_stratum, n_h, f_h, labels
+    if treatment == "fail":
+        raise singleton_error([labels[h] for h in np.flatnonzero(single)])
+    group = _collapse_groups(single)
+    n_g = np.bincount(group, weights=n_h).astype(np.int64)
+    with np.errstate(divide="ignore"):
+        pop = np.where(f_h > 0, n_h / np.where(f_h > 0, f_h, 1.0), np.inf)
+    pop_g = np.bincount(group, weights=pop)
+    f_g = np.where(np.isinf(pop_g), 0.0, n_g / np.where(np.isinf(pop_g), 1.0, pop_g))
+    names = ["+".join(labels[h] for h in np.flatnonzero(group == g)) for g in range(len(n_g))]
+    return group[psu_stratum], n_g, np.asarray(f_g, dtype=np.float64), names
+
+
+def _collapse_groups(single: npt.NDArray[np.bool_]) -> Index:
+    """Return the pool of each stratum: a singleton joins the next stratum (last: previous)."""
+    starts = np.r_[True, ~single[:-1]]
+    group = np.cumsum(starts) - 1
+    if single[-1] and starts[-1] and group[-1] > 0:
+        group[-1] -= 1
+    return group.astype(np.int64)
+
+
+def _replicates(design: Design, data: Dataset, rows: Index | None, w: Array, stratum: Index,
+                n_h: Index, src: str) -> tuple[Array, tuple[str, ...], float, Array] | None:
+    """Return (matrix, columns, scale, factors) of a replicate design, or None."""
+    if design.replicates is None:
+        return None
+    names = resolve_replicate_columns(design.replicates, list(data.columns), src)
+    if len(names) < 2:
+        raise DesignError(f"only {len(names)} replicate-weight column found; at least 2 needed")
+    for name in names:
+        if data.columns[name].values.dtype.kind not in "fiub":
+            raise WeightError(f"replicate-weight column '{name}' in {src} holds text")
+    rep = np.column_stack([_take(data.columns[c].values, rows) for c in names]).astype(np.float64)
+    bad = ~np.isfinite(rep) | (rep < 0)
+    if bad.any():
+        r, c = np.unravel_index(int(np.argmax(bad)), bad.shape)
+        raise WeightError(
+            f"replicate-weight column '{names[c]}' has a missing, infinite or negative value "
+            f"(row {_row_no(rows, int(r))}); replicate weights must be finite and >= 0"
+        )
+    factors = _replicate_factors(design, rep, w, stratum, n_h)
+    method = design.replicate_method or ""
+    scale = replicate_scale(method, len(names), design.fay_rho, design.replicate_scale)
+    return rep, tuple(names), scale, factors
+
+
+def _replicate_factors(design: Design, rep: Array, w: Array, stratum: Index,
+                       n_h: Index) -> Array:
+    """Return the per-replicate factors: given, derived (jackknife-strata) or ones."""
+    n_rep = rep.shape[1]
+    if design.replicate_factors is not None:
+        f = np.asarray(design.replicate_factors, dtype=np.float64)
+        if len(f) != n_rep:
+            raise DesignError(
+                f"replicate_factors has {len(f)} values for {n_rep} replicate columns; "
+                "give one factor per replicate"
+            )
+        return f
+    if design.replicate_method != "jackknife-strata":
+        return np.ones(n_rep)
+    if design.strata is None or design.psu is None:
+        raise DesignError(
+            "replicate_method 'jackknife-strata' needs strata and psu columns (to find n_h) "
+            "or replicate_factors"
+        )
+    return jackknife_strata_factors(rep, w, stratum, n_h)

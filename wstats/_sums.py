@@ -1,0 +1,247 @@
+"""Weighted sums by (PSU, domain): the sufficient statistics of every estimator, vectorised.
+
+Every estimate of wstats is a function of weighted sums of per-row values over PSU x domain
+cells (and, for replicate designs, over replicate x domain). :class:`WeightedSums` builds the
+sparse row -> (PSU, domain) matrices once per call and multiplies blocks of values with them.
+
+Domains: domain 0 is the whole population (rows satisfying the ``where`` condition); domains
+1..C are the crossed ``by`` cells. A row is in domain 0 and in at most one cell, so the sparse
+matrix has at most two entries per row. Only (PSU, domain) pairs that hold rows are stored:
+a PSU without members of a domain contributes a zero total there, which the variance adds
+back exactly (see :mod:`wstats._variance`), so nothing the size of PSUs x domains is built.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Sequence
+from dataclasses import dataclass
+from functools import cached_property
+from typing import TYPE_CHECKING, Any
+
+import numpy as np
+
+if TYPE_CHECKING:
+    import numpy.typing as npt
+    from scipy import sparse
+
+    from wstats._design import BoundDesign
+
+    Array = npt.NDArray[np.float64]
+    Index = npt.NDArray[np.int64]
+    Bool = npt.NDArray[np.bool_]
+
+__all__ = ["Domains", "WeightedSums", "domain_quantiles"]
+
+_TOL = 1e-10  # relative tolerance when comparing cumulative weight shares with p
+
+
+@dataclass(frozen=True, eq=False)
+class Domains:
+    """Domain membership of the rows used.
+
+    Attributes
+    ----------
+    inside : rows in the population domain (the ``where`` condition holds; all rows if none).
+    cell : crossed by-cell 0..C-1 of each row, -1 outside every cell (by value not valid,
+        or outside the population domain).
+    n_cells : number of crossed by-cells C (0 without ``by``).
+    """
+
+    inside: Bool
+    cell: Index
+    n_cells: int
+
+    @property
+    def n_domains(self) -> int:
+        """Population plus cells."""
+        return self.n_cells + 1
+
+    @classmethod
+    def build(cls, inside: Bool, codes: list[Index], sizes: list[int]) -> Domains:
+        """Cross per-variable level codes (-1 = no level) into cell numbers, row-major."""
+        if not codes:
+            return cls(inside, np.full(len(inside), -1, dtype=np.int64), 0)
+        ok = inside & np.logical_and.reduce([c >= 0 for c in codes])
+        safe = [np.where(ok, c, 0) for c in codes]
+        cell = np.ravel_multi_index(safe, sizes) if sizes else np.zeros(len(inside), np.int64)
+        return cls(inside, np.where(ok, cell, -1).astype(np.int64), int(np.prod(sizes)))
+
+
+class WeightedSums:
+    """Sums of row values by (PSU, domain), by domain, and by (replicate, domain)."""
+
+    def __init__(self, design: BoundDesign, domains: Domains) -> None:
+        from scipy import sparse
+
+        n, nd = design.n_rows, domains.n_domains
+        rows = np.arange(n)
+        pop, incell = rows[domains.inside], rows[domains.cell >= 0]
+        entry_row = np.concatenate([pop, incell])
+        entry_dom = np.concatenate([np.zeros(len(pop), np.int64), domains.cell[incell] + 1])
+        keys, inverse = np.unique(design.psu[entry_row] * nd + entry_dom, return_inverse=True)
+        self.design = design
+        self.domains = domains
+        self.n_domains = nd
+        #: PSU and domain of every stored (PSU, domain) pair
+        self.pair_psu: Index = (keys // nd).astype(np.int64)
+        self.pair_domain: Index = (keys % nd).astype(np.int64)
+        self._a = sparse.csr_matrix(
+            (design.weights[entry_row], (inverse.ravel(), entry_row)), shape=(len(keys), n)
+        )
+        self._ind = sparse.csr_matrix(
+            (np.ones(len(entry_row)), (entry_dom, entry_row)), shape=(nd, n)
+        )
+        self._pair_to_domain = sparse.csr_matrix(
+            (np.ones(len(keys)), (self.pair_domain, np.arange(len(keys)))), shape=(nd, len(keys))
+        )
+
+    @property
+    def n_rows(self) -> int:
+        """Rows used."""
+        return self.design.n_rows
+
+    def pair_sums(self, x: Array) -> Array:
+        """Return sum over rows of w * x by (PSU, domain) pair: shape (pairs, V)."""
+        return _product(self._a, x)
+
+    @cached_property
+    def _all_weight(self) -> Array:
+        """Pair sums of the weights (x = 1), reused for variables valid in every row."""
+        return np.asarray(self._a @ np.ones(self.n_rows))[:, None]
+
+    @cached_property
+    def _all_counts(self) -> Array:
+        """Domain counts, sums of w and of w^2 over all rows, as (D, 3)."""
+        w = self.design.weights
+        return self.counts([np.ones(self.n_rows), w, w * w])
+
+    def valid_pair_sums(self, valid: Bool) -> Array:
+        """Return pair sums of w over valid rows: shape (pairs, 1)."""
+        return self._all_weight if valid.all() else self.pair_sums(valid.astype(np.float64))
+
+    def valid_counts(self, valid: Bool) -> Array:
+        """Return per domain: valid rows, their sum of w and of w^2: shape (D, 3)."""
+        if valid.all():
+            return self._all_counts
+        v = valid.astype(np.float64)
+        return self.counts([v, self.design.weights * v, self._w2 * v])
+
+    @cached_property
+    def _w2(self) -> Array:
+        """Squared weights, for Kish's weighting effect."""
+        return np.asarray(self.design.weights**2)
+
+    def domain_totals(self, pair: Array) -> Array:
+        """Return pair sums added up by domain: shape (D, V)."""
+        return np.asarray(self._pair_to_domain @ pair)
+
+    def counts(self, x: Array | Sequence[Array]) -> Array:
+        """Return unweighted sums of x by domain: shape (D, V) (x = a validity mask: counts)."""
+        return _product(self._ind, x)
+
+    @cached_property
+    def _ones(self) -> sparse.csr_matrix:
+        """The (PSU, domain) matrix with entries 1, for counts of members."""
+        a = self._a.copy()
+        a.data[:] = 1.0
+        return a
+
+    def pair_counts(self, x: Array) -> Array:
+        """Return unweighted sums of x by (PSU, domain) pair: shape (pairs, V)."""
+        return _product(self._ones, x)
+
+    @cached_property
+    def strata_cells(self) -> tuple[Index, sparse.csr_matrix]:
+        """Return the (stratum, domain) cell of every pair and the cell x pair indicator."""
+        from scipy import sparse
+
+        hd = self.design.psu_stratum[self.pair_psu] * self.n_domains + self.pair_domain
+        size = self.design.n_strata * self.n_domains
+        s = sparse.csr_matrix((np.ones(len(hd)), (hd, np.arange(len(hd)))), shape=(size, len(hd)))
+        return hd.astype(np.int64), s
+
+    def replicate_sums(self, x: Array) -> Array:
+        """Return sums of replicate weight x x by (replicate, domain): shape (R, D, V)."""
+        rep = self.design.replicate_weights
+        assert rep is not None  # callers check uses_replicates
+        x2 = x[:, None] if x.ndim == 1 else x
+        out = np.empty((rep.shape[1], self.n_domains, x2.shape[1]))
+        for v in range(x2.shape[1]):  # loop over value columns only
+            out[:, :, v] = np.asarray(self._ind @ (rep * x2[:, v : v + 1])).T
+        return out
+
+    def reason_counts(self, reasons: npt.NDArray[np.int8], n_reasons: int) -> Index:
+        """Return row counts per non-valid reason code by domain: shape (D, n_reasons).
+
+        The ``valid`` column (code 0) is left at 0: only the rows that are not valid are read.
+        """
+        rows = np.flatnonzero(reasons)
+        code = reasons[rows].astype(np.int64)
+        pop = self.domains.inside[rows]
+        cell = self.domains.cell[rows]
+        key = np.concatenate([code[pop], (cell[cell >= 0] + 1) * n_reasons + code[cell >= 0]])
+        counts = np.bincount(key, minlength=self.n_domains * n_reasons)
+        return counts.reshape(self.n_domains, n_reasons).astype(np.int64)
+
+
+def _product(m: Any, x: Array | Sequence[Array]) -> Array:
+    """Return m @ x as (rows of m, V), one sparse matrix-vector product per value column.
+
+    Columns are multiplied one at a time: a contiguous column needs no copy into a row-major
+    block, which on large files costs more than the products themselves.
+    """
+    if isinstance(x, np.ndarray):
+        columns = [x] if x.ndim == 1 else [x[:, j] for j in range(x.shape[1])]
+    else:
+        columns = list(x)
+    out = np.empty((m.shape[0], len(columns)))
+    for j, col in enumerate(columns):  # loop over value columns only
+        out[:, j] = m @ np.ascontiguousarray(col, dtype=np.float64)
+    return out
+
+
+def domain_quantiles(
+    y: Array, weights: Array, domains: Domains, valid: Bool, probs: Array
+) -> Array:
+    """Return lower weighted quantiles Q(p) = min{y : F(y) >= p} per domain.
+
+    Parameters
+    ----------
+    y, weights, valid : values, weights and validity of the rows used.
+    domains : the domain membership.
+    probs : (D, K) probabilities per domain (domain 0 = population).
+
+    Returns
+    -------
+    (D, K) array; NaN for a domain without valid rows or with zero total weight.
+    """
+    out = np.full(probs.shape, np.nan)
+    pop = domains.inside & valid
+    out[:1] = _coded_quantiles(y, weights, np.where(pop, 0, -1), 1, probs[:1])
+    if domains.n_cells:
+        cell = np.where(valid, domains.cell, -1)
+        out[1:] = _coded_quantiles(y, weights, cell, domains.n_cells, probs[1:])
+    return out
+
+
+def _coded_quantiles(y: Array, w: Array, code: Index, n_codes: int, probs: Array) -> Array:
+    """Return Q(p) per code group (code -1 = ignored), one sort, group-wise cumulative sums."""
+    keep = code >= 0
+    ys, ws, cs = y[keep], w[keep], code[keep]
+    order = np.lexsort((ys, cs))
+    ys, ws, cs = ys[order], ws[order], cs[order]
+    groups = np.arange(n_codes)
+    start = np.searchsorted(cs, groups, side="left")
+    end = np.searchsorted(cs, groups, side="right")
+    cw = np.cumsum(ws)
+    before = np.r_[0.0, cw][start]
+    total = np.r_[0.0, cw][end] - before
+    with np.errstate(divide="ignore", invalid="ignore"):
+        share = (cw - before[cs]) / total[cs]
+    key = cs + np.nan_to_num(share, nan=0.0)
+    target = groups[:, None] + probs - _TOL
+    idx = np.searchsorted(key, target.ravel(), side="left").reshape(probs.shape)
+    idx = np.clip(idx, start[:, None], np.maximum(end - 1, start)[:, None])
+    found = (end > start)[:, None] & (total > 0)[:, None] & ~np.isnan(probs)
+    values = ys[np.clip(idx, 0, max(len(ys) - 1, 0))] if len(ys) else np.zeros(probs.shape)
+    return np.where(found, values, np.nan)
