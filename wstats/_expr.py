@@ -1,0 +1,574 @@
+"""Our own small expression language for derived variables and row conditions.
+
+The text is split by a tokenizer that knows only the tokens of the grammar below, parsed by a
+Pratt (precedence-climbing) parser into a tree of frozen nodes, and evaluated vectorised over
+:class:`~wstats._column.DecodedColumn` arrays. Nothing is ever handed to Python's ``eval`` or
+``ast``: a character outside the grammar is an :class:`~wstats.errors.ExpressionError` naming
+its column.
+
+Grammar (lowest precedence first)::
+
+    expr    := or
+    or      := and ("or" and)*
+    and     := not ("and" not)*
+    not     := "not" not | compare
+    compare := sum (("==" | "!=" | "<" | "<=" | ">" | ">=") sum)?     # no chains
+    sum     := product (("+" | "-") product)*
+    product := unary (("*" | "/") unary)*
+    unary   := "-" unary | power
+    power   := atom ("^" unary)?                                       # right-associative
+    atom    := NUMBER | NAME | NAME "(" args ")" | "(" expr ")"
+    args    := expr ("," expr)*          # strings only as oneof(x, "a", "b") choices
+
+Missing values: a result is valid only where every input it depends on is valid, otherwise
+its reason is ``Reasons.combine`` of the inputs' reasons; undefined arithmetic (division by
+zero, ``log`` of a value <= 0, ``sqrt`` of a negative, overflow) gives ``invalid``. Two
+deliberate exceptions follow the logic of questionnaire skips: ``and``/``or`` use three-valued
+(Kleene) logic, so ``false and <missing>`` is a valid false, and ``if(c, a, b)`` takes the
+reason of the branch it selects (or of ``c`` when ``c`` is not valid).
+"""
+
+from __future__ import annotations
+
+import keyword
+import re
+from collections.abc import Callable, Collection, Mapping
+from dataclasses import dataclass
+
+import numpy as np
+
+from wstats._column import DecodedColumn
+from wstats._reasons import INVALID, VALID, Reasons
+from wstats.errors import ExpressionError, did_you_mean
+
+__all__ = ["FUNCTIONS", "Expression", "expression_names", "parse_expression"]
+
+Arrays = tuple[np.ndarray, np.ndarray]
+
+# name -> (min args, max args or None for any number)
+FUNCTIONS: dict[str, tuple[int, int | None]] = {
+    "if": (3, 3), "min": (2, None), "max": (2, None), "abs": (1, 1), "sqrt": (1, 1),
+    "log": (1, 1), "exp": (1, 1), "round": (1, 2), "floor": (1, 1), "ceil": (1, 1),
+    "between": (3, 3), "oneof": (2, None),
+}
+_KEYWORDS = frozenset({"and", "or", "not"})
+_TOKEN = re.compile(
+    r"(?P<ws>\s+)"
+    r"|(?P<num>(?:\d+\.?\d*|\.\d+)(?:[eE][+-]?\d+)?)"
+    r"|(?P<name>[A-Za-z_][A-Za-z0-9_]*)"
+    r"|(?P<str>\"[^\"\\]*\"|'[^'\\]*')"
+    r"|(?P<op>==|!=|<=|>=|[-+*/^(),<>])"
+)
+_FORBIDDEN = {
+    ".": "attribute access is not allowed", "[": "indexing is not allowed",
+    "]": "indexing is not allowed", "=": "assignment is not allowed (compare with ==)",
+    "%": "'%' is not an operator here", "*": "'**' is not an operator (use ^)",
+    "&": "use 'and'", "|": "use 'or'", "!": "use 'not' or '!='", ":": "':' is not allowed",
+    "{": "braces are not allowed", "}": "braces are not allowed", "@": "'@' is not allowed",
+    "#": "comments are not allowed", ";": "';' is not allowed", "\\": "'\\' is not allowed",
+}
+_PYTHON_WORDS = frozenset(w for w in keyword.kwlist if w.islower()) - _KEYWORDS - {"if"}
+_COMPARE = ("==", "!=", "<", "<=", ">", ">=")
+_BOOLEAN_FUNCS = ("between", "oneof")
+
+
+@dataclass(frozen=True)
+class _Tok:
+    kind: str  # num, name, str, op, kw, end
+    text: str
+    col: int  # 1-based column
+
+
+@dataclass(frozen=True)
+class _Num:
+    value: float
+
+
+@dataclass(frozen=True)
+class _Str:
+    value: str
+
+
+@dataclass(frozen=True)
+class _Var:
+    name: str
+
+
+@dataclass(frozen=True)
+class _Unary:
+    op: str
+    arg: _Node
+
+
+@dataclass(frozen=True)
+class _Binary:
+    op: str
+    left: _Node
+    right: _Node
+
+
+@dataclass(frozen=True)
+class _Call:
+    func: str
+    args: tuple[_Node, ...]
+
+
+_Node = _Num | _Str | _Var | _Unary | _Binary | _Call
+
+
+class _Parser:
+    """Recursive-descent / precedence-climbing parser over the token list."""
+
+    def __init__(self, text: str, where: str) -> None:
+        self.text, self.where = text, where
+        self.toks = _tokenize(text, self._fail)
+        self.i = 0
+
+    def _fail(self, col: int, what: str) -> ExpressionError:
+        """Build the one-line error for a problem at column *col*."""
+        return ExpressionError(f"{self.where}: expression '{self.text}' column {col}: {what}")
+
+    def peek(self) -> _Tok:
+        """Return the current token."""
+        return self.toks[self.i]
+
+    def take(self) -> _Tok:
+        """Consume and return the current token."""
+        tok = self.toks[self.i]
+        self.i += 1
+        return tok
+
+    def expect(self, text: str) -> None:
+        """Consume an operator token *text* or fail."""
+        tok = self.take()
+        if tok.text != text or tok.kind not in ("op",):
+            got = "the end" if tok.kind == "end" else f"'{tok.text}'"
+            raise self._fail(tok.col, f"expected '{text}' but found {got}")
+
+    def parse(self) -> _Node:
+        """Parse a whole expression and insist nothing follows it."""
+        node = self.expr()
+        tok = self.peek()
+        if tok.kind != "end":
+            raise self._fail(tok.col, f"unexpected '{tok.text}' after a complete expression")
+        return node
+
+    def expr(self) -> _Node:
+        """Parse an ``or`` chain."""
+        node = self.conj()
+        while self.peek().text == "or" and self.peek().kind == "kw":
+            self.take()
+            node = _Binary("or", node, self.conj())
+        return node
+
+    def conj(self) -> _Node:
+        """Parse an ``and`` chain."""
+        node = self.negation()
+        while self.peek().text == "and" and self.peek().kind == "kw":
+            self.take()
+            node = _Binary("and", node, self.negation())
+        return node
+
+    def negation(self) -> _Node:
+        """Parse ``not`` prefixes."""
+        if self.peek().text == "not" and self.peek().kind == "kw":
+            self.take()
+            return _Unary("not", self.negation())
+        return self.compare()
+
+    def compare(self) -> _Node:
+        """Parse one optional comparison; chains like ``a < b < c`` are refused."""
+        node = self.sum()
+        if self.peek().kind == "op" and self.peek().text in _COMPARE:
+            op = self.take().text
+            node = _Binary(op, node, self.sum())
+            nxt = self.peek()
+            if nxt.kind == "op" and nxt.text in _COMPARE:
+                raise self._fail(nxt.col, "comparisons cannot be chained; use between(x, lo, hi)"
+                                 " or 'and'")
+        return node
+
+    def sum(self) -> _Node:
+        """Parse ``+``/``-`` chains (left-associative)."""
+        node = self.product()
+        while self.peek().kind == "op" and self.peek().text in ("+", "-"):
+            op = self.take().text
+            node = _Binary(op, node, self.product())
+        return node
+
+    def product(self) -> _Node:
+        """Parse ``*``/``/`` chains (left-associative)."""
+        node = self.unary()
+        while self.peek().kind == "op" and self.peek().text in ("*", "/"):
+            op = self.take().text
+            node = _Binary(op, node, self.unary())
+        return node
+
+    def unary(self) -> _Node:
+        """Parse unary minus (binds looser than ``^``: ``-x^2`` is ``-(x^2)``)."""
+        if self.peek().kind == "op" and self.peek().text in ("-", "+"):
+            op = self.take().text
+            arg = self.unary()
+            return _Unary("-", arg) if op == "-" else arg
+        return self.power()
+
+    def power(self) -> _Node:
+        """Parse ``^`` (right-associative)."""
+        node = self.atom()
+        if self.peek().kind == "op" and self.peek().text == "^":
+            self.take()
+            node = _Binary("^", node, self.unary())
+        return node
+
+    def atom(self) -> _Node:
+        """Parse a number, a variable, a call or a parenthesised expression."""
+        tok = self.take()
+        if tok.kind == "num":
+            return _Num(float(tok.text))
+        if tok.kind == "op" and tok.text == "(":
+            node = self.expr()
+            self.expect(")")
+            return node
+        if tok.kind == "name":
+            if self.peek().kind == "op" and self.peek().text == "(":
+                return self.call(tok)
+            return _Var(tok.text)
+        if tok.kind == "str":
+            raise self._fail(tok.col, "text is only allowed as a choice in oneof(x, \"a\", ...)")
+        if tok.kind == "end":
+            raise self._fail(tok.col, "the expression ends too early")
+        raise self._fail(tok.col, f"unexpected '{tok.text}'")
+
+    def call(self, name: _Tok) -> _Node:
+        """Parse the arguments of an allowed function call."""
+        if name.text not in FUNCTIONS:
+            allowed = ", ".join(sorted(FUNCTIONS))
+            raise self._fail(name.col, f"function '{name.text}' is not allowed; allowed: "
+                             f"{allowed}{did_you_mean(name.text, FUNCTIONS)}")
+        self.expect("(")
+        args: list[_Node] = [self.expr()] if self.peek().text != ")" else []
+        while self.peek().kind == "op" and self.peek().text == ",":
+            self.take()
+            args.append(self.choice() if name.text == "oneof" else self.expr())
+        self.expect(")")
+        low, high = FUNCTIONS[name.text]
+        if len(args) < low or (high is not None and len(args) > high):
+            want = f"{low}" if low == high else f"{low} to {high}" if high else f"at least {low}"
+            raise self._fail(name.col, f"{name.text}() takes {want} arguments, got {len(args)}")
+        if name.text == "round" and len(args) == 2 and not _is_constant(args[1]):
+            raise self._fail(name.col, "round(x, digits) needs a number for digits")
+        return _Call(name.text, tuple(args))
+
+    def choice(self) -> _Node:
+        """Parse a constant choice of oneof: a number, a negative number or a string."""
+        tok = self.peek()
+        if tok.kind == "str":
+            self.take()
+            return _Str(tok.text[1:-1])
+        node = self.unary()
+        if not _is_constant(node):
+            raise self._fail(tok.col, "oneof() choices must be numbers or quoted text")
+        return node
+
+
+def _is_constant(node: _Node) -> bool:
+    """Tell whether *node* is a (possibly negated) number literal."""
+    return isinstance(node, _Num) or (isinstance(node, _Unary) and node.op == "-"
+                                      and isinstance(node.arg, _Num))
+
+
+def _constant(node: _Node) -> float:
+    """Return the value of a constant node."""
+    if isinstance(node, _Num):
+        return node.value
+    assert isinstance(node, _Unary) and isinstance(node.arg, _Num)
+    return -node.arg.value
+
+
+def _tokenize(text: str, fail: Callable[[int, str], ExpressionError]) -> list[_Tok]:
+    """Split *text* into tokens, rejecting any character outside the grammar."""
+    toks: list[_Tok] = []
+    pos = 0
+    while pos < len(text):
+        m = _TOKEN.match(text, pos)
+        if m is None or (m.lastgroup == "op" and text.startswith("**", pos)):
+            ch = text[pos]
+            what = _FORBIDDEN.get(ch, f"character '{ch}' is not part of the expression language")
+            if ch in "\"'":
+                what = "unterminated or escaped text"
+            raise fail(pos + 1, what)
+        kind = m.lastgroup or "ws"
+        word = m.group()
+        if kind == "name" and word.startswith("__"):
+            raise fail(pos + 1, f"names starting with '__' such as '{word}' are not allowed")
+        if kind == "num" and m.end() < len(text) and (text[m.end()].isalpha()
+                                                      or text[m.end()] in "._"):
+            raise fail(m.end() + 1, f"unexpected '{text[m.end()]}' after the number '{word}'")
+        if kind == "name" and word in _PYTHON_WORDS:
+            raise fail(pos + 1, f"'{word}' is not part of the expression language")
+        if kind == "name" and m.end() < len(text) and text[m.end()] in ".[":
+            raise fail(m.end() + 1, _FORBIDDEN[text[m.end()]])
+        if kind != "ws":
+            toks.append(_Tok("kw" if kind == "name" and word in _KEYWORDS else kind, word,
+                             pos + 1))
+        pos = m.end()
+    toks.append(_Tok("end", "", len(text) + 1))
+    return toks
+
+
+def _names(node: _Node) -> frozenset[str]:
+    """Collect the variable names a tree refers to."""
+    if isinstance(node, _Var):
+        return frozenset({node.name})
+    if isinstance(node, _Unary):
+        return _names(node.arg)
+    if isinstance(node, _Binary):
+        return _names(node.left) | _names(node.right)
+    if isinstance(node, _Call):
+        return frozenset().union(*(_names(a) for a in node.args))
+    return frozenset()
+
+
+def _is_boolean(node: _Node) -> bool:
+    """Tell whether the tree yields 1/0 truth values."""
+    if isinstance(node, _Binary):
+        return node.op in _COMPARE or node.op in ("and", "or")
+    if isinstance(node, _Unary):
+        return node.op == "not"
+    return isinstance(node, _Call) and node.func in _BOOLEAN_FUNCS
+
+
+@dataclass(frozen=True)
+class Expression:
+    """A parsed, checked expression.
+
+    Attributes
+    ----------
+    text : the expression as written.
+    where : where it came from (used in messages), e.g. ``"derived.BMI in cb.toml"``.
+    inputs : the variable names it reads.
+    boolean : True when the result is a truth value (comparison, and/or/not, between, oneof).
+    """
+
+    text: str
+    where: str
+    inputs: frozenset[str]
+    boolean: bool
+    _root: _Node
+
+    def evaluate(
+        self,
+        data: Mapping[str, DecodedColumn],
+        vocabulary: Reasons,
+        n_rows: int | None = None,
+    ) -> tuple[np.ndarray, np.ndarray]:
+        """Evaluate over decoded columns.
+
+        Parameters
+        ----------
+        data : name -> DecodedColumn; must hold every name in :attr:`inputs`.
+        vocabulary : the shared reason vocabulary (used to combine input reasons).
+        n_rows : row count, needed only when the expression reads no variable.
+
+        Returns
+        -------
+        (values, reasons) : float64 values (NaN where not valid; truth values are 1.0/0.0)
+            and int8 reason codes.
+
+        Examples
+        --------
+        >>> from wstats._column import Dataset
+        >>> ds = Dataset.from_arrays({"A": [1.0, 2.0, float("nan")]})
+        >>> parse_expression("A * 2 + 1", ["A"], "test").evaluate(ds, ds.vocabulary)[0]
+        array([ 3.,  5., nan])
+        """
+        missing = sorted(self.inputs - set(data))
+        if missing:
+            raise ExpressionError(f"{self.where}: expression '{self.text}' reads "
+                                  f"'{missing[0]}', which is not in the data"
+                                  f"{did_you_mean(missing[0], data)}")
+        if n_rows is None:
+            n_rows = len(next(iter(data.values()))) if data else 0
+        ev = _Evaluator(data, vocabulary, n_rows, self)
+        values, reasons = ev.node(self._root)
+        values = np.where(reasons == VALID, values, np.nan)
+        return values.astype(np.float64), reasons.astype(np.int8)
+
+
+def parse_expression(text: str, known: Collection[str] | None, where: str) -> Expression:
+    """Parse and check an expression of the wstats expression language.
+
+    Parameters
+    ----------
+    text : the expression, e.g. ``"WEIGHT_KG / (HEIGHT_CM / 100) ^ 2"``.
+    known : names that may be used; None accepts any name (checked later against data).
+    where : context for messages, e.g. ``"derived.BMI in survey.toml"`` or ``"--where"``.
+
+    Returns
+    -------
+    Expression
+
+    Raises
+    ------
+    ExpressionError
+        On a syntax error, a forbidden construct, or an unknown variable or function.
+
+    Examples
+    --------
+    >>> sorted(parse_expression("AGE_YRS >= 65 and DISTRICT == 2", None, "where").inputs)
+    ['AGE_YRS', 'DISTRICT']
+    """
+    if not isinstance(text, str) or not text.strip():
+        raise ExpressionError(f"{where}: the expression is empty; write e.g. 'A / B'")
+    parser = _Parser(text, where)
+    root = parser.parse()
+    inputs = _names(root)
+    if known is not None:
+        known_set = set(known)
+        for name in sorted(inputs):
+            if name not in known_set:
+                col = next(t.col for t in parser.toks if t.kind == "name" and t.text == name)
+                raise parser._fail(col, f"unknown variable '{name}'{did_you_mean(name, known)}")
+    return Expression(text, where, inputs, _is_boolean(root), root)
+
+
+def expression_names(text: str, where: str = "--where") -> list[str]:
+    """Return the variable names an expression reads, in order of first appearance.
+
+    Examples
+    --------
+    >>> expression_names("AGE_YRS >= 65 and DISTRICT == 2")
+    ['AGE_YRS', 'DISTRICT']
+    """
+    expr = parse_expression(text, None, where)
+    toks = _tokenize(text, _Parser(text, where)._fail)
+    return list(dict.fromkeys(t.text for t in toks if t.kind == "name" and t.text in expr.inputs))
+
+
+class _Evaluator:
+    """Walk a tree computing (values, reasons) arrays."""
+
+    def __init__(self, data: Mapping[str, DecodedColumn], vocab: Reasons, n: int,
+                 expr: Expression) -> None:
+        self.data, self.vocab, self.n, self.expr = data, vocab, n, expr
+
+    def node(self, node: _Node) -> Arrays:
+        """Evaluate one node."""
+        if isinstance(node, _Num):
+            return np.full(self.n, node.value), np.zeros(self.n, dtype=np.int8)
+        if isinstance(node, _Var):
+            return self.var(node.name)
+        if isinstance(node, _Unary):
+            v, r = self.node(node.arg)
+            out = -v if node.op == "-" else (v == 0).astype(np.float64)
+            return out, r
+        if isinstance(node, _Binary):
+            return self.binary(node)
+        if isinstance(node, _Call):
+            return self.call(node)
+        raise self.error("text is only allowed as a choice in oneof()")
+
+    def error(self, what: str) -> ExpressionError:
+        """Build a one-line evaluation error."""
+        return ExpressionError(f"{self.expr.where}: expression '{self.expr.text}': {what}")
+
+    def var(self, name: str) -> Arrays:
+        """Return a numeric variable's values and reasons."""
+        col = self.data[name]
+        if col.values.dtype.kind != "f":
+            raise self.error(f"variable '{name}' holds text; test it with oneof({name}, \"a\")")
+        return col.values, col.reasons
+
+    def settle(self, values: np.ndarray, *reasons: np.ndarray) -> Arrays:
+        """Combine input reasons; undefined results of valid inputs become ``invalid``."""
+        r = self.vocab.combine(*reasons) if len(reasons) > 1 else reasons[0].copy()
+        r[(r == VALID) & ~np.isfinite(values)] = INVALID
+        return values, r
+
+    def binary(self, node: _Binary) -> Arrays:
+        """Evaluate an operator with two operands."""
+        lv, lr = self.node(node.left)
+        rv, rr = self.node(node.right)
+        if node.op in ("and", "or"):
+            return self.kleene(node.op, lv, lr, rv, rr)
+        with np.errstate(all="ignore"):
+            out = _BINARY[node.op](lv, rv)
+        return self.settle(out.astype(np.float64), lr, rr)
+
+    def kleene(self, op: str, lv: np.ndarray, lr: np.ndarray, rv: np.ndarray,
+               rr: np.ndarray) -> Arrays:
+        """Three-valued and/or: a valid false (and) / true (or) operand decides alone."""
+        lt, rt = (lv != 0) & (lr == VALID), (rv != 0) & (rr == VALID)
+        lf, rf = (lv == 0) & (lr == VALID), (rv == 0) & (rr == VALID)
+        if op == "and":
+            decided, value = lf | rf | (lt & rt), (lt & rt)
+        else:
+            decided, value = lt | rt | (lf & rf), (lt | rt)
+        reasons = np.where(decided, VALID, self.vocab.combine(lr, rr)).astype(np.int8)
+        return value.astype(np.float64), reasons
+
+    def call(self, node: _Call) -> Arrays:
+        """Evaluate an allowed function."""
+        if node.func == "oneof":
+            return self.oneof(node)
+        if node.func == "round" and len(node.args) == 2:
+            v, r = self.node(node.args[0])
+            return self.settle(np.round(v, int(_constant(node.args[1]))), r)
+        pairs = [self.node(a) for a in node.args]
+        vals = [p[0] for p in pairs]
+        if node.func == "if":
+            return self.choose(pairs)
+        with np.errstate(all="ignore"):
+            if node.func in ("min", "max"):
+                red = np.minimum if node.func == "min" else np.maximum
+                out = red.reduce(np.vstack(vals), axis=0)
+            elif node.func == "between":
+                out = ((vals[0] >= vals[1]) & (vals[0] <= vals[2])).astype(np.float64)
+            else:
+                out = _UNARY[node.func](vals[0])
+        return self.settle(out, *(p[1] for p in pairs))
+
+    def choose(self, pairs: list[Arrays]) -> Arrays:
+        """Evaluate ``if(c, a, b)``: the reason comes from c, then from the branch taken."""
+        (cv, cr), (av, ar), (bv, br) = pairs
+        take_a = cv != 0
+        values = np.where(take_a, av, bv)
+        reasons = np.where(cr != VALID, cr, np.where(take_a, ar, br)).astype(np.int8)
+        return values, reasons
+
+    def oneof(self, node: _Call) -> Arrays:
+        """Evaluate ``oneof(x, c1, c2, ...)`` for a numeric or a text x."""
+        first = node.args[0]
+        choices = node.args[1:]
+        texts = [c.value for c in choices if isinstance(c, _Str)]
+        if texts:
+            if len(texts) != len(choices) or not isinstance(first, _Var):
+                raise self.error("oneof() with text choices needs a text variable and only "
+                                 "text choices")
+            col = self.data[first.name]
+            hit = np.isin(col.values.astype(str), texts)
+            return hit.astype(np.float64), col.reasons.copy()
+        v, r = self.node(first)
+        hit = np.isin(v, np.array([_constant(c) for c in choices]))
+        return hit.astype(np.float64), r
+
+
+def _ratio(a: np.ndarray, b: np.ndarray) -> np.ndarray:
+    """Divide, giving NaN (not inf) where the divisor is zero."""
+    return np.where(b == 0, np.nan, a / np.where(b == 0, 1.0, b))
+
+
+def _log(a: np.ndarray) -> np.ndarray:
+    """Natural log, NaN where the argument is <= 0."""
+    return np.where(a > 0, np.log(np.where(a > 0, a, 1.0)), np.nan)
+
+
+_BINARY: dict[str, Callable[[np.ndarray, np.ndarray], np.ndarray]] = {
+    "+": np.add, "-": np.subtract, "*": np.multiply, "/": _ratio, "^": np.power,
+    "==": np.equal, "!=": np.not_equal, "<": np.less, "<=": np.less_equal,
+    ">": np.greater, ">=": np.greater_equal,
+}
+_UNARY: dict[str, Callable[[np.ndarray], np.ndarray]] = {
+    "abs": np.abs, "sqrt": np.sqrt, "log": _log, "exp": np.exp, "round": np.round,
+    "floor": np.floor, "ceil": np.ceil,
+}
