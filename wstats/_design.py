@@ -119,6 +119,21 @@ class Design:
             return
         self._check_replicate_options()
 
+    def columns(self, available: Sequence[str] | None = None, source: str = "the data") -> list[str]:
+        """Return the columns the design needs; a replicate glob is matched against *available*.
+
+        Examples
+        --------
+        >>> Design("W", strata="S", psu="P").columns()
+        ['W', 'S', 'P']
+        """
+        cols = [c for c in (self.weight, self.strata, self.psu, self.fpc) if c]
+        if self.replicates is not None:
+            if isinstance(self.replicates, str) and available is None:
+                raise DesignError(f"replicate glob '{self.replicates}' needs the file's columns")
+            cols += resolve_replicate_columns(self.replicates, list(available or cols), source)
+        return list(dict.fromkeys(cols))
+
     def _check_replicate_options(self) -> None:
         """Check method, rho, scale and factors of a replicate-weight design."""
         if self.replicate_method is None:

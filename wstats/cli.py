@@ -244,7 +244,7 @@ def _run_estimate(args: argparse.Namespace) -> int:
     ratios = [_ratio_pair(r) for r in args.ratio]
     variables = list(args.variables)
     needed = _needed(codebook, [*variables, *[x for r in ratios for x in r], *args.by],
-                     design, args.where)
+                     design, args.where, args.data)
     data = _read(args, codebook, needed)
     table = estimate(
         data, design, variables, statistics=_split([args.stats]) or None, by=args.by,
@@ -276,7 +276,8 @@ def _standard(name: str) -> Any:
     return STANDARDS[name]
 
 
-def _needed(codebook: Any, names: Sequence[str], design: Any, where: str | None) -> list[str]:
+def _needed(codebook: Any, names: Sequence[str], design: Any, where: str | None,
+            data: str) -> list[str]:
     """Return the raw columns to read: variables (derived inputs expanded), design, condition."""
     cols = list(names)
     if where:
@@ -285,7 +286,12 @@ def _needed(codebook: Any, names: Sequence[str], design: Any, where: str | None)
         cols.extend(expression_names(where))
     if codebook is not None:
         cols = codebook.raw_columns_for(cols)
-    cols.extend(design.columns() if hasattr(design, "columns") else [])
+    available = None
+    if isinstance(design.replicates, str):
+        from wstats._readers import file_columns
+
+        available = file_columns(data)
+    cols.extend(design.columns(available, source=data))
     return list(dict.fromkeys(cols))
 
 
@@ -311,7 +317,7 @@ def _run_nonresponse(args: argparse.Namespace) -> int:
 
     codebook = _load_codebook(args.codebook)
     design = _design_from(args, codebook)
-    needed = _needed(codebook, [*args.variables, *args.by], design, args.where)
+    needed = _needed(codebook, [*args.variables, *args.by], design, args.where, args.data)
     data = _read(args, codebook, needed)
     table = nonresponse(data, design, args.variables, by=args.by, where=args.where,
                         level=args.level, count_invalid=not args.exclude_invalid,
