@@ -70,7 +70,8 @@ class DecodedColumn:
     @property
     def valid(self) -> np.ndarray:
         """Boolean mask of rows whose reason is ``valid``."""
-        return self.reasons == VALID
+        mask: np.ndarray = self.reasons == VALID
+        return mask
 
     def reason_counts(self) -> dict[str, int]:
         """Return unweighted row counts per reason name (every vocabulary reason, zeros kept)."""
@@ -82,7 +83,7 @@ class DecodedColumn:
         import pandas as pd
 
         reason = pd.Categorical.from_codes(
-            self.reasons.astype(np.int64), categories=list(self.vocabulary.names)
+            self.reasons.astype(np.int64), categories=pd.Index(list(self.vocabulary.names))
         )
         return pd.DataFrame({self.name: self.values, f"{self.name}_reason": reason})
 

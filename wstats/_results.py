@@ -79,7 +79,7 @@ class EstimateTable:
                 elif k == "flags":
                     rec[k] = list(v)
                 else:
-                    rec[k] = _plain(v)
+                    rec[str(k)] = _plain(v)
             if rec.get("statistic") != "quantile":
                 rec.pop("p", None)
             for k in ("estimate", "se", "ci_low", "ci_high", "df", "cv", "deff"):

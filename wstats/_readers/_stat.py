@@ -199,7 +199,7 @@ def _raw_column(
         label=meta.column_names_to_labels.get(name) or None,
         value_labels={_code(k, numeric): str(v) for k, v in labels.items()},
         tags=tags,
-        user_missing=_user_missing(meta.missing_ranges.get(name, [])) if numeric else [],
+        user_missing=list(_user_missing(meta.missing_ranges.get(name, []))) if numeric else [],
         numeric=numeric,
         format=meta.original_variable_types.get(name) or None,
     )
