@@ -119,8 +119,10 @@ class Design:
             return
         self._check_replicate_options()
 
-    def columns(self, available: Sequence[str] | None = None, source: str = "the data") -> list[str]:
-        """Return the columns the design needs; a replicate glob is matched against *available*.
+    def columns(
+        self, available: Sequence[str] | None = None, source: str = "the data"
+    ) -> list[str]:
+        """Return the columns the design needs (a replicate glob matched against *available*).
 
         Examples
         --------
