@@ -8,13 +8,19 @@ each one once. Thresholds are documented in ``docs/warnings.md``.
 from __future__ import annotations
 
 import warnings
-from collections.abc import Iterable
+from collections.abc import Iterable, Mapping, Sequence
+from dataclasses import dataclass
+from typing import TYPE_CHECKING
 
 import numpy as np
 
 from wstats.errors import WstatsWarning
 
+if TYPE_CHECKING:
+    from wstats._column import Dataset, DecodedColumn
+
 __all__ = [
+    "DesignFacts",
     "KISH_DEFF_THRESHOLD",
     "MIN_GROUP_SIZE",
     "POPULATION_SHORTFALL",
@@ -22,6 +28,8 @@ __all__ = [
     "WstatsWarning",
     "check_group_sizes",
     "check_presubset",
+    "check_special_codes",
+    "estimation_warnings",
     "check_weight_spread",
     "warn_all",
 ]
@@ -86,3 +94,52 @@ def warn_all(messages: Iterable[str]) -> None:
     """Issue each message once as a WstatsWarning."""
     for message in dict.fromkeys(messages):
         warnings.warn(message, WstatsWarning, stacklevel=3)
+
+
+def check_special_codes(columns: Mapping[str, DecodedColumn], skip: Iterable[str]) -> list[str]:
+    """Warn about valid values that look like unexplained don't-know/refused/none codes.
+
+    Only numeric, non-categorical variables that the codebook does not describe are looked at,
+    and only when their largest valid value is a candidate code (a cheap filter: the full
+    spike test of ``codebook draft`` runs on those few).
+    """
+    from wstats._draft import CANDIDATES, suspected_codes
+
+    out: list[str] = []
+    described = set(skip)
+    for name, col in columns.items():
+        if name in described or col.kind not in ("continuous", "count"):
+            continue
+        v = col.values[col.valid]
+        if not len(v) or float(np.max(v)) not in CANDIDATES:
+            continue
+        found = suspected_codes(v)
+        if found:
+            codes = ", ".join(f"{c:g} ({k} rows)" for c, k in found)
+            out.append(f"variable {name}: values {codes} look like special codes (don't know/"
+                       "refused/none) that no codebook rule explains; they are averaged as "
+                       "numbers - map them in the codebook (see 'wstats codebook draft')")
+    return out
+
+
+@dataclass(frozen=True)
+class DesignFacts:
+    """What the design checks need: PSUs per stratum, the weights, the weight's name."""
+
+    psu_per_stratum: np.ndarray
+    weights: np.ndarray
+    weight_name: str
+
+
+def estimation_warnings(data: Dataset, facts: DesignFacts, variables: Sequence[str],
+                        groups: tuple[Sequence[str], np.ndarray] | None) -> list[str]:
+    """Return every warning that applies to one estimation call."""
+    where = data.source or "the data"
+    population = data.metadata.get("population")
+    out = check_presubset(facts.psu_per_stratum, float(facts.weights.sum()), population, where)
+    out += check_weight_spread(facts.weights, facts.weight_name)
+    cols = {n: data.columns[n] for n in variables if n in data.columns}
+    out += check_special_codes(cols, data.metadata.get("described", ()))
+    if groups is not None:
+        out += check_group_sizes(*groups)
+    return out

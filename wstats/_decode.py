@@ -377,5 +377,7 @@ def decode_table(raw: RawTable, cb: Codebook) -> Dataset:
     add_derived(cols, raw, cb, vocab)
     meta: dict[str, Any] = {"format": raw.format, "reader": raw.reader,
                             "file_label": raw.file_label, "codebook": cb.source,
-                            "file_columns": list(raw.file_columns)}
+                            "file_columns": list(raw.file_columns),
+                            "population": cb.population,
+                            "described": sorted(n for n in raw.columns if n in cb.variables)}
     return Dataset(cols, vocab, raw.n_rows, raw.path, meta)

@@ -9,6 +9,7 @@ the full design (all strata and PSUs) is kept for its variance.
 
 from __future__ import annotations
 
+import itertools
 from collections.abc import Callable, Sequence
 from typing import TYPE_CHECKING, Any
 
@@ -108,6 +109,7 @@ def estimate(
                   per_domain_df=design.domain_df == "domain")
     pieces = _run(ctx, variables, stats, set(categorical), ratios, quantiles, proportion_ci)
     frame = _frame(pieces, list(by), by_levels, data.vocabulary.names, level)
+    _warn(data, bound, variables, domains, by_levels)
     standard = reliability or DEFAULT_STANDARD
     flags, suppress = assess(frame, standard, level)
     frame["flags"] = flags
@@ -117,6 +119,21 @@ def estimate(
                 "level": level, "reliability": standard.name,
                 "deff_srs": "with-replacement"}
     return EstimateTable(frame, tuple(by), level, bound.summary(), settings)
+
+
+def _warn(data: Dataset, bound: BoundDesign, variables: Sequence[str], domains: Domains,
+          by_levels: list[tuple[list[Any], list[Any]]]) -> None:
+    """Issue the data-sanity warnings of :mod:`wstats._checks` (each once)."""
+    from wstats._checks import DesignFacts, estimation_warnings, warn_all
+
+    groups = None
+    if domains.n_cells:
+        counts = np.bincount(domains.cell[domains.cell >= 0], minlength=domains.n_cells)
+        names = [" x ".join(str(x) for x in combo)
+                 for combo in itertools.product(*(d for _, d in by_levels))]
+        groups = (names, counts)
+    facts = DesignFacts(np.asarray(bound.n_h), bound.weights, bound.design.weight)
+    warn_all(estimation_warnings(data, facts, variables, groups))
 
 
 def _check_options(statistics: str | Sequence[str] | None, level: float, proportion_ci: str,
