@@ -1,0 +1,507 @@
+"""The Tamarack Basin: a fictional finite population of adults in households in clusters.
+
+Everything about a person is a pure function of ``(population seed, person id)``: a counter-based
+hash (splitmix64) turns ids into uniforms, so any subset of the population can be generated
+on its own, in any order, with numpy only. A person id is ``household id * 8 + adult index``.
+
+The frame (strata, clusters, households per cluster) is drawn once per seed. Strata are the
+13 planning areas of six districts crossed with four urbanicity bands (52 strata); each stratum
+holds 3 x (PSUs it will give) plus 0-2 clusters of 75-130 % of the stratum's mean cluster size,
+so that systematic PPS never meets a certainty cluster.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from functools import lru_cache
+
+import numpy as np
+from scipy.special import ndtri
+
+__all__ = [
+    "AREAS_PER_DISTRICT",
+    "DISTRICTS",
+    "POPULATION_ADULTS",
+    "POPULATION_SEED",
+    "URBANICITY",
+    "Draw",
+    "Frame",
+    "age_group",
+    "build_frame",
+    "household_adults",
+    "person_frame",
+]
+
+POPULATION_SEED = 20261201
+POPULATION_ADULTS = 2_400_000
+DISTRICTS = {
+    1: "Cedar Hollow",
+    2: "Larchmere",
+    3: "North Fork",
+    4: "Sable Ridge",
+    5: "Willowbend",
+    6: "Quillan Lakes",
+}
+URBANICITY = {1: "Basin core", 2: "Inner ring", 3: "Market towns", 4: "Back country"}
+AREAS_PER_DISTRICT = (3, 3, 2, 2, 2, 1)
+_DISTRICT_SHARE = np.array([0.27, 0.21, 0.17, 0.14, 0.12, 0.09])
+# share of each district's adults by urbanicity band (core, inner, towns, back country)
+_URBAN_MIX = np.array(
+    [
+        [0.45, 0.30, 0.15, 0.10],
+        [0.30, 0.35, 0.20, 0.15],
+        [0.15, 0.30, 0.30, 0.25],
+        [0.10, 0.25, 0.35, 0.30],
+        [0.10, 0.20, 0.35, 0.35],
+        [0.10, 0.15, 0.30, 0.45],
+    ]
+)
+_ADULT_PROBS = np.array([0.31, 0.45, 0.15, 0.09])  # 1, 2, 3, 4 adults per household
+_MASK64 = (1 << 64) - 1
+
+
+def _mix(x: np.ndarray) -> np.ndarray:
+    """Scramble uint64 values in place with the splitmix64 finaliser (wrapping arithmetic)."""
+    tmp = np.empty_like(x)
+    for shift, mult in ((30, 0xBF58476D1CE4E5B9), (27, 0x94D049BB133111EB)):
+        np.right_shift(x, np.uint64(shift), out=tmp)
+        np.bitwise_xor(x, tmp, out=x)
+        np.multiply(x, np.uint64(mult), out=x)
+    np.right_shift(x, np.uint64(31), out=tmp)
+    np.bitwise_xor(x, tmp, out=x)
+    return x
+
+
+def _key(seed: int, stream: int) -> np.uint64:
+    """Return the 64-bit key of one (seed, stream) pair, computed with Python integers."""
+    k = (seed * 0x9E3779B97F4A7C15 + stream * 0xD1B54A32D192ED03 + 0x632BE59BD9B4E019) & _MASK64
+    return np.uint64(k)
+
+
+class Draw:
+    """Counter-based random numbers: one independent uniform per (id, stream).
+
+    Parameters
+    ----------
+    ids : non-negative integer ids (person, household or cluster ids).
+    seed : the population seed.
+    """
+
+    def __init__(self, ids: np.ndarray, seed: int) -> None:
+        self.ids = np.asarray(ids, dtype=np.uint64)
+        self.seed = seed
+
+    def u(self, stream: int) -> np.ndarray:
+        """Return uniforms in (0, 1) for *stream*."""
+        x = self.ids * np.uint64(0x9E3779B97F4A7C15)
+        x += _key(self.seed, stream)
+        x = _mix(x)
+        x >>= np.uint64(11)
+        out = x.astype(np.float64)
+        out += 0.5
+        out *= 1.0 / (1 << 53)
+        return out
+
+    def z(self, stream: int) -> np.ndarray:
+        """Return standard normal deviates for *stream*."""
+        return np.asarray(ndtri(self.u(stream)), dtype=np.float64)
+
+
+@dataclass(frozen=True, eq=False)
+class Frame:
+    """The sampling frame: strata, clusters and household counts.
+
+    Attributes
+    ----------
+    seed : population seed.
+    scale : multiplier of every cluster's household count (1 = the standard population).
+    strat_district, strat_urban : district (1-6) and urbanicity band (1-4) of each stratum.
+    strat_psus : number of PSUs the design selects in each stratum (2-6).
+    clus_stratum : stratum index (0-based) of each cluster, clusters sorted by stratum.
+    clus_households : households in each cluster.
+    clus_start : first household id of each cluster, plus the total at the end.
+    """
+
+    seed: int
+    scale: float
+    strat_district: np.ndarray
+    strat_urban: np.ndarray
+    strat_psus: np.ndarray
+    clus_stratum: np.ndarray
+    clus_households: np.ndarray
+    clus_start: np.ndarray
+
+    @property
+    def n_strata(self) -> int:
+        """Number of strata."""
+        return int(self.strat_district.size)
+
+    @property
+    def n_households(self) -> int:
+        """Number of households in the population."""
+        return int(self.clus_start[-1])
+
+    def stratum_households(self) -> np.ndarray:
+        """Return households per stratum."""
+        return np.bincount(self.clus_stratum, self.clus_households, self.n_strata)
+
+
+@lru_cache(maxsize=8)
+def build_frame(seed: int = POPULATION_SEED, scale: float = 1.0) -> Frame:
+    """Return the frame of the population with *seed*, cluster sizes multiplied by *scale*."""
+    rng = np.random.default_rng([seed, 1])
+    areas = np.repeat(np.arange(6), AREAS_PER_DISTRICT)
+    area_share = _DISTRICT_SHARE[areas] * rng.dirichlet(np.full(13, 6.0))
+    area_share /= area_share.sum()
+    share = (area_share[:, None] * _URBAN_MIX[areas]).ravel()
+    households = share * POPULATION_ADULTS / float(np.dot(_ADULT_PROBS, np.arange(1, 5)))
+    psus = np.clip(np.rint(1.5 + 4.5 * np.sqrt(share / share.max())), 2, 6).astype(np.int64)
+    n_clus = 3 * psus + rng.integers(0, 3, psus.size)
+    clus_stratum = np.repeat(np.arange(psus.size), n_clus)
+    rel = rng.uniform(0.75, 1.3, clus_stratum.size)
+    rel /= np.bincount(clus_stratum, rel)[clus_stratum]
+    sizes = np.maximum(np.rint(rel * households[clus_stratum] * scale), 20).astype(np.int64)
+    start = np.concatenate([[0], np.cumsum(sizes)])
+    return Frame(
+        seed=seed,
+        scale=scale,
+        strat_district=np.repeat(np.arange(1, 7), np.array(AREAS_PER_DISTRICT) * 4),
+        strat_urban=np.tile(np.arange(1, 5), 13),
+        strat_psus=psus,
+        clus_stratum=clus_stratum,
+        clus_households=sizes,
+        clus_start=start,
+    )
+
+
+def household_adults(household: np.ndarray, seed: int) -> np.ndarray:
+    """Return the number of adults (1-4) living in each household."""
+    u = Draw(household, seed).u(1)
+    return 1 + np.searchsorted(np.cumsum(_ADULT_PROBS)[:-1], u, side="right")
+
+
+def age_group(age: np.ndarray) -> np.ndarray:
+    """Return the 5 age groups 18-29, 30-44, 45-59, 60-74, 75+ coded 1-5."""
+    return 1 + np.searchsorted(np.array([30, 45, 60, 75]), age, side="right")
+
+
+def person_frame(frame: Frame, pid: np.ndarray) -> dict[str, np.ndarray]:
+    """Return where each person lives and who they are: the inputs of every item.
+
+    Returns a dict with ``household``, ``cluster`` (global index), ``stratum`` (0-based),
+    ``district``, ``urban``, ``adults``, ``age``, ``sex``, ``health`` (latent, N(0,1)-ish,
+    higher = healthier) and ``cz`` (a cluster-level N(0,1) effect shared by neighbours).
+    """
+    pid = np.asarray(pid, dtype=np.int64)
+    household = pid >> 3
+    cluster = np.searchsorted(frame.clus_start, household, side="right") - 1
+    stratum = frame.clus_stratum[cluster]
+    district = frame.strat_district[stratum]
+    urban = frame.strat_urban[stratum]
+    d = Draw(pid, frame.seed)
+    cz = Draw(cluster, frame.seed).z(2)
+    # 18-64 uniform, then a thinning tail to 99; rural districts and bands are older
+    young = 0.80 - 0.012 * (district - 1) - 0.02 * (urban - 1)
+    u = d.u(3)
+    tail = 65 + np.floor(35 * ((u - young) / (1 - young)).clip(0, 1 - 1e-12) ** 1.7)
+    age = np.where(u < young, 18 + np.floor(47 * u / young), tail).astype(np.int64)
+    health = 0.35 * cz + 0.9 * d.z(4) - 0.022 * (age - 45) + 0.12 * (2.5 - urban) / 1.5
+    return {
+        "household": household,
+        "cluster": cluster,
+        "stratum": stratum,
+        "district": district,
+        "urban": urban,
+        "adults": household_adults(household, frame.seed),
+        "age": age,
+        "sex": np.where(d.u(5) < 0.485, 1, 2),
+        "health": health,
+        "cz": cz,
+    }
+
+
+# ---------------------------------------------------------------------------------------------
+# Items: raw codes as the file stores them (NaN = blank, not asked / not measured)
+
+
+def _sig(x: np.ndarray) -> np.ndarray:
+    """Return the logistic function of *x*."""
+    return np.asarray(1.0 / (1.0 + np.exp(-x)), dtype=np.float64)
+
+
+def _nonresponse(raw: np.ndarray, u: np.ndarray, dk: object, ref: object, digits: int) -> None:
+    """Replace answers by don't know (u < dk) or refused (dk <= u < dk + ref) codes in place."""
+    dk_code, ref_code = {1: (7, 9), 2: (77, 99), 3: (777, 999)}[digits]
+    dk_p = np.asarray(dk, dtype=np.float64)
+    ref_p = np.asarray(ref, dtype=np.float64)
+    asked = ~np.isnan(raw)
+    raw[asked & (u < dk_p)] = dk_code
+    raw[asked & (u >= dk_p) & (u < dk_p + ref_p)] = ref_code
+
+
+def _cut(score: np.ndarray, cuts: list[float]) -> np.ndarray:
+    """Return categories 1..len(cuts)+1, category 1 for the highest scores."""
+    return (len(cuts) + 1 - np.searchsorted(np.array(cuts), score)).astype(np.float64)
+
+
+def _yes(p: np.ndarray) -> np.ndarray:
+    """Return a 1 = yes / 2 = no float code from a uniform-vs-probability comparison flag."""
+    return np.where(p, 1.0, 2.0)
+
+
+def _only(raw: np.ndarray, asked: np.ndarray) -> np.ndarray:
+    """Blank *raw* where the respondent was not asked the item."""
+    return np.where(asked, raw, np.nan)
+
+
+def _pick(u: np.ndarray, probs: np.ndarray, group: np.ndarray) -> np.ndarray:
+    """Return categories 1..k drawn with probabilities ``probs[group]`` (rows sum to 1)."""
+    cum = np.cumsum(probs, axis=1)[group, :-1]
+    return np.asarray(1.0 + (u[:, None] > cum).sum(axis=1), dtype=np.float64)
+
+
+# rows: age groups 18-29 .. 75+; columns: categories in code order
+_MARITAL_P = np.array(
+    [
+        [0.20, 0.22, 0.03, 0.00, 0.55],
+        [0.52, 0.15, 0.10, 0.01, 0.22],
+        [0.60, 0.08, 0.17, 0.04, 0.11],
+        [0.58, 0.05, 0.16, 0.14, 0.07],
+        [0.42, 0.03, 0.10, 0.40, 0.05],
+    ]
+)
+# paid work, self-employed, seeking work, home/family, student, retired, unable, other
+_EMPLOY_P = np.array(
+    [
+        [0.50, 0.03, 0.09, 0.06, 0.27, 0.00, 0.02, 0.03],
+        [0.68, 0.09, 0.05, 0.09, 0.02, 0.00, 0.04, 0.03],
+        [0.62, 0.11, 0.04, 0.07, 0.01, 0.06, 0.06, 0.03],
+        [0.25, 0.08, 0.02, 0.05, 0.00, 0.53, 0.05, 0.02],
+        [0.03, 0.02, 0.00, 0.02, 0.00, 0.88, 0.04, 0.01],
+    ]
+)
+
+
+def _days(u: np.ndarray, p_none: np.ndarray, v: np.ndarray, top: int, none: int) -> np.ndarray:
+    """Return a 1..top count (skewed by *v* in (0, 1)) or the *none* code with prob *p_none*."""
+    n = 1 + np.floor(top * v ** 1.8).clip(0, top - 1)
+    return np.where(u < p_none, float(none), n)
+
+
+class _Gen:
+    """Generate the raw codes of the core items for a set of persons."""
+
+    def __init__(self, frame: Frame, pid: np.ndarray) -> None:
+        self.p = person_frame(frame, pid)
+        self.d = Draw(pid, frame.seed)
+        self.old = (self.p["age"] - 45) / 20.0
+        self.h = self.p["health"]
+        self.out: dict[str, np.ndarray] = {}
+
+    def u(self, stream: int) -> np.ndarray:
+        """Return the person's uniforms for *stream*."""
+        return self.d.u(stream)
+
+    def put(self, name: str, raw: np.ndarray, dk: object, ref: object, digits: int | None) -> None:
+        """Store *raw* as item *name*, with don't know / refused codes of the *digits* family."""
+        raw = np.asarray(raw, dtype=np.float64).copy()
+        if digits is not None:
+            _nonresponse(raw, self.u(hash_stream(name)), dk, ref, digits)
+        self.out[name] = raw
+
+    def health(self) -> None:
+        """Self-rated health, unhealthy days, sleep, care access."""
+        h, old, u = self.h, self.old, self.u
+        self.put("GENHLTH", _cut(h + 0.6 * self.d.z(10), [-1.7, -0.8, 0.2, 1.1]), 0.008, 0.004, 1)
+        self.put("PHYSDAYS", _days(u(11), _sig(1.1 + 1.1 * h), u(12), 30, 88), 0.02, 0.008, 2)
+        ment = _days(u(13), _sig(0.9 + 0.6 * h + 0.5 * old), u(14), 30, 88)
+        self.put("MENTDAYS", ment, 0.018, 0.012 + 0.01 * (old > 0), 2)
+        sleep = np.clip(np.rint(7.0 + 0.9 * self.d.z(15) + 0.25 * h), 3, 14)
+        self.put("SLEEPHRS", sleep, 0.012, 0.004, 2)
+        for name, stream, shift in (("CHECKUP", 16, 0.0), ("DENTAL", 17, 0.5)):
+            s = self.d.z(stream) + 0.5 * old - shift
+            cat = _cut(s, [-1.9, -1.3, -0.8, -0.4])  # 1 = within a year ... 5 = never
+            cat = np.where(cat == 5, 8.0, cat)
+            self.put(name, cat, 0.015, 0.004, 1)
+        self.put("HAS_CLIN", _yes(u(18) < _sig(1.2 + 0.6 * old + 0.2 * h)), 0.004, 0.002, 1)
+        insured = u(19) < _sig(1.8 + 0.8 * old - 0.15 * self.p["urban"])
+        self.put("INSURED", _yes(insured), 0.006, 0.003, 1)
+        self.put("COSTBAR", _yes(u(20) < _sig(-2.0 - 0.5 * h + 1.2 * ~insured)), 0.004, 0.003, 1)
+
+    def conditions(self) -> None:
+        """Diagnosed conditions with their follow-ups."""
+        h, old, u = self.h, self.old, self.u
+        bp = np.where(u(21) < _sig(-1.3 + 1.1 * old - 0.4 * h), 1.0, 2.0)
+        preg = (self.p["sex"] == 2) & (self.p["age"] < 45) & (u(22) < 0.04) & (bp == 2)
+        self.put("BPHIGH", np.where(preg, 3.0, bp), 0.006, 0.003, 1)
+        bpmed = _yes(u(23) < _sig(0.4 + 0.9 * old))
+        self.put("BPMEDS", _only(bpmed, self.out["BPHIGH"] == 1), 0.01, 0.004, 1)
+        chk = _yes(u(24) < _sig(1.2 + 1.0 * old))
+        self.put("CHOL_CHK", chk, 0.03, 0.004, 1)
+        chol_hi = _yes(u(25) < _sig(-0.9 + 0.8 * old - 0.3 * h))
+        self.put("CHOL_HI", _only(chol_hi, self.out["CHOL_CHK"] == 1), 0.015, 0.004, 1)
+        dia = np.where(u(26) < _sig(-2.6 + 0.9 * old - 0.5 * h), 1.0, 2.0)
+        self.put("DIABETES", np.where((dia == 2) & (u(27) < 0.05), 3.0, dia), 0.005, 0.002, 1)
+        self.put("ASTHMA", _yes(u(28) < _sig(-2.0 - 0.3 * h)), 0.005, 0.002, 1)
+        self.put("ARTHRIT", _yes(u(29) < _sig(-1.4 + 1.2 * old - 0.3 * h)), 0.008, 0.002, 1)
+        pain = _cut(-(0.8 * h + self.d.z(30)), [-0.3, 0.9])  # 1 = a lot, 3 = not at all
+        self.put("PAIN_LIM", _only(pain, self.out["ARTHRIT"] == 1), 0.01, 0.004, 1)
+        self.put("DEPRESS", _yes(u(31) < _sig(-1.6 - 0.5 * h - 0.3 * old)), 0.006, 0.01, 1)
+
+    def tobacco(self) -> None:
+        """The tobacco screener and the items only its qualifiers are asked."""
+        u, old, age = self.u, self.old, self.p["age"]
+        district_effect = np.array([0, -0.3, -0.1, 0.2, 0.35, 0.5])[self.p["district"] - 1]
+        male = (self.p["sex"] == 1).astype(float)
+        ever = u(40) < _sig(-1.0 + 0.4 * male + 0.25 * old - 0.25 * self.h + district_effect)
+        self.put("TOB_EVER", _yes(ever), 0.004, 0.004, 1)
+        asked = self.out["TOB_EVER"] == 1
+        now = 4.0 - _cut(self.d.z(41) + 0.6 * old, [-0.4, -0.1])  # 1 every day ... 3 not at all
+        self.put("TOB_NOW", _only(now, asked), 0.004, 0.004, 1)
+        start = np.minimum(np.clip(np.rint(17 + 3.5 * self.d.z(42) ** 2), 10, 70), age)
+        self.put("TOB_AGE", _only(start, asked), 0.06 + 0.04 * (old > 0.5), 0.01, 2)
+        current = (self.out["TOB_NOW"] == 1) | (self.out["TOB_NOW"] == 2)
+        cigs = np.clip(np.rint(np.exp(2.4 + 0.6 * self.d.z(44))), 1, 60)
+        cigs = np.where(u(43) < 0.12, 88.0, cigs)  # 88: uses tobacco, but no cigarettes
+        self.put("CIGS_DAY", _only(cigs, current), 0.03, 0.01, 2)
+        self.put("TOB_QUIT", _only(_yes(u(45) < 0.45), current), 0.01, 0.005, 1)
+
+    def alcohol(self) -> None:
+        """Drinking days and, for drinkers, amounts."""
+        u = self.u
+        p_none = _sig(-0.2 + 0.3 * self.old + 0.2 * (self.p["sex"] == 2))
+        self.put("ALC_DAYS", _days(u(50), p_none, u(51), 30, 88), 0.015, 0.01, 2)
+        drank = self.out["ALC_DAYS"] <= 30
+        drinks = np.clip(np.rint(np.exp(0.7 + 0.5 * self.d.z(52) - 0.2 * self.old)), 1, 20)
+        self.put("ALC_DRNK", _only(drinks, drank), 0.02, 0.01, 2)
+        binge = _days(u(53), _sig(0.6 + 0.8 * self.old), u(54), 20, 88)
+        self.put("BINGE", _only(binge, drank), 0.02, 0.01, 2)
+
+    def diet(self) -> None:
+        """Frequencies coded with a unit digit: 1xx per day ... 4xx per year, 888 never."""
+        for name, stream, mu, sd in (
+            ("FRUIT", 60, 5.4, 1.1),
+            ("VEG", 62, 5.8, 0.9),
+            ("SODA", 64, 3.6, 1.8),
+            ("FASTFOOD", 66, 3.2, 1.2),
+        ):
+            rate = np.exp(mu + sd * self.d.z(stream) + 0.15 * self.h)
+            rate = np.where(self.u(stream + 1) < 0.04, 0.0, rate)
+            ref = 0.004 + 0.006 * (self.old > 1)
+            self.put(name, unit_code(rate, self.u(stream + 2)), 0.025, ref, 3)
+
+    def activity(self) -> None:
+        """Physical activity days and minutes (888 = none), sitting and screen time."""
+        u, h, old = self.u, self.h, self.old
+        for name, mins, stream, base in (
+            ("VIG_DAYS", "VIG_MIN", 70, -0.2),
+            ("MOD_DAYS", "MOD_MIN", 73, 0.6),
+        ):
+            days = np.clip(np.ceil(7 * u(stream) ** (1.2 - 0.2 * h)), 1, 7)
+            raw = np.where(u(stream + 1) < _sig(-(base + 0.5 * h - 0.6 * old)), 888.0, days)
+            self.put(name, raw, 0.02, 0.004, 3)
+            minutes = np.clip(5 * np.rint(np.exp(3.5 + 0.6 * self.d.z(stream + 2)) / 5), 5, 600)
+            self.put(mins, _only(minutes, self.out[name] <= 7), 0.04, 0.004, 3)
+        walk = np.clip(np.ceil(7 * u(76) ** 0.7), 1, 7)
+        self.put("WALK_DAY", np.where(u(77) < 0.12 + 0.1 * (old > 1), 888.0, walk), 0.02, 0.004, 3)
+        self.put("EXERANY", _yes(u(78) < _sig(1.0 + 0.7 * h - 0.3 * old)), 0.003, 0.002, 1)
+        sit = np.clip(np.rint(6 + 2.5 * self.d.z(79) + 0.8 * old), 1, 20)
+        self.put("SIT_HRS", sit, 0.04, 0.006, 2)
+        screen = np.clip(np.rint(np.exp(1.0 + 0.6 * self.d.z(80) - 0.2 * old)), 1, 16)
+        self.put("SCREEN_H", np.where(u(81) < 0.05, 88.0, screen), 0.02, 0.005, 2)
+
+    def body(self) -> None:
+        """Self-reported height and weight; measured blood pressure and waist."""
+        z, u, old = self.d.z, self.u, self.old
+        female = self.p["sex"] == 2
+        ht = np.rint(np.where(female, 163, 177) + 7 * z(90))
+        bmi = 26.5 + 1.2 * old - 1.8 * self.h + 3.5 * z(91)
+        wt = np.clip(np.rint(bmi * (ht / 100) ** 2), 35, 250)
+        self.put("HT_CM", ht, 0.01, 0.004, 3)
+        self.put("WT_KG", wt, 0.01, 0.01 + 0.025 * female, 3)
+        # measurement visit missed: more often far from the clinics (urban band) and when young
+        missed = u(92) < 0.05 + 0.03 * (self.p["urban"] - 1) + 0.04 * (old < 0)
+        sys_bp = np.rint(2 * (121 + 9 * old + 4 * (bmi - 27) / 3.5 + 13 * z(93))) / 2
+        sys_bp = sys_bp.clip(80, 250)
+        self.put("SYS_BP", np.where(missed, np.nan, sys_bp), 0, 0, None)
+        dia_bp = (np.rint(2 * (76 + 0.3 * (sys_bp - 121) + 7 * z(94))) / 2).clip(40, 140)
+        self.put("DIA_BP", np.where(missed, np.nan, dia_bp), 0, 0, None)
+        waist = np.round(np.where(female, 86, 96) + 2.4 * (bmi - 27) + 6 * z(95), 1).clip(55, 180)
+        self.put("WAIST_CM", np.where(missed | (u(96) < 0.03), np.nan, waist), 0, 0, None)
+
+    def social(self) -> None:
+        """Living arrangement, main activity, schooling, income, household, flu, wellbeing."""
+        u, z, old, age = self.u, self.d.z, self.old, self.p["age"]
+        grp = age_group(age) - 1
+        self.put("MARITAL", _pick(u(100), _MARITAL_P, grp), 0.002, 0.01, 1)
+        emp = _pick(u(102), _EMPLOY_P, grp)
+        self.put("EMPLOY", emp, 0.003, 0.006, 2)
+        educ = 7.0 - _cut(z(105) + 0.3 * self.h - 0.2 * old, [-1.2, -0.3, 0.4, 1.3, 1.9])
+        self.put("EDUC", educ, 0.0, 0.008, 1)
+        score = z(106) + 0.3 * self.h + 0.2 * self.p["cz"]
+        inc = 9.0 - _cut(score, [-1.4, -0.9, -0.4, 0.0, 0.5, 1.0, 1.6])
+        self.put("INCOME", inc, 0.05 + 0.03 * (old > 1), 0.04 + 0.08 * (old > 0.7), 2)
+        kids = np.clip(np.rint(np.exp(0.3 + 0.5 * z(107))), 1, 9)
+        self.put("HH_KIDS", np.where(u(108) < _sig(-0.2 + 1.5 * old), 88.0, kids), 0.0, 0.01, 2)
+        self.put("FLU_VAX", _yes(u(109) < _sig(-0.4 + 1.0 * old)), 0.01, 0.003, 1)
+        month = np.clip(9 + np.floor(4 * u(110) ** 1.5), 9, 12)
+        month = np.where(u(111) < 0.1, 1 + np.floor(8 * u(112)), month)
+        self.put("FLU_MON", _only(month, self.out["FLU_VAX"] == 1), 0.08, 0.005, 2)
+        lonely = 6.0 - _cut(z(113) + 0.5 * self.h, [-1.8, -1.0, 0.0, 1.0])
+        self.put("LONELY", lonely, 0.01, 0.01, 1)
+        self.put("FOODINS", 4.0 - _cut(z(114) + 0.6 * self.h, [-2.0, -1.2]), 0.006, 0.01, 1)
+        self.put("HOUSING", _cut(z(115) + 0.9 * old, [-1.8, -0.2]), 0.003, 0.006, 1)
+        work = (self.out["EMPLOY"] == 1) | (self.out["EMPLOY"] == 2)
+        minutes = np.clip(np.rint(np.exp(3.0 + 0.6 * z(116))), 1, 180)
+        commute = np.where(u(117) < 0.15, 888.0, minutes)
+        self.put("COMMUTE", _only(commute, work), 0.01, 0.006, 3)
+        belt = _cut(z(118) + 0.4 * self.h, [-2.2, -1.7, -1.2, -0.8])  # 1 = always (high score)
+        self.put("SEATBLT", np.where(u(119) < 0.015, 8.0, belt), 0.003, 0.002, 1)
+
+    def interview(self) -> None:
+        """Interview facts and household composition."""
+        u = self.u
+        mode = 1 + np.searchsorted(np.array([0.45, 0.85]), u(120) - 0.1 * self.old)
+        self.out["INT_MODE"] = mode.astype(float)
+        self.out["INT_MON"] = (1 + np.floor(12 * u(121))).astype(float)
+        self.out["HH_ADULT"] = self.p["adults"].astype(float)
+
+
+def hash_stream(name: str) -> int:
+    """Return a stable stream number for an item name (independent of PYTHONHASHSEED)."""
+    return 1000 + sum((i + 1) * ord(c) for i, c in enumerate(name)) * 31 % 1_000_003
+
+
+def unit_code(rate: np.ndarray, u: np.ndarray) -> np.ndarray:
+    """Code a per-year rate as 1xx/day, 2xx/week, 3xx/month, 4xx/year (888 = never).
+
+    The respondent reports in the finest natural unit, or (with probability 1/4) in the next
+    coarser unit when the count still fits in two digits.
+    """
+    factors = np.array([365.0, 52.0, 12.0, 1.0])
+    natural = np.searchsorted(-factors, -np.maximum(rate, 1.0), side="left").clip(0, 3)
+    coarser = np.minimum(natural + 1, 3)
+    fits = np.rint(rate / factors[coarser]) <= 99
+    unit = np.where((u < 0.25) & fits, coarser, natural)
+    count = np.clip(np.rint(rate / factors[unit]), 1, 99)
+    return np.where(rate <= 0, 888.0, 100.0 * (unit + 1) + count)
+
+
+def person_items(frame: Frame, pid: np.ndarray) -> dict[str, np.ndarray]:
+    """Return the raw codes of every core item for persons *pid* (NaN = blank).
+
+    Also returns the domain variables ``AGE_YRS``, ``AGE_GRP``, ``SEX``, ``DISTRICT``,
+    ``URBAN`` and ``HH_ADULT``.
+    """
+    g = _Gen(frame, pid)
+    g.out.update(
+        AGE_YRS=g.p["age"].astype(float),
+        AGE_GRP=age_group(g.p["age"]).astype(float),
+        SEX=g.p["sex"].astype(float),
+        DISTRICT=g.p["district"].astype(float),
+        URBAN=g.p["urban"].astype(float),
+    )
+    for part in (g.interview, g.health, g.conditions, g.tobacco, g.alcohol, g.diet,
+                 g.activity, g.body, g.social):
+        part()
+    return g.out
