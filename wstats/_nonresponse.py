@@ -1,0 +1,470 @@
+"""Item nonresponse: why values are missing, by reason and domain, and what it could change.
+
+:func:`nonresponse` breaks every item down by missing reason (unweighted counts, weighted
+shares) and gives its item nonresponse rate among the respondents who were asked, with a
+design-based standard error and interval. :func:`bounds` gives worst-case (Manski-style)
+intervals for the proportions of a categorical item if the don't-know and refused answers had
+been given.
+
+Both reuse the estimation engine rather than a second copy of the domain and variance code:
+they build indicator columns (one per item, valid exactly on the rows that form the
+denominator) and estimate proportions of them with :func:`wstats._estimate.estimate`, so the
+domains, degrees of freedom, replicate weights and Korn-Graubard intervals are the same ones
+the estimates use. Counts and weighted shares by reason are one ``bincount`` per item over
+the engine's own domains (population row first, then the crossed by-cells).
+
+Conventions (each changes numbers; see ``docs/nonresponse.md``):
+
+- Asked = every row of the domain whose reason is not ``skipped`` (legitimate skip / not in
+  the item's universe) nor another reason the caller names in ``not_asked`` (e.g. a codebook's
+  ``not_applicable``). NCES Statistical Standards, Standard 1-3: item response rate =
+  responses / (unit respondents - legitimate skips).
+- Nonresponse = ``dont_know``, ``refused``, ``missing`` and every reason a codebook or file
+  added (unless named in ``not_asked``); plus ``invalid`` when ``count_invalid`` (the
+  default). With ``count_invalid=False`` an invalid answer counts as an answer (it is in the
+  denominator, not in the numerator).
+- Weighted with the design's final analysis weight (NCES uses base weights; say so when it
+  matters). Rows the design drops (``drop_incomplete``) are not counted.
+- Shares are weighted shares among ALL rows of the domain (skipped included); they sum to 1.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Mapping, Sequence
+from dataclasses import dataclass, field, replace
+from typing import TYPE_CHECKING, Any
+
+import numpy as np
+
+from wstats._column import Dataset, DecodedColumn
+from wstats._reasons import VALID
+from wstats._results import _plain
+from wstats.errors import EstimationError
+
+if TYPE_CHECKING:
+    import numpy.typing as npt
+    import pandas as pd
+
+    from wstats._design import Design
+    from wstats._results import EstimateTable
+
+__all__ = ["NCES_MIN_RESPONSE", "NONRESPONSE_RULES", "NonresponseTable", "bounds",
+           "bounds_records", "nonresponse", "nonresponse_reasons"]
+
+#: NCES Statistical Standards, Standard 1-3: report (analyse) items whose response rate is
+#: below this.
+NCES_MIN_RESPONSE = 0.70
+_NCES = "NCES Statistical Standards, Standard 1-3 (item response rates)"
+#: flag id -> (description, source) for the flags of a nonresponse table.
+NONRESPONSE_RULES: dict[str, tuple[str, str]] = {
+    "response<70%": ("item response rate below 70% among those asked; analyse the "
+                     "nonresponse for bias", _NCES),
+    "none-asked": ("no row of the domain was asked the item (all skipped)",
+                   "common practice, no source"),
+}
+# Suffixes of the indicator columns; ':' cannot occur in a codebook or file variable name.
+_RATE, _UNKNOWN = ":nonresponse", ":unknown"
+
+
+@dataclass(frozen=True, eq=False)
+class NonresponseTable:
+    """Item nonresponse by reason, per variable and domain.
+
+    Attributes
+    ----------
+    frame : one row per variable x domain (population first, then the by-cells), columns
+        ``variable``, the by-variables (level shown; None on the population row), ``n_rows``
+        (rows in the domain), ``asked`` (rows not ``skipped`` nor of another ``not_asked``
+        reason), ``count_<reason>`` (unweighted
+        rows per reason, every reason of the vocabulary), ``share_<reason>`` (weighted share
+        among all domain rows; NaN in an empty domain), ``nonresponse_rate`` (weighted share
+        of the asked rows that did not answer; NaN when none was asked), ``se``, ``ci_low``,
+        ``ci_high`` (design-based, Korn-Graubard at ``level``), ``df``, ``flags`` (tuple of
+        ids of :data:`NONRESPONSE_RULES`).
+    by : the by-variables, in the order given.
+    reasons : every reason name of the vocabulary, in code order.
+    level : confidence level of the intervals.
+    design : the design summary (``BoundDesign.summary()``).
+    settings : the definition used (``nonresponse_reasons``, ``count_invalid``,
+        ``denominator``, ``weight``, ``proportion_ci``, ``level``, ``definition``, ``title``).
+    """
+
+    frame: pd.DataFrame
+    by: tuple[str, ...] = ()
+    reasons: tuple[str, ...] = ()
+    level: float = 0.95
+    design: Mapping[str, Any] = field(default_factory=dict)
+    settings: Mapping[str, Any] = field(default_factory=dict)
+
+    def to_pandas(self) -> pd.DataFrame:
+        """Return a copy of the frame."""
+        return self.frame.copy()
+
+    def records(self) -> list[dict[str, Any]]:
+        """Return JSON-ready rows: ``variable``, ``group``, counts and shares by reason, rate.
+
+        Returns
+        -------
+        list of dict
+            Keys ``variable``, ``group`` (by-variable -> level, None for the population),
+            ``n_rows``, ``asked``, ``counts`` {reason: n}, ``weighted_shares`` {reason: share},
+            ``nonresponse_rate``, ``response_rate``, ``se``, ``ci_low``, ``ci_high``, ``df``,
+            ``flags``. NaN becomes None, an infinite df the string ``"inf"``.
+        """
+        out: list[dict[str, Any]] = []
+        for row in self.frame.to_dict(orient="records"):
+            group = {b: _plain(row[b]) for b in self.by}
+            rate = _plain(row["nonresponse_rate"])
+            df = _plain(row["df"])
+            out.append({
+                "variable": row["variable"],
+                "group": None if all(v is None for v in group.values()) else group,
+                "n_rows": int(row["n_rows"]),
+                "asked": int(row["asked"]),
+                "counts": {r: int(row[f"count_{r}"]) for r in self.reasons},
+                "weighted_shares": {r: _plain(row[f"share_{r}"]) for r in self.reasons},
+                "nonresponse_rate": rate,
+                "response_rate": None if rate is None else 1.0 - rate,
+                "se": _plain(row["se"]),
+                "ci_low": _plain(row["ci_low"]),
+                "ci_high": _plain(row["ci_high"]),
+                "df": "inf" if isinstance(df, float) and np.isinf(df) else df,
+                "flags": list(row["flags"]),
+            })
+        return out
+
+
+def nonresponse_reasons(data: Dataset, count_invalid: bool = True,
+                        not_asked: Sequence[str] = ("skipped",)) -> tuple[str, ...]:
+    """Return the reasons counted as item nonresponse for *data*'s vocabulary.
+
+    Parameters
+    ----------
+    data : the dataset (its vocabulary may hold reasons a codebook or file added).
+    count_invalid : count ``invalid`` (out-of-range) answers as nonresponse.
+    not_asked : reasons meaning the item was not asked (out of the denominator).
+
+    Returns
+    -------
+    tuple of str
+        Every reason except ``valid`` and the *not_asked* ones (and ``invalid`` unless
+        counted).
+
+    Examples
+    --------
+    >>> nonresponse_reasons(Dataset.from_arrays({"x": [1.0]}), count_invalid=False)
+    ('dont_know', 'refused', 'missing')
+    """
+    drop = {"valid", *not_asked} | (set() if count_invalid else {"invalid"})
+    return tuple(r for r in data.vocabulary.names if r not in drop)
+
+
+def nonresponse(
+    data: Dataset,
+    design: Design,
+    variables: Sequence[str],
+    *,
+    by: Sequence[str] = (),
+    where: str | None = None,
+    level: float = 0.95,
+    count_invalid: bool = True,
+    sort_worst: bool = False,
+    not_asked: Sequence[str] = ("skipped",),
+) -> NonresponseTable:
+    """Count missing values by reason and estimate item nonresponse rates.
+
+    Parameters
+    ----------
+    data : decoded dataset.
+    design : the sample design (weights, strata, PSUs or replicates).
+    variables : items to break down.
+    by : variables whose crossed levels form domains (the population row comes first).
+    where : condition (codebook expression language) defining the population domain.
+    level : confidence level of the rate's interval.
+    count_invalid : count ``invalid`` answers as nonresponse (default) or as answers.
+    sort_worst : order the variables by their population nonresponse rate, highest first
+        (domains stay under their variable).
+    not_asked : reasons that mean the item was not asked (out of its universe): left out of
+        the denominator like ``skipped``, which is always among them.
+
+    Returns
+    -------
+    NonresponseTable
+
+    Raises
+    ------
+    ColumnError, EstimationError, DesignError
+        For an unknown variable, a bad level or condition, or an unusable design.
+
+    Examples
+    --------
+    >>> from wstats._design import Design
+    >>> ds = Dataset.from_arrays({"y": [1.0, float("nan"), 3.0, 4.0], "w": [1.0] * 4})
+    >>> t = nonresponse(ds, Design("w"), ["y"])
+    >>> float(t.frame["nonresponse_rate"][0])
+    0.25
+    """
+    from wstats._estimate import estimate
+    from wstats._reliability import STANDARDS
+
+    names = _check_variables(data, variables)
+    skip = tuple(dict.fromkeys(("skipped", *not_asked)))
+    counted = nonresponse_reasons(data, count_invalid, skip)
+    codes = np.array([data.vocabulary.code(r) for r in counted], dtype=np.int8)
+    skip_codes = np.array([data.vocabulary.code(r) for r in skip], dtype=np.int8)
+    extra = {f"{v}{_RATE}": _rate_column(data[v], codes, skip_codes) for v in names}
+    aug = _augmented(data, extra)
+    est = estimate(aug, design, list(extra), statistics="proportion", by=by, where=where,
+                   level=level, reliability=STANDARDS["none"])
+    sums = _reason_sums(data, design, names, by, where)
+    frame = _assemble(est, sums, data.vocabulary.names, by, skip_codes)
+    if sort_worst:
+        frame = _worst_first(frame, names)
+    settings = _settings(counted, skip, count_invalid, est, design)
+    return NonresponseTable(frame, tuple(by), data.vocabulary.names, est.level, est.design,
+                            settings)
+
+
+def bounds(
+    data: Dataset,
+    design: Design,
+    variables: str | Sequence[str],
+    *,
+    by: Sequence[str] = (),
+    where: str | None = None,
+    level: float = 0.95,
+    reasons: Sequence[str] = ("dont_know", "refused"),
+) -> pd.DataFrame:
+    """Worst-case bounds for the proportions of a categorical item under item nonresponse.
+
+    For each level L and domain, with weighted sums over the domain's valid rows (W_valid),
+    the rows with level L (W_L) and the rows whose reason is in *reasons* (W_unk, respondents
+    who were asked but did not say): ``lower = W_L / (W_valid + W_unk)`` (none of them has L),
+    ``upper = (W_L + W_unk) / (W_valid + W_unk)`` (all of them have L). Any value the
+    non-respondents could have given lies in [lower, upper]; it always holds the estimate
+    among valid answers. The bounds describe identification only (no sampling error); the
+    valid-case estimate comes with its usual interval. Manski (1989), J. Human Resources
+    24:343-360; Manski (2003), *Partial Identification of Probability Distributions*, ch. 1
+    (both from memory).
+
+    Parameters
+    ----------
+    data : decoded dataset.
+    design : the sample design.
+    variables : one categorical item or several (treated as categorical whatever their kind).
+    by : domain variables (the population row comes first in each variable's block).
+    where : condition defining the population domain.
+    level : confidence level of the valid-case interval.
+    reasons : reasons whose rows could have held any level (default don't know and refused).
+
+    Returns
+    -------
+    pandas.DataFrame
+        Columns ``variable``, ``level``, the by-variables, ``estimate``, ``se``, ``ci_low``,
+        ``ci_high`` (valid-case), ``lower``, ``upper``, ``unknown_share`` (W_unk / (W_valid +
+        W_unk) = upper - lower), ``n_valid``, ``n_unknown``. ``frame.attrs`` holds ``by``,
+        ``reasons`` and ``level``. See :func:`bounds_records` for JSON.
+
+    Examples
+    --------
+    >>> from wstats._design import Design
+    >>> ds = Dataset.from_arrays({"y": [1.0, 1.0, 2.0, float("nan")], "w": [1.0] * 4})
+    >>> b = bounds(ds, Design("w"), "y", reasons=["missing"])
+    >>> [round(x, 2) for x in b.loc[0, ["estimate", "lower", "upper"]]]
+    [0.67, 0.5, 0.75]
+    """
+    from wstats._estimate import estimate
+    from wstats._reliability import STANDARDS
+
+    names = _check_variables(data, [variables] if isinstance(variables, str) else variables)
+    codes = np.array([data.vocabulary.code(r) for r in reasons], dtype=np.int8)
+    extra = {f"{v}{_UNKNOWN}": _unknown_column(data[v], codes) for v in names}
+    aug = _augmented(data, extra)
+    est = estimate(aug, design, [*names, *extra], statistics="proportion", by=by, where=where,
+                   categorical=names, level=level, reliability=STANDARDS["none"])
+    frame = _bounds_frame(est, names, list(by))
+    frame.attrs.update({"by": list(by), "reasons": list(reasons), "level": est.level})
+    return frame
+
+
+def bounds_records(frame: pd.DataFrame) -> list[dict[str, Any]]:
+    """Return the rows of a :func:`bounds` frame as JSON-ready dicts (by-columns -> ``group``).
+
+    Parameters
+    ----------
+    frame : the frame :func:`bounds` returned.
+
+    Returns
+    -------
+    list of dict
+        One dict per row; NaN becomes None.
+    """
+    by = list(frame.attrs.get("by", ()))
+    out: list[dict[str, Any]] = []
+    for row in frame.to_dict(orient="records"):
+        group = {b: _plain(row.pop(b)) for b in by}
+        rec: dict[str, Any] = {str(k): _plain(v) for k, v in row.items()}
+        rec["group"] = None if all(v is None for v in group.values()) else group
+        out.append(rec)
+    return out
+
+
+def _check_variables(data: Dataset, variables: Sequence[str]) -> list[str]:
+    """Return the variable names after checking they are in *data* (ColumnError otherwise)."""
+    names = list(dict.fromkeys(variables))
+    if not names:
+        raise EstimationError("no variables given; name at least one item")
+    for v in names:
+        data[v]  # raises ColumnError with a suggestion
+    return names
+
+
+def _indicator(col: DecodedColumn, name: str, ones: npt.NDArray[np.bool_],
+               valid: npt.NDArray[np.bool_], labels: dict[float, str]) -> DecodedColumn:
+    """Return a binary column: 1.0 where *ones*, 0.0 elsewhere, valid only where *valid*."""
+    values = np.where(valid, ones.astype(np.float64), np.nan)
+    reasons = np.where(valid, VALID, col.reasons).astype(np.int8)
+    return DecodedColumn(name, values, reasons, col.vocabulary, kind="binary",
+                         value_labels=labels)
+
+
+def _rate_column(col: DecodedColumn, counted: npt.NDArray[np.int8],
+                 skip: npt.NDArray[np.int8]) -> DecodedColumn:
+    """Return the nonresponse indicator of one item: valid where asked, 1 = did not answer."""
+    r = col.reasons
+    return _indicator(col, f"{col.name}{_RATE}", np.isin(r, counted), ~np.isin(r, skip),
+                      {0.0: "answered", 1.0: "nonresponse"})
+
+
+def _reason_sums(data: Dataset, design: Design, names: list[str], by: Sequence[str],
+                 where: str | None) -> dict[str, tuple[npt.NDArray[np.int64],
+                                                       npt.NDArray[np.float64]]]:
+    """Return per item the (domains x reasons) row counts and sums of weights.
+
+    The domains are the estimation engine's own (same rows, same order as its estimates):
+    row 0 the population, then the crossed by-cells.
+    """
+    from wstats._estimate import _domains
+
+    bound = design.bind(data)
+    domains, _ = _domains(data, bound, list(by), where)
+    k, w = len(data.vocabulary), bound.weights
+    inside, in_cell = domains.inside, domains.cell >= 0
+    size = (domains.n_cells + 1) * k
+    out: dict[str, tuple[npt.NDArray[np.int64], npt.NDArray[np.float64]]] = {}
+    for v in names:  # loop over variables; rows and domains are one bincount
+        r = bound.column(data[v]).reasons.astype(np.int64)
+        key = np.concatenate([r[inside], (domains.cell[in_cell] + 1) * k + r[in_cell]])
+        wts = np.concatenate([w[inside], w[in_cell]])
+        counts = np.bincount(key, minlength=size).reshape(-1, k).astype(np.int64)
+        weighted = np.bincount(key, wts, size).reshape(-1, k).astype(np.float64)
+        out[v] = (counts, weighted)
+    return out
+
+
+def _unknown_column(col: DecodedColumn, unknown: npt.NDArray[np.int8]) -> DecodedColumn:
+    """Return the indicator of the *unknown* reasons among valid-or-unknown rows."""
+    ones = np.isin(col.reasons, unknown)
+    return _indicator(col, f"{col.name}{_UNKNOWN}", ones, ones | (col.reasons == VALID),
+                      {0.0: "valid", 1.0: "unknown"})
+
+
+def _augmented(data: Dataset, extra: Mapping[str, DecodedColumn]) -> Dataset:
+    """Return *data* with the indicator columns added (the original columns are shared)."""
+    return replace(data, columns={**data.columns, **extra})
+
+
+def _rows(est: EstimateTable, variable: str, level: str | None = None) -> pd.DataFrame:
+    """Return the estimate rows of *variable* (and *level*), in domain order."""
+    f = est.frame
+    mask = f["variable"] == variable
+    if level is not None:
+        mask &= f["level"] == level
+    return f.loc[mask].reset_index(drop=True)
+
+
+def _assemble(est: EstimateTable, sums: Mapping[str, tuple[npt.NDArray[np.int64],
+                                                           npt.NDArray[np.float64]]],
+              reason_names: Sequence[str], by: Sequence[str],
+              skip: npt.NDArray[np.int8]) -> pd.DataFrame:
+    """Return the nonresponse frame: counts, shares and the rate, a block per variable."""
+    import pandas as pd
+
+    blocks = []
+    for v, (counts, weighted) in sums.items():
+        rate = _rows(est, f"{v}{_RATE}", "nonresponse")
+        out: dict[str, Any] = {"variable": [v] * len(rate)}
+        out.update({b: rate[b].to_numpy() for b in by})
+        out["n_rows"] = counts.sum(axis=1)
+        out["asked"] = out["n_rows"] - counts[:, skip].sum(axis=1)
+        out.update({f"count_{r}": counts[:, i] for i, r in enumerate(reason_names)})
+        total = weighted.sum(axis=1, keepdims=True)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            share = np.where(total > 0, weighted / total, np.nan)
+        out.update({f"share_{r}": share[:, i] for i, r in enumerate(reason_names)})
+        out["nonresponse_rate"] = rate["estimate"].to_numpy(dtype=np.float64)
+        for c in ("se", "ci_low", "ci_high", "df"):
+            out[c] = rate[c].to_numpy(dtype=np.float64)
+        out["flags"] = _flags(out["nonresponse_rate"], out["asked"])
+        blocks.append(pd.DataFrame(out))
+    return pd.concat(blocks, ignore_index=True)
+
+
+def _flags(rate: npt.NDArray[np.float64], asked: npt.NDArray[np.int64]) -> list[tuple[str, ...]]:
+    """Return per row the ids of NONRESPONSE_RULES that fire."""
+    low = np.nan_to_num(1.0 - rate, nan=1.0) < NCES_MIN_RESPONSE
+    none = asked == 0
+    return [("response<70%",) if a else ("none-asked",) if b else ()
+            for a, b in zip(low.tolist(), none.tolist(), strict=True)]
+
+
+def _worst_first(frame: pd.DataFrame, names: list[str]) -> pd.DataFrame:
+    """Return *frame* with variable blocks ordered by the population rate, highest first."""
+    first = frame.groupby("variable", sort=False)["nonresponse_rate"].first()
+    keyed = sorted(names, key=lambda v: (np.isnan(first[v]), -np.nan_to_num(first[v])))
+    order = {v: i for i, v in enumerate(keyed)}
+    rank = frame["variable"].map(order)
+    return frame.iloc[np.argsort(rank.to_numpy(), kind="stable")].reset_index(drop=True)
+
+
+def _settings(counted: tuple[str, ...], skip: tuple[str, ...], count_invalid: bool,
+              est: EstimateTable, design: Design) -> dict[str, Any]:
+    """Return the settings record: which reasons were counted, denominator and weight."""
+    listed = ", ".join(counted)
+    skipped = ", ".join(f"'{r}'" for r in skip)
+    definition = (f"Item nonresponse rate: weighted share of the rows asked (all but {skipped}) "
+                  f"whose reason is {listed}; weight {design.weight}; Korn-Graubard "
+                  f"{est.level:.0%} interval.")
+    return {"nonresponse_reasons": list(counted), "count_invalid": count_invalid,
+            "not_asked": list(skip), "denominator": f"asked (not {', '.join(skip)})",
+            "weight": design.weight,
+            "proportion_ci": "korn-graubard", "level": est.level, "df_rule":
+            est.settings.get("df_rule"), "definition": definition,
+            "title": "Item nonresponse", "threshold": NCES_MIN_RESPONSE}
+
+
+def _bounds_frame(est: EstimateTable, names: list[str], by: list[str]) -> pd.DataFrame:
+    """Return the bounds rows of every variable from the valid-case and unknown estimates."""
+    import pandas as pd
+
+    blocks = []
+    for v in names:
+        cat = _rows(est, v)
+        unk = _rows(est, f"{v}{_UNKNOWN}", "unknown")
+        n_levels = len(cat) // max(len(unk), 1)
+        w_valid = cat["weighted_n"].to_numpy(dtype=np.float64)
+        w_level = np.nan_to_num(cat["estimate"].to_numpy(dtype=np.float64)) * w_valid
+        u = np.repeat(np.nan_to_num(unk["estimate"].to_numpy(dtype=np.float64)), n_levels)
+        w_all = np.repeat(unk["weighted_n"].to_numpy(dtype=np.float64), n_levels)
+        w_unk = u * w_all
+        with np.errstate(divide="ignore", invalid="ignore"):
+            lower = np.where(w_all > 0, w_level / w_all, np.nan)
+            upper = np.where(w_all > 0, (w_level + w_unk) / w_all, np.nan)
+        block = cat[["variable", "level", *by, "estimate", "se", "ci_low", "ci_high"]].copy()
+        block["lower"], block["upper"] = lower, upper
+        block["unknown_share"] = np.where(w_all > 0, u, np.nan)
+        block["n_valid"] = cat["n"].to_numpy()
+        block["n_unknown"] = np.repeat(unk["n"].to_numpy(), n_levels) - cat["n"].to_numpy()
+        blocks.append(block)
+    return pd.concat(blocks, ignore_index=True)
+
