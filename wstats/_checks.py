@@ -113,13 +113,24 @@ def check_special_codes(columns: Mapping[str, DecodedColumn], skip: Iterable[str
         v = col.values[col.valid]
         if not len(v) or float(np.max(v)) not in CANDIDATES:
             continue
-        found = suspected_codes(v)
+        found = _at_the_top(v, suspected_codes(v), CANDIDATES)
         if found:
             codes = ", ".join(f"{c:g} ({k} rows)" for c, k in found)
             out.append(f"variable {name}: values {codes} look like special codes (don't know/"
                        "refused/none) that no codebook rule explains; they are averaged as "
                        "numbers - map them in the codebook (see 'wstats codebook draft')")
     return out
+
+
+def _at_the_top(v: np.ndarray, found: list[tuple[float, int]],
+                candidates: Sequence[float]) -> list[tuple[float, int]]:
+    """Keep suspects above every ordinary value; a one-digit code also needs a gap below it.
+
+    A warning must not cry wolf: 7 hours of sleep is an answer, 7 after a 1-5 scale is not.
+    """
+    ordinary = v[~np.isin(v, candidates)]
+    top = float(ordinary.max()) if len(ordinary) else -np.inf
+    return [(c, k) for c, k in found if c > top and (c >= 10 or c > top + 1)]
 
 
 @dataclass(frozen=True)

@@ -131,9 +131,12 @@ class Design:
         """
         cols = [c for c in (self.weight, self.strata, self.psu, self.fpc) if c]
         if self.replicates is not None:
-            if isinstance(self.replicates, str) and available is None:
+            if available is not None:
+                cols += resolve_replicate_columns(self.replicates, list(available), source)
+            elif isinstance(self.replicates, str):
                 raise DesignError(f"replicate glob '{self.replicates}' needs the file's columns")
-            cols += resolve_replicate_columns(self.replicates, list(available or cols), source)
+            else:
+                cols += list(self.replicates)
         return list(dict.fromkeys(cols))
 
     def _check_replicate_options(self) -> None:
@@ -372,16 +375,32 @@ def _complete_rows(design: Design, cols: dict[str, DecodedColumn], n: int) -> np
         if col.values.dtype.kind == "f":
             bad |= np.isnan(col.values)
         count = int(bad.sum())
+        if count and role == "weight":
+            _weight_not_finite(col, bad)
         if count and not design.drop_incomplete:
             error = WeightError if role == "weight" else DesignError
             raise error(
                 f"{role} column '{col.name}' is missing in {count} rows (first: row "
-                f"{int(np.argmax(bad)) + 1}); fix the data or set drop_incomplete=True"
+                f"{int(np.argmax(bad)) + 1}); fix the data or drop such rows "
+                "(--drop-incomplete, drop_incomplete=True)"
             )
         keep &= ~bad
     if not keep.any():
         raise DesignError("no row has a complete weight/stratum/PSU; check the design columns")
     return keep
+
+
+def _weight_not_finite(col: DecodedColumn, bad: npt.NDArray[np.bool_]) -> None:
+    """Raise WeightError naming infinite raw weights (decoding made them invalid)."""
+    raw = col.raw
+    if raw is None or raw.dtype.kind != "f":
+        return
+    inf = bad & np.isinf(raw)
+    if inf.any():
+        raise WeightError(
+            f"weight column '{col.name}' has {int(inf.sum())} infinite values (first: row "
+            f"{int(np.argmax(inf)) + 1}); weights must be finite and >= 0"
+        )
 
 
 def _check_weights(w: npt.NDArray[Any], name: str, rows: Index | None) -> Array:
@@ -441,6 +460,11 @@ def _fpc(col: DecodedColumn | None, name: str | None, rows: Index | None, stratu
         raise DesignError(
             f"fpc column '{name}' has {int(bad.sum())} values that are not positive (first: row "
             f"{_row_no(rows, int(np.argmax(bad)))}); give PSU counts (> 1) or fractions in (0, 1]"
+        )
+    if (v < 1).any() and (v > 1).any():
+        raise DesignError(
+            f"fpc column '{name}' mixes sampling fractions (< 1) and PSU counts (> 1); give one "
+            "kind for every stratum"
         )
     order = np.argsort(stratum, kind="stable")
     starts = np.flatnonzero(np.r_[True, np.diff(stratum[order]) != 0])

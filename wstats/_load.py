@@ -18,6 +18,7 @@ def read(
     codebook: Codebook | str | Path | None = None,
     rows: tuple[int, int | None] | None = None,
     progress: bool = False,
+    encoding: str = "utf-8",
 ) -> Dataset:
     """Read a survey file and decode it into values with a missing reason per row.
 
@@ -30,6 +31,8 @@ def read(
         declarations only).
     rows : ``(start, stop)`` row range to read (stop None = to the end); None reads all.
     progress : show a progress bar while reading.
+    encoding : text encoding of a CSV/TSV file, or of the labels of a SAS/SPSS/Stata file
+        ("utf-8", the default, means the file's own declared encoding for those).
 
     Returns
     -------
@@ -52,7 +55,7 @@ def read(
     needed = (cb or Codebook()).raw_columns_for(wanted) if wanted is not None else None
     if cb is not None and needed is not None:
         _check_derived_inputs(cb, needed, str(path))
-    raw = read_raw(str(path), needed, rows, progress)
+    raw = read_raw(str(path), needed, rows, progress, encoding=encoding)
     data = (cb or Codebook()).decode(raw)
     if wanted is None:
         return data

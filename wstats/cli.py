@@ -69,6 +69,8 @@ def _add_data_options(p: argparse.ArgumentParser) -> None:
                    ".dta .csv .tsv .parquet)")
     p.add_argument("--codebook", metavar="FILE", help="codebook TOML applied before estimation")
     p.add_argument("--rows", metavar="START:STOP", help="read only this row range (first look)")
+    p.add_argument("--encoding", default="utf-8", metavar="NAME",
+                   help="text encoding of a CSV file or of labels (e.g. latin-1)")
 
 
 def _add_output_options(p: argparse.ArgumentParser, formats: Sequence[str]) -> None:
@@ -148,7 +150,8 @@ def _read(args: argparse.Namespace, codebook: Any, needed: Sequence[str]) -> Any
     from wstats._load import read
 
     return read(args.data, columns=list(dict.fromkeys(needed)), codebook=codebook,
-                rows=_parse_rows(args.rows), progress=_progress_wanted(args))
+                rows=_parse_rows(args.rows), progress=_progress_wanted(args),
+                encoding=args.encoding)
 
 
 def _progress_wanted(args: argparse.Namespace) -> bool:
@@ -185,10 +188,36 @@ def _emit(obj: Any, kind: str, args: argparse.Namespace, inputs: Sequence[str],
     if key == "terminal":
         text = _rich_to_text(text)
     if args.output:
+        _not_an_input(args.output, [*inputs, codebook_path])
         atomic_write(Path(args.output), text, overwrite=args.overwrite)
         print(f"wrote {args.output}", file=sys.stderr)
     else:
         sys.stdout.write(text if isinstance(text, str) else text.decode())
+
+
+def _check_outputs(args: argparse.Namespace, inputs: Sequence[str | None]) -> None:
+    """Refuse unwritable outputs before any work is done (they are checked again at write)."""
+    from wstats._io import check_output
+
+    for out in (getattr(args, "output", None), getattr(args, "plot", None)):
+        if out:
+            _not_an_input(out, inputs)
+            check_output(out, overwrite=args.overwrite)
+
+
+def _not_an_input(output: str, inputs: Sequence[str | None]) -> None:
+    """Refuse to write over a file this command reads."""
+    import os
+
+    from wstats.errors import OutputError
+
+    out = Path(output)
+    for name in inputs:
+        if not name or not out.exists() or not Path(name).exists():
+            continue
+        if os.path.samefile(out, name):
+            raise OutputError(f"output '{output}' is an input of this command; choose another "
+                              "name")
 
 
 def _print_rich(renderable: Any) -> None:
@@ -237,6 +266,7 @@ def _estimate_args(p: argparse.ArgumentParser) -> None:
 
 def _run_estimate(args: argparse.Namespace) -> int:
     _parse_rows(args.rows)  # usage mistakes first, before any file is touched
+    _check_outputs(args, [args.data, args.codebook])
     from wstats._estimate import estimate
 
     codebook = _load_codebook(args.codebook)
@@ -285,9 +315,9 @@ def _needed(codebook: Any, names: Sequence[str], design: Any, where: str | None,
 
         cols.extend(expression_names(where))
     if codebook is not None:
-        cols = codebook.raw_columns_for(cols)
+        cols = [*cols, *codebook.raw_columns_for(cols)]  # derived names kept: read() makes them
     available = None
-    if isinstance(design.replicates, str):
+    if design.replicates is not None:
         from wstats._readers import file_columns
 
         available = file_columns(data)
@@ -313,6 +343,7 @@ def _nonresponse_args(p: argparse.ArgumentParser) -> None:
 
 def _run_nonresponse(args: argparse.Namespace) -> int:
     _parse_rows(args.rows)
+    _check_outputs(args, [args.data, args.codebook])
     from wstats._nonresponse import nonresponse
 
     codebook = _load_codebook(args.codebook)
@@ -397,6 +428,7 @@ def _run_codebook(args: argparse.Namespace) -> int:
         if args.output:
             from wstats._io import atomic_write
 
+            _not_an_input(args.output, [args.data])
             atomic_write(Path(args.output), text, overwrite=args.overwrite)
             print(f"wrote {args.output}", file=sys.stderr)
         else:
