@@ -24,7 +24,8 @@ if TYPE_CHECKING:
     from wstats._column import Dataset
     from wstats._design import Design
 
-__all__ = ["JOB_KEYS", "Analysis", "Job", "Output", "load_analysis", "run_analysis"]
+__all__ = ["JOB_KEYS", "Analysis", "Job", "Output", "execute_analysis", "load_analysis",
+           "run_analysis"]
 
 _TOP = ("data", "codebook", "title", "design", "defaults", "estimates", "nonresponse",
         "bounds", "table", "methods", "plot")
@@ -154,15 +155,26 @@ def run_analysis(path: str | Path, overwrite: bool = False, progress: bool = Fal
     >>> run_analysis("demo/tbchs_analysis.toml")  # doctest: +SKIP
     [PosixPath('demo/tbchs_estimates.json'), ...]
     """
+    return execute_analysis(path, overwrite, progress)[0]
+
+
+def execute_analysis(path: str | Path, overwrite: bool = False, progress: bool = False
+                     ) -> tuple[list[Path], dict[tuple[str, str], Any]]:
+    """Run an analysis file; return the files written and the results by (kind, entry name).
+
+    The results are the objects behind the outputs (EstimateTable, NonresponseTable,
+    PublicationTable, the methods text), for a caller that also wants to show them.
+    """
     analysis = load_analysis(path)
     _check_outputs(analysis, overwrite)
     _check_plot_support(analysis)
     codebook = _codebook(analysis)
     design = _design(analysis, codebook)
     data = _read(analysis, codebook, design, progress)
-    rendered = _Runner(analysis, codebook, design, data).render_all()
+    runner = _Runner(analysis, codebook, design, data)
+    rendered = runner.render_all()
     _check_outputs(analysis, overwrite, [o for o, _ in rendered])
-    return _write_all(rendered, overwrite)
+    return _write_all(rendered, overwrite), runner.results
 
 
 # ------------------------------------------------------------------ checking the file
@@ -646,6 +658,7 @@ class _Runner:
         if "data" in inspect.signature(build_table).parameters:
             kwargs["data"] = self.data  # reuse the one read when the builder accepts it
         built = build_table(spec, **kwargs)
+        self.results[("table", job.name)] = built
         return [(o, _as_bytes(TABLE_RENDERERS[o.fmt](built, provenance=built.provenance),
                               o.fmt)) for o in job.outputs]
 
@@ -673,6 +686,7 @@ class _Runner:
                 STANDARDS[o["reliability"]], o_.fmt,
                 reason_descriptions=dict(self.codebook.reasons) if self.codebook else None)
             out.append((o_, (text + "\n").encode("utf-8")))
+            self.results.setdefault(("methods", job.name), text)
         return out
 
     def plot(self, job: Job) -> list[tuple[Output, bytes]]:
