@@ -29,7 +29,6 @@ def run_demo(folder: Path, *, overwrite: bool = False, rows: int | None = None,
         The survey files written and every output of the analysis file.
     """
     from demo import write_demo
-
     from wstats._analysis import execute_analysis
 
     _check_folder(folder, overwrite)

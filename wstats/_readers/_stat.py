@@ -49,6 +49,10 @@ _READERS: dict[str, tuple[str, bool, bool]] = {
 _CHUNK_ROWS = 50_000
 _ENCODING_TROUBLE = re.compile(r"encoding|character set", re.IGNORECASE)
 _XPT_RECORD = 80  # transport files are made of 80-byte records
+_XPT_OBS = b"HEADER RECORD*******OBS"  # opens the observations (OBS in v5, OBSV8 in v8/v9)
+_DTA_OPEN = b"<stata_dta>"
+_DTA_CLOSE = b"</stata_dta>"
+_DTA_TAIL = 64  # bytes read from the end of a Stata file to find its closing tag
 
 
 def stat_columns(path: Path, fmt: str, encoding: str = "utf-8") -> list[str]:
@@ -111,10 +115,57 @@ def _call(path: Path, fmt: str, encoding: str, **kwargs: Any) -> tuple[pd.DataFr
 
 def _metadata(path: Path, fmt: str, encoding: str) -> Any:
     """Read only the metadata of a file (names, types, labels, row count)."""
-    if fmt == "xpt" and path.stat().st_size % _XPT_RECORD:
-        # pyreadstat silently returns the rows before the cut; a partial record means a cut.
-        raise ReadError(f"'{path}' is truncated: its size is not a whole number of 80-byte records")
-    return _call(path, fmt, encoding, metadataonly=True)[1]
+    if fmt == "dta":
+        _check_dta_end(path)
+    meta = _call(path, fmt, encoding, metadataonly=True)[1]
+    if fmt == "xpt":
+        _check_xpt_end(path, sum(meta.variable_storage_width.values()))
+    return meta
+
+
+def _check_dta_end(path: Path) -> None:
+    """Raise ReadError when a Stata 117+ file (XML-like tags) lacks its closing tag."""
+    # pyreadstat reads such a file without its value labels and says nothing.
+    with open(path, "rb") as fh:
+        if fh.read(len(_DTA_OPEN)) != _DTA_OPEN:
+            return  # Stata 104-115: a binary layout without tags
+        fh.seek(max(path.stat().st_size - _DTA_TAIL, 0))
+        tail = fh.read().rstrip(b" \t\r\n\x00")
+    if not tail.endswith(_DTA_CLOSE):
+        raise ReadError(
+            f"'{path}' is truncated: it does not end with </stata_dta>; download the file again"
+        )
+
+
+def _check_xpt_end(path: Path, length: int) -> None:
+    """Raise ReadError when a transport file ends inside an observation."""
+    # pyreadstat silently returns the observations before the cut. Padding after the last
+    # observation is blank and shorter than an 80-byte record, so anything else is a cut.
+    size = path.stat().st_size
+    start = _xpt_data_start(path)
+    if start is None or length <= 0:
+        return  # no observation header: pyreadstat has already judged the file
+    rest = (size - start) % length
+    if not rest:
+        return
+    with open(path, "rb") as fh:
+        fh.seek(size - rest)
+        tail = fh.read()
+    if rest >= _XPT_RECORD or (size - start) % _XPT_RECORD or tail.strip(b" \x00"):
+        raise ReadError(
+            f"'{path}' is truncated: the last observation is incomplete; download the file again"
+        )
+
+
+def _xpt_data_start(path: Path) -> int | None:
+    """Return the byte offset where a transport file's observations begin, or None."""
+    import mmap
+
+    with open(path, "rb") as fh, mmap.mmap(fh.fileno(), 0, access=mmap.ACCESS_READ) as data:
+        at = data.find(_XPT_OBS)
+        while at >= 0 and at % _XPT_RECORD:  # header records start on a record boundary
+            at = data.find(_XPT_OBS, at + 1)
+    return None if at < 0 else at + _XPT_RECORD
 
 
 def _read_chunks(
