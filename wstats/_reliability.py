@@ -67,7 +67,8 @@ RULES: dict[str, tuple[str, str]] = {
     "n<30": ("fewer than 30 records; unreliable", _NCHS_RSE),
     "rse>30%": ("relative standard error above 30%; unreliable", _NCHS_RSE),
     "se-zero": (
-        "standard error of 0 (the variable is constant in the domain); check the estimate",
+        "standard error of 0 (a constant variable, or a quantile inside a block of tied "
+        "values); check the estimate",
         "common practice, no source",
     ),
     "se-missing": ("standard error cannot be estimated", "common practice, no source"),
