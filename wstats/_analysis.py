@@ -502,6 +502,13 @@ def _needed(analysis: Analysis, design: Design) -> tuple[list[str], dict[str, st
         for num, den in opts.get("ratios", ()):
             wanted.setdefault(num, f"{job.key} ratios")
             wanted.setdefault(den, f"{job.key} ratios")
+        same_data = job.kind == "table" and \
+            Path(opts["spec"].data).resolve() == Path(analysis.data).resolve()
+        if same_data:
+            from wstats._pubtable import table_variables
+
+            for name in table_variables(opts["spec"]):
+                wanted.setdefault(name, f"{job.key} rows/columns")
         if opts.get("where"):
             expr = parse_expression(opts["where"], None, f"{analysis.source}: {job.key} where")
             for name in sorted(expr.inputs):
@@ -648,15 +655,13 @@ class _Runner:
 
     def table(self, job: Job) -> list[tuple[Output, bytes]]:
         """Build and render one ``[[table]]`` entry (publication table)."""
-        import inspect
-
         from wstats._pubtable import build_table
         from wstats.render import TABLE_RENDERERS
 
         spec = job.options["spec"]
         kwargs: dict[str, Any] = {}
-        if "data" in inspect.signature(build_table).parameters:
-            kwargs["data"] = self.data  # reuse the one read when the builder accepts it
+        if Path(spec.data).resolve() == Path(self.a.data).resolve():
+            kwargs["data"] = self.data  # the one read serves the table too
         built = build_table(spec, **kwargs)
         self.results[("table", job.name)] = built
         return [(o, _as_bytes(TABLE_RENDERERS[o.fmt](built, provenance=built.provenance),

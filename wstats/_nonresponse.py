@@ -38,6 +38,7 @@ import numpy as np
 
 from wstats._column import Dataset, DecodedColumn
 from wstats._reasons import VALID
+from wstats._reliability import NONRESPONSE_RULES
 from wstats._results import _plain
 from wstats.errors import EstimationError
 
@@ -54,14 +55,6 @@ __all__ = ["NCES_MIN_RESPONSE", "NONRESPONSE_RULES", "NonresponseTable", "bounds
 #: NCES Statistical Standards, Standard 1-3: report (analyse) items whose response rate is
 #: below this.
 NCES_MIN_RESPONSE = 0.70
-_NCES = "NCES Statistical Standards, Standard 1-3 (item response rates)"
-#: flag id -> (description, source) for the flags of a nonresponse table.
-NONRESPONSE_RULES: dict[str, tuple[str, str]] = {
-    "response<70%": ("item response rate below 70% among those asked; analyse the "
-                     "nonresponse for bias", _NCES),
-    "none-asked": ("no row of the domain was asked the item (all skipped)",
-                   "common practice, no source"),
-}
 # Suffixes of the indicator columns; ':' cannot occur in a codebook or file variable name.
 _RATE, _UNKNOWN = ":nonresponse", ":unknown"
 

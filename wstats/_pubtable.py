@@ -26,6 +26,7 @@ if TYPE_CHECKING:
     from wstats._results import EstimateTable
 
 __all__ = [
+    "table_variables",
     "STATISTICS",
     "PublicationTable",
     "RowSpec",
@@ -86,7 +87,8 @@ class PublicationTable:
 
 
 def build_table(
-    spec: TableSpec | str | Path, *, progress: bool = False, time: bool | str = True
+    spec: TableSpec | str | Path, *, progress: bool = False, time: bool | str = True,
+    data: Dataset | None = None,
 ) -> PublicationTable:
     """Build a publication table from a spec.
 
@@ -95,6 +97,8 @@ def build_table(
     spec : a TableSpec, or the path of a spec file (read with :func:`load_table_spec`).
     progress : show a progress bar while the data file is read.
     time : passed to :func:`wstats._provenance.provenance` (False for reproducible output).
+    data : the decoded data when the caller has already read them (an analysis file reads
+        its data once); they must hold every column the table needs.
 
     Returns
     -------
@@ -120,7 +124,9 @@ def build_table(
     codebook = _codebook(spec)
     design = _design(spec, codebook)
     _check_variables(spec, codebook)
-    data = read(spec.data, columns=_needed(spec, design), codebook=codebook, progress=progress)
+    if data is None:
+        data = read(spec.data, columns=_needed(spec, design), codebook=codebook,
+                    progress=progress)
     estimates = _estimate_all(spec, data, design)
     columns = _columns(spec, estimates, data)
     layout = _Layout(spec, estimates, columns, data)
@@ -173,15 +179,18 @@ def _check_variables(spec: TableSpec, codebook: Codebook | None) -> None:
                                 f"{did_you_mean(name, known)}")
 
 
-def _needed(spec: TableSpec, design: Design) -> list[str]:
-    """Return the variables to read: rows, groups, the where-condition and design columns."""
+def table_variables(spec: TableSpec) -> list[str]:
+    """Return the variables a table spec needs: rows, groups and the where-condition's inputs."""
     from wstats._expr import expression_names
 
     names = [r.variable for r in spec.rows] + list(spec.by)
     names += expression_names(spec.where, f"where in {spec.source}") if spec.where else []
-    design_cols = design.columns() if hasattr(design, "columns") else [
-        c for c in (design.weight, design.strata, design.psu, design.fpc) if c]
-    return list(dict.fromkeys([*names, *design_cols]))
+    return list(dict.fromkeys(names))
+
+
+def _needed(spec: TableSpec, design: Design) -> list[str]:
+    """Return the variables to read: the table's variables and the design columns."""
+    return list(dict.fromkeys([*table_variables(spec), *design.columns()]))
 
 
 def _estimate_all(spec: TableSpec, data: Dataset, design: Design) -> EstimateTable:

@@ -33,6 +33,7 @@ if TYPE_CHECKING:
     Bool = npt.NDArray[np.bool_]
 
 __all__ = [
+    "NONRESPONSE_RULES",
     "DEFAULT_STANDARD",
     "RULES",
     "STANDARDS",
@@ -50,6 +51,15 @@ _NCHS_2017 = (
 _NCHS_RSE = "NCHS ambulatory care survey documentation: RSE above 30% or fewer than 30 records"
 
 #: rule id -> (short description, source). Order here is the order flags are reported in.
+_NCES = "NCES Statistical Standards, Standard 1-3 (item response rates)"
+#: flag id -> (description, source) for the flags of a nonresponse table.
+NONRESPONSE_RULES: dict[str, tuple[str, str]] = {
+    "response<70%": ("item response rate below 70% among those asked; analyse the "
+                     "nonresponse for bias", _NCES),
+    "none-asked": ("no row of the domain was asked the item (all skipped)",
+                   "common practice, no source"),
+}
+
 RULES: dict[str, tuple[str, str]] = {
     "empty": ("no records in the domain; nothing to estimate", "common practice, no source"),
     "neff<30": ("effective sample size below 30", _NCHS_2017),
