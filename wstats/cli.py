@@ -181,7 +181,8 @@ def _emit(obj: Any, kind: str, args: argparse.Namespace, inputs: Sequence[str],
     from wstats._io import atomic_write
     from wstats._provenance import provenance
 
-    design = getattr(obj, "design", {}) or {}
+    attrs = obj.attrs if kind == "bounds" else {}
+    design = getattr(obj, "design", None) or attrs.get("design") or {}
     prov = provenance([Path(p) for p in inputs], Path(codebook_path) if codebook_path else None,
                       dict(design), _command_line())
     text = registry[key](obj, provenance=prov)
@@ -336,6 +337,9 @@ def _nonresponse_args(p: argparse.ArgumentParser) -> None:
                    help="sort by item nonresponse rate, highest first")
     p.add_argument("--exclude-invalid", action="store_true",
                    help="do not count 'invalid' answers as nonresponse")
+    p.add_argument("--not-asked", default="skipped", metavar="REASONS",
+                   help="reasons that put a row outside the item's universe, like a skip "
+                        "(default skipped; e.g. skipped,not_applicable)")
     p.add_argument("--level", type=float, default=0.95, help="confidence level (default 0.95)")
     p.add_argument("--plot", metavar="FILE", help="also draw reasons per variable (.png/.svg)")
     _add_output_options(p, OUTPUT_FORMATS)
@@ -352,12 +356,41 @@ def _run_nonresponse(args: argparse.Namespace) -> int:
     data = _read(args, codebook, needed)
     table = nonresponse(data, design, args.variables, by=args.by, where=args.where,
                         level=args.level, count_invalid=not args.exclude_invalid,
-                        sort_worst=args.worst_first)
+                        sort_worst=args.worst_first, not_asked=tuple(_split([args.not_asked])))
     _emit(table, "nonresponse", args, [args.data], args.codebook)
     if args.plot:
         from wstats._plots import plot_reasons
 
         plot_reasons(table, Path(args.plot), overwrite=args.overwrite)
+    return 0
+
+
+def _bounds_args(p: argparse.ArgumentParser) -> None:
+    _add_data_options(p)
+    p.add_argument("variables", metavar="VAR", nargs="+", help="categorical items")
+    _add_design_options(p)
+    p.add_argument("--by", nargs="+", action="extend", metavar="COL", default=[],
+                   help="domains: levels of these variables, crossed")
+    p.add_argument("--where", metavar="EXPR", help="row condition defining a subpopulation")
+    p.add_argument("--unknown", default="dont_know,refused", metavar="REASONS",
+                   help="reasons whose answers are unknown (default dont_know,refused)")
+    p.add_argument("--level", type=float, default=0.95, help="confidence level (default 0.95)")
+    _add_output_options(p, ("table", "csv", "json", "markdown"))
+
+
+def _run_bounds(args: argparse.Namespace) -> int:
+    _parse_rows(args.rows)
+    _check_outputs(args, [args.data, args.codebook])
+    from wstats._nonresponse import bounds
+
+    codebook = _load_codebook(args.codebook)
+    design = _design_from(args, codebook)
+    data = _read(args, codebook, _needed(codebook, [*args.variables, *args.by], design,
+                                         args.where, args.data))
+    frame = bounds(data, design, args.variables, by=args.by, where=args.where,
+                   level=args.level, reasons=tuple(_split([args.unknown])))
+    frame.attrs.setdefault("design", design.bind(data).summary())
+    _emit(frame, "bounds", args, [args.data], args.codebook)
     return 0
 
 
@@ -508,6 +541,10 @@ COMMANDS: dict[str, Command] = {
         "counts and weighted shares of every missing reason; item nonresponse rates",
         "wstats nonresponse survey.xpt SLEEPHRS FRUITFRQ --codebook codebook.toml --worst-first",
         _nonresponse_args, _run_nonresponse),
+    "bounds": Command(
+        "how far proportions could move if don't-know/refused answers were known",
+        "wstats bounds survey.xpt GENHLTH INSURED --codebook codebook.toml --by AGE_GRP",
+        _bounds_args, _run_bounds),
     "table": Command(
         "a publication table (with methods paragraph) from a table spec",
         "wstats table table1.toml --format latex -o table1.tex", _table_args, _run_table),

@@ -20,12 +20,13 @@ from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
 from wstats.errors import OutputError
-from wstats.render import _csv, _html, _json, _latex, _markdown, _terminal
+from wstats.render import _bounds, _csv, _html, _json, _latex, _markdown, _terminal
 
 if TYPE_CHECKING:
     from wstats._pubtable import PublicationTable
 
 __all__ = [
+    "BOUNDS_RENDERERS",
     "ESTIMATE_RENDERERS",
     "FORMATS",
     "NONRESPONSE_RENDERERS",
@@ -52,6 +53,12 @@ NONRESPONSE_RENDERERS: dict[str, Renderer] = {
     "html": _html.nonresponse_html,
     "csv": _csv.nonresponse_csv,
     "json": _json.nonresponse_json,
+}
+BOUNDS_RENDERERS: dict[str, Renderer] = {
+    "terminal": _bounds.bounds_terminal,
+    "markdown": _bounds.bounds_markdown,
+    "csv": _bounds.bounds_csv,
+    "json": _bounds.bounds_json,
 }
 TABLE_RENDERERS: dict[str, Renderer] = {
     "terminal": _terminal.table_terminal,
