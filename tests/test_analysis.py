@@ -13,7 +13,8 @@ import pytest
 
 import wstats._io
 import wstats._load
-from wstats._analysis import load_analysis, run_analysis
+from wstats._analysis import run_analysis
+from wstats._analysis_file import load_analysis
 from wstats._design import Design
 from wstats._estimate import estimate
 from wstats._load import read
