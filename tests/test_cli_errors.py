@@ -62,7 +62,7 @@ def _cut_tail(data: bytes) -> bytes:
 def _structural(fmt: str, path: Path, data: bytes) -> bytes:
     """Overwrite a structure-bearing part in the middle of the file (not plain data bytes)."""
     if fmt == "dta":
-        i = data.index(b"<data>")  # the tag that opens the data section (Stata 118 format)
+        i = data.index(b"<data>")  # the tag that opens the data section (.dta format 118)
         return data[:i] + b"<xxxx>" + data[i + 6:]
     if fmt == "sav":
         i = data.index((999).to_bytes(4, "little"))  # dictionary-termination record (type 999)

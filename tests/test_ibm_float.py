@@ -1,6 +1,6 @@
 """IBM System/360 hexadecimal floating point -> IEEE double (wstats._readers._ibm).
 
-The format's definition (SAS Institute, "The Record Layout of a Data Set in SAS Transport
+The format's definition (.sas7bdat Institute, "The Record Layout of a Data Set in Transport
 (XPORT) Format", TS-140; from memory): a big-endian word of 1 sign bit, a 7-bit exponent in
 excess 64 of base 16 and a 56-bit fraction f, value = (-1)**s * (f / 2**56) * 16**(e - 64).
 The oracle below evaluates that definition with exact rationals; ``float(Fraction)`` rounds

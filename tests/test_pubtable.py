@@ -45,7 +45,7 @@ codes = { 888 = 0 }
 
 SPEC = """
 title = "Table 1. Test survey"
-data = "svy.csv"
+data = "sample.csv"
 codebook = "cb.toml"
 rows = ["SLEEP", {variable = "SMOKE", levels = ["Yes"]}, {variable = "EXER", statistic = "mean"}]
 notes = ["Source: invented data."]
@@ -70,14 +70,14 @@ def survey(tmp_path_factory: pytest.TempPathFactory) -> Path:
     df.loc[rng.choice(n, 8, replace=False), "SLEEP"] = 99
     df.loc[rng.choice(n, 30, replace=False), "EXER"] = 888
     df.loc[rng.choice(n, 6, replace=False), "SMOKE"] = 9
-    df.to_csv(folder / "svy.csv", index=False)
+    df.to_csv(folder / "sample.csv", index=False)
     (folder / "cb.toml").write_text(CODEBOOK, encoding="utf-8")
     (folder / "t1.toml").write_text(SPEC, encoding="utf-8")
     return folder
 
 
 def _raw(folder: Path) -> pd.DataFrame:
-    return pd.read_csv(folder / "svy.csv")
+    return pd.read_csv(folder / "sample.csv")
 
 
 def test_cells_match_numpy_weighted_estimates(survey: Path) -> None:
@@ -120,8 +120,8 @@ def test_layout_columns_notes_methods(survey: Path) -> None:
     assert list(table.cells["kind"]) == ["data", "section", "data", "data", "summary", "summary"]
     assert table.footnotes[-1] == "Source: invented data."
     assert any(n.startswith("Proportion cells: percent (lower–upper)") for n in table.footnotes)
-    assert "EXER: 888 → 0" in table.methods and "svy.csv" in table.methods
-    assert table.provenance["inputs"][0]["name"] == "svy.csv"
+    assert "EXER: 888 → 0" in table.methods and "sample.csv" in table.methods
+    assert table.provenance["inputs"][0]["name"] == "sample.csv"
     assert table.provenance["codebook"]["name"] == "cb.toml"
 
 
@@ -172,25 +172,25 @@ def _spec(folder: Path, text: str) -> Path:
 
 
 @pytest.mark.parametrize("text,message", [
-    ('data = "svy.csv"\nrowz = ["SLEEP"]\n', r"bad.toml: rowz: unknown key.*did you mean 'rows'"),
-    ('data = "svy.csv"\n', r"bad.toml: rows: missing"),
+    ('data = "sample.csv"\nrowz = ["SLEEP"]\n', r"bad.toml: rowz: unknown key.*did you mean 'rows'"),
+    ('data = "sample.csv"\n', r"bad.toml: rows: missing"),
     ('rows = ["SLEEP"]\n', r"bad.toml: data: missing"),
     ('data = "nope.csv"\nrows = ["SLEEP"]\n', r"bad.toml: data: file .*nope.csv does not exist"),
-    ('data = "svy.csv"\nrows = [{variable = "SLEEP", statistic = "meen"}]\n',
+    ('data = "sample.csv"\nrows = [{variable = "SLEEP", statistic = "meen"}]\n',
      r"rows\[0\].statistic: 'meen' is not one of .*did you mean 'mean'"),
-    ('data = "svy.csv"\nrows = ["SLEEP"]\n[cells]\nmean = "{est} ({ses})"\n',
+    ('data = "sample.csv"\nrows = ["SLEEP"]\n[cells]\nmean = "{est} ({ses})"\n',
      r"cells.mean: unknown placeholder \{ses\}.*did you mean 'se'"),
-    ('data = "svy.csv"\nrows = ["SLEEP"]\n[cells]\nmean = "{pct}"\n',
+    ('data = "sample.csv"\nrows = ["SLEEP"]\n[cells]\nmean = "{pct}"\n',
      r"cells.mean: \{pct\} is for proportions"),
-    ('data = "svy.csv"\nrows = ["SLEEP"]\n[intervals]\nproportion = "wilsn"\n',
+    ('data = "sample.csv"\nrows = ["SLEEP"]\n[intervals]\nproportion = "wilsn"\n',
      r"intervals.proportion: 'wilsn'.*did you mean 'wilson'"),
-    ('data = "svy.csv"\nrows = ["SLEEP"]\nreliability = "nchs"\n', r"reliability: 'nchs'"),
-    ('data = "svy.csv"\nrows = ["SLEEP"]\n[design]\nwieght = "WT"\n',
+    ('data = "sample.csv"\nrows = ["SLEEP"]\nreliability = "nchs"\n', r"reliability: 'nchs'"),
+    ('data = "sample.csv"\nrows = ["SLEEP"]\n[design]\nwieght = "WT"\n',
      r"design.wieght: unknown key.*did you mean 'weight'"),
-    ('data = "svy.csv"\nrows = ["SLEEP"]\n[output]\nfiles = ["t.docx"]\n',
+    ('data = "sample.csv"\nrows = ["SLEEP"]\n[output]\nfiles = ["t.docx"]\n',
      r"output.files\[0\]: 't.docx' has no known suffix"),
-    ('data = "svy.csv"\nrows = ["SLEEP"\n', r"bad.toml: not valid TOML: Unclosed array"),
-    ('data = "svy.csv"\nrows = ["SLEEP"]\n[columns]\ntotal = false\n',
+    ('data = "sample.csv"\nrows = ["SLEEP"\n', r"bad.toml: not valid TOML: Unclosed array"),
+    ('data = "sample.csv"\nrows = ["SLEEP"]\n[columns]\ntotal = false\n',
      r"columns.total: false leaves the table without columns"),
 ])
 def test_spec_errors_are_one_line_and_name_the_key(survey: Path, text: str, message: str) -> None:
@@ -200,14 +200,14 @@ def test_spec_errors_are_one_line_and_name_the_key(survey: Path, text: str, mess
 
 
 def test_unknown_variable_is_named_with_a_suggestion(survey: Path) -> None:
-    spec = _spec(survey, 'data = "svy.csv"\ncodebook = "cb.toml"\nrows = ["SLEPE"]\n')
+    spec = _spec(survey, 'data = "sample.csv"\ncodebook = "cb.toml"\nrows = ["SLEPE"]\n')
     with pytest.raises(AnalysisError, match=r"rows\[0\].variable: 'SLEPE' is not a column of "
-                       r"svy.csv.*did you mean 'SLEEP'"):
+                       r"sample.csv.*did you mean 'SLEEP'"):
         build_table(spec, time=False)
 
 
 def test_unknown_level_is_named(survey: Path) -> None:
-    spec = _spec(survey, 'data = "svy.csv"\ncodebook = "cb.toml"\n'
+    spec = _spec(survey, 'data = "sample.csv"\ncodebook = "cb.toml"\n'
                  'rows = [{variable = "SMOKE", levels = ["Yess"]}]\n')
     with pytest.raises(AnalysisError, match=r"rows\[0\].levels: 'Yess' is not a level of SMOKE"
                        r".*did you mean 'Yes'"):
@@ -215,7 +215,7 @@ def test_unknown_level_is_named(survey: Path) -> None:
 
 
 def test_levels_by_code_and_missing_spec_file(survey: Path) -> None:
-    spec = _spec(survey, 'data = "svy.csv"\ncodebook = "cb.toml"\n'
+    spec = _spec(survey, 'data = "sample.csv"\ncodebook = "cb.toml"\n'
                  'rows = [{variable = "SMOKE", levels = [2]}]\n')
     table = build_table(spec, time=False)
     assert list(table.cells["label"])[:2] == ["Smokes, %", "No"]
@@ -229,7 +229,7 @@ def test_codebook_check_rendering(survey: Path) -> None:
     from wstats._readers import read_raw
     from wstats.render import render_check
 
-    report = check_codebook(read_raw(str(survey / "svy.csv")), load_codebook(survey / "cb.toml"))
+    report = check_codebook(read_raw(str(survey / "sample.csv")), load_codebook(survey / "cb.toml"))
     text = draw(render_check(report), 90)
     raw = _raw(survey)
     line = next(x for x in text.splitlines() if x.startswith("EXER") and "888" in x)
@@ -257,7 +257,7 @@ def test_real_nonresponse_table_renders_in_every_format(survey: Path) -> None:
     from wstats._nonresponse import nonresponse
     from wstats.render import NONRESPONSE_RENDERERS
 
-    data = read(survey / "svy.csv", codebook=survey / "cb.toml")
+    data = read(survey / "sample.csv", codebook=survey / "cb.toml")
     table = nonresponse(data, Design("WT", "STRAT", "PSU"), ["SLEEP"], by=["SEX"])
     raw = _raw(survey)
     dk = str(int((raw["SLEEP"] == 77).sum()))
@@ -268,4 +268,4 @@ def test_real_nonresponse_table_renders_in_every_format(survey: Path) -> None:
         elif fmt == "xlsx":
             assert out[:2] == b"PK"  # a zip container
         else:
-            assert dk in out and "svy.csv" not in out  # provenance given: the fixed record
+            assert dk in out and "sample.csv" not in out  # provenance given: the fixed record

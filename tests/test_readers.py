@@ -124,7 +124,7 @@ def test_dta_and_xpt_labels(files: dict[str, Path]) -> None:
 
 
 def test_dta_tagged_missing_become_nan_and_tags(tmp_path: Path) -> None:
-    # Stata extended missing values .a-.z (written by pyreadstat.write_dta missing_user_values).
+    # .dta extended missing values .a-.z (written by pyreadstat.write_dta missing_user_values).
     frame = pd.DataFrame({"q": pd.Series([1.0, "a", 3.0, "z", NAN, "a"], dtype=object)})
     path = tmp_path / "tagged.dta"
     pyreadstat.write_dta(frame, path, missing_user_values={"q": ["a", "z"]})
@@ -409,7 +409,7 @@ def test_garbage_never_escapes_as_another_exception(junk: bytes) -> None:
 
 
 def test_sas_tag_letters_are_split_vectorised() -> None:
-    # SAS special missing values .A-.Z and ._ arrive from pyreadstat (user_missing=True) as
+    # Transport/.sas7bdat special missing values .A-.Z and ._ arrive from pyreadstat (user_missing=True) as
     # letters inside the numeric column; no .sas7bdat writer exists to make a file in the test.
     mixed = pd.Series([1.5, "A", "_", None, "Z", NAN], dtype=object)
     data, tags = stat_reader._split_tags(mixed)

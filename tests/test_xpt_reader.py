@@ -1,7 +1,7 @@
 """The fast transport (XPORT v5) reader, wstats._readers._xpt.
 
-Oracles: pyreadstat.read_xport on the same files, and the record layout of SAS Institute,
-"The Record Layout of a Data Set in SAS Transport (XPORT) Format", technical support document
+Oracles: pyreadstat.read_xport on the same files, and the record layout of 
+"The Record Layout of a Data Set in Transport (XPORT) Format", technical support document
 TS-140 (from memory), which `build_xpt` below writes byte by byte.
 """
 

@@ -1,6 +1,6 @@
 """Convert any readable data file into a Parquet cache that keeps the file's metadata.
 
-Reading a large SAS, SPSS or Stata file takes long; the cache is a column store that reads
+Reading a large .sas7bdat, .sav or .dta file takes long; the cache is a column store that reads
 only the columns asked for, fast, and gives back the same :class:`RawTable` the source gives:
 same data, labels, value labels, user-missing declarations and missing-value tags. The
 layout is described in :mod:`wstats._readers._parquet`.

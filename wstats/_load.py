@@ -31,7 +31,7 @@ def read(
         declarations only).
     rows : ``(start, stop)`` row range to read (stop None = to the end); None reads all.
     progress : show a progress bar while reading.
-    encoding : text encoding of a CSV/TSV file, or of the labels of a SAS/SPSS/Stata file
+    encoding : text encoding of a CSV/TSV file, or of the labels of a .sas7bdat/.sav/.dta file
         ("utf-8", the default, means the file's own declared encoding for those).
 
     Returns

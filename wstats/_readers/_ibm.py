@@ -11,7 +11,7 @@ A transport-file number is the leading 2..8 bytes of a big-endian IBM System/360
 
     value = (-1)**sign * (f / 2**56) * 16**(exponent - 64)
 
-(SAS Institute, "The Record Layout of a Data Set in SAS Transport (XPORT) Format", technical
+("The Record Layout of a Data Set in Transport (XPORT) Format", technical
 support document TS-140, on numeric data; from memory). Short numerics were cut from the
 right, so they are restored by zero-padding on the right. The definition is applied as
 written, so unnormalised fractions (leading hex digit 0) convert correctly too.

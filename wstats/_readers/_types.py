@@ -22,9 +22,9 @@ class RawColumn:
     value_labels : code -> label from the file (numeric codes as float, or str codes).
     tags : uint8 per row or None; 0 = not tagged, otherwise the ASCII code of the tag letter
         of a special missing value: ``ord('A')``..``ord('Z')`` and ``ord('_')`` for transport /
-        SAS files (``.A``-``.Z``, ``._``), ``ord('a')``..``ord('z')`` for Stata (``.a``-``.z``).
+        .sas7bdat files (``.A``-``.Z``, ``._``), ``ord('a')``..``ord('z')`` for .dta (``.a``-``.z``).
         A plain system missing (``.``) has tag 0 and NaN data.
-    user_missing : user-declared missing codes of the file (SPSS): a list of single values
+    user_missing : user-declared missing codes of the file (.sav): a list of single values
         and ``(low, high)`` ranges, inclusive. The raw codes stay in ``data``.
     numeric : True for numeric columns.
     format : the display format declared in the file (e.g. ``F8.2``), or None.

@@ -1,6 +1,6 @@
 """Fast reader for transport (XPORT) version 5 files: only the asked-for columns and rows.
 
-Layout (SAS Institute, "The Record Layout of a Data Set in SAS Transport (XPORT) Format",
+Layout ("The Record Layout of a Data Set in Transport (XPORT) Format",
 technical support document TS-140; from memory): a sequence of 80-byte records ::
 
     0    library header record ("HEADER RECORD*******LIBRARY HEADER RECORD!!!!!!!000...")
