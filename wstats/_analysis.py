@@ -289,22 +289,16 @@ class _Runner:
         return self.registry_render(NONRESPONSE_RENDERERS, table, job)
 
     def bounds(self, job: Job) -> list[tuple[Output, bytes]]:
-        """Compute and write one ``[[bounds]]`` entry as JSON or CSV."""
-        from wstats._nonresponse import bounds, bounds_records
+        """Compute and render one ``[[bounds]]`` entry (JSON, CSV or markdown)."""
+        from wstats._nonresponse import bounds
+        from wstats.render import BOUNDS_RENDERERS
 
         o = job.options
         frame = bounds(self.data, self.design, o["variables"], by=o["by"], where=o.get("where"),
                        level=o["level"], reasons=o["reasons"])
-        out = []
-        for out_ in job.outputs:
-            if out_.fmt == "csv":
-                text = frame.to_csv(index=False, lineterminator="\n")
-            else:
-                prov = self.provenance(self.design_summary())
-                text = _json({"provenance": prov, "settings": dict(frame.attrs),
-                              "results": bounds_records(frame)})
-            out.append((out_, text.encode("utf-8")))
-        return out
+        prov = self.provenance(self.design_summary())
+        return [(out, _as_bytes(BOUNDS_RENDERERS[out.fmt](frame, provenance=prov), out.fmt))
+                for out in job.outputs]
 
     def design_summary(self) -> dict[str, Any]:
         """Return the bound design's summary."""

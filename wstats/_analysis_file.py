@@ -35,7 +35,7 @@ JOB_KEYS: dict[str, tuple[str, ...]] = {
 }
 _DEFAULTS = ("by", "where", "level", "proportion_ci", "reliability")
 _METHODS_SUFFIX = {".txt": "text", ".md": "markdown", ".tex": "latex"}
-_BOUNDS_SUFFIX = {".json": "json", ".csv": "csv"}
+_BOUNDS_SUFFIX = {".json": "json", ".csv": "csv", ".md": "markdown"}
 
 
 @dataclass(frozen=True)
@@ -344,7 +344,7 @@ def _formats(kind: str) -> tuple[dict[str, str], list[str]]:
     if kind == "methods":
         return _METHODS_SUFFIX, ["text", "markdown", "latex"]
     if kind == "bounds":
-        return _BOUNDS_SUFFIX, ["json", "csv"]
+        return _BOUNDS_SUFFIX, ["json", "csv", "markdown"]
     if kind == "plot":
         from wstats._plots import PLOT_FORMATS
 

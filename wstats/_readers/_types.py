@@ -21,8 +21,9 @@ class RawColumn:
     label : variable label, or None.
     value_labels : code -> label from the file (numeric codes as float, or str codes).
     tags : uint8 per row or None; 0 = not tagged, otherwise the ASCII code of the tag letter
-        of a special missing value: ``ord('A')``..``ord('Z')`` and ``ord('_')`` for transport /
-        .sas7bdat files (``.A``-``.Z``, ``._``), ``ord('a')``..``ord('z')`` for .dta (``.a``-``.z``).
+        of a special missing value: ``ord('A')``..``ord('Z')`` and ``ord('_')`` for transport
+        and .sas7bdat files (``.A``-``.Z``, ``._``), ``ord('a')``..``ord('z')`` for .dta
+        (``.a``-``.z``).
         A plain system missing (``.``) has tag 0 and NaN data.
     user_missing : user-declared missing codes of the file (.sav): a list of single values
         and ``(low, high)`` ranges, inclusive. The raw codes stay in ``data``.
