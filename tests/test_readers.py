@@ -409,8 +409,9 @@ def test_garbage_never_escapes_as_another_exception(junk: bytes) -> None:
 
 
 def test_sas_tag_letters_are_split_vectorised() -> None:
-    # Transport/.sas7bdat special missing values .A-.Z and ._ arrive from pyreadstat (user_missing=True) as
-    # letters inside the numeric column; no .sas7bdat writer exists to make a file in the test.
+    # Transport/.sas7bdat special missing values .A-.Z and ._ arrive from pyreadstat
+    # (user_missing=True) as letters inside the numeric column; no .sas7bdat writer exists to
+    # make a file in the test.
     mixed = pd.Series([1.5, "A", "_", None, "Z", NAN], dtype=object)
     data, tags = stat_reader._split_tags(mixed)
     np.testing.assert_array_equal(data, [1.5, NAN, NAN, NAN, NAN, NAN])
@@ -433,3 +434,149 @@ def test_published_csv_matches_pandas() -> None:
     np.testing.assert_array_equal(table.columns["acres92"].data, expected["acres92"].to_numpy())
     assert list(table.columns["region"].data) == list(expected["region"])
     assert table.file_columns == list(expected.columns)
+
+
+# ---------------------------------------------------------------- damaged files, line widths
+
+_CELL = st.text(alphabet=st.sampled_from(list('ab1,"\n\r ')), max_size=5)
+
+
+def _field_counts(text: str) -> list[int]:
+    """Return the field count of each record, by Python's csv module (the oracle)."""
+    import csv
+    import io
+
+    return [len(row) for row in csv.reader(io.StringIO(text, newline="")) if row]
+
+
+def _restyle(text: str, style: str) -> str:
+    """Replace the CR LF line ends outside quoted values of *text* by *style*."""
+    parts = text.split('"')  # even parts lie outside quotes
+    return '"'.join(p.replace("\r\n", style) if i % 2 == 0 else p for i, p in enumerate(parts))
+
+
+@settings(max_examples=60, deadline=None)
+@given(rows=st.lists(st.lists(_CELL, min_size=1, max_size=4), min_size=1, max_size=6),
+       chunk=st.integers(1, 9), eol=st.booleans(), style=st.sampled_from(["\r\n", "\n", "\r"]))
+def test_field_counter_agrees_with_csv_module(rows: list[list[str]], chunk: int, eol: bool,
+                                              style: str) -> None:
+    # Oracle: the csv module's reader on text written by its writer (common practice, no
+    # source); the counter sees the bytes in chunks of *chunk*, so records span chunks.
+    import csv
+    import io
+
+    out = io.StringIO(newline="")
+    # With CR LF as line end the writer quotes every value holding a CR or an LF; the line
+    # ends themselves are then CR LF, LF or CR (pandas and the csv module take all three).
+    csv.writer(out, lineterminator="\r\n").writerows([["h1", "h2", "h3"], *rows])
+    text = out.getvalue()
+    text = text if eol else text[:-2]
+    if style != "\r\n":
+        text = _restyle(text, style)
+    counts = _field_counts(text)
+    counter = text_reader._FieldCounter(ord(","), 3, None)
+    data = text.encode()
+    for at in range(0, len(data), chunk):
+        counter.feed(data[at : at + chunk])
+    complete = counts if eol else counts[:-1]
+    if any(n > 3 for n in complete[1:]):
+        assert counter.bad is not None and counter.bad[1] == next(n for n in complete if n > 3)
+        return
+    assert counter.bad is None
+    last = rows[-1]  # the writer writes [""] as '""', so every row leaves bytes on its line
+    expect_bad = not eol and (len(last) != 3 or last[-1] == "")
+    assert (counter.finish() is not None) == expect_bad, (text, counter.finish())
+
+
+@pytest.mark.parametrize(
+    ("content", "columns", "pattern"),
+    [
+        # A cut download: the last line stops short and has no line break.
+        (b"a,b,c\n1,2,3\n4,5", None, r"line 3 has 2 fields, the header has 3; .*truncated"),
+        (b"a,b,c\n1,2,3\n4,5,", ["a"], r"ends inside line 3: its last field is empty"),
+        # Extra fields in a middle row, also when only some columns are read.
+        (b"a,b\n1,2\n3,4,5\n6,7\n", ["b"], r"line 3 has 3 fields, the header has 2; quote"),
+        (b'a,b\n"x\ny",2\n3,"4,5",6\n', ["a"], r"line 4 has 3 fields"),  # line counts the \n
+        (b"a\tb\n1\t2\n1\t2\t3\n", ["a"], r"line 3 has 3 fields.*contain a tab"),
+    ],
+)
+def test_bad_line_widths(tmp_path: Path, content: bytes, columns: list[str] | None,
+                         pattern: str) -> None:
+    path = tmp_path / ("t.tsv" if b"\t" in content else "t.csv")
+    path.write_bytes(content)
+    with pytest.raises(ReadError, match=pattern) as exc:
+        read_raw(path, columns=columns)
+    _one_line_error(exc, path)
+
+
+@pytest.mark.parametrize(
+    "content",
+    [
+        b"a,b\n1,2",  # the last line lacks a line break but has every field
+        b"a,b\r\n1,2\r\n\r\n3,4\r\n",  # CRLF and a blank line
+        b'a,b\n"1,5","x\n""y"""\n',  # quoted separators, line breaks and quotes
+        b"a,b\n5'11\",2\n",  # a quote inside an unquoted value: left to pandas
+        b"a,b\r1,2\r3,4",  # lines ended by CR alone
+        b"a,b,c\n1,2\n3,4,5\n",  # a short row in the middle is read with a blank
+    ],
+)
+def test_good_line_widths(tmp_path: Path, content: bytes) -> None:
+    path = tmp_path / "t.csv"
+    path.write_bytes(content)
+    assert read_raw(path, columns=["a"]).n_rows == read_raw(path).n_rows >= 1
+
+
+def test_row_subset_ignores_bad_lines_after_it(tmp_path: Path) -> None:
+    path = tmp_path / "t.csv"
+    path.write_bytes(b"a,b\n1,2\n3,4\n5,6,7\n8")
+    assert read_raw(path, columns=["a"], rows=(0, 2)).n_rows == 2
+
+
+def test_cut_transport_file_read_by_pyreadstat(tmp_path: Path) -> None:
+    # pyreadstat writes version 8 files, which the fast reader leaves to pyreadstat; 80 bytes
+    # less leaves part of an observation (8 numbers of 8 bytes = 64-byte rows) at the end.
+    path = tmp_path / "v8.xpt"
+    pyreadstat.write_xport(pd.DataFrame({f"v{i}": np.arange(9.0) + i for i in range(8)}), path)
+    assert read_raw(path).reader == "pyreadstat"
+    path.write_bytes(path.read_bytes()[:-80])
+    with pytest.raises(ReadError, match="is truncated: the last observation is incomplete"):
+        read_raw(path)
+
+
+def test_cut_dta_file(files: dict[str, Path], tmp_path: Path) -> None:
+    path = tmp_path / "cut.dta"
+    path.write_bytes(files["dta"].read_bytes()[:-20])
+    with pytest.raises(ReadError, match="truncated: it does not end with </stata_dta>") as exc:
+        read_raw(path)
+    _one_line_error(exc, path)
+
+
+def test_sav_with_a_nameless_column(files: dict[str, Path], tmp_path: Path) -> None:
+    data = bytearray(files["sav"].read_bytes())
+    # A .sav file has a 176-byte header; the first variable record follows, its 8-byte name
+    # at offset 24 of the record (from memory; pyreadstat writes the short name "X").
+    assert data[200:208] == b"X       "
+    data[200] = 0
+    path = tmp_path / "noname.sav"
+    path.write_bytes(bytes(data))
+    with pytest.raises(ReadError, match=r"has a column with no name \(position 1\)") as exc:
+        file_columns(path)
+    _one_line_error(exc, path)
+
+
+def test_sav_row_count_beyond_file_size(files: dict[str, Path], tmp_path: Path) -> None:
+    # .sav header: the case count is the int32 at byte 80 (little-endian file from pyreadstat).
+    data = bytearray(files["sav"].read_bytes())
+    data[80:84] = (10**8).to_bytes(4, "little")
+    path = tmp_path / "many.sav"
+    path.write_bytes(bytes(data))
+    with pytest.raises(ReadError, match="header says 100000000 rows, more than its"):
+        read_raw(path)
+
+
+def test_parquet_error_is_one_line(files: dict[str, Path], tmp_path: Path) -> None:
+    path = tmp_path / "shifted.parquet"
+    path.write_bytes(b"\x00" + files["parquet"].read_bytes())
+    with pytest.raises(ReadError, match="cannot be read as a Parquet file") as exc:
+        read_raw(path)
+    _one_line_error(exc, path)

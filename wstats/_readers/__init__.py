@@ -3,7 +3,7 @@
 The file type is taken from the extension through the plain-dict registry :data:`FORMATS`.
 Each family has its own module: ``_xpt`` (fast transport reader, written separately; this
 module falls back to pyreadstat when it is absent or declines a file), ``_stat`` (pyreadstat:
-SAS, SPSS, Stata), ``_text`` (CSV/TSV, optionally gzip-compressed) and ``_parquet`` (Parquet,
+.sas7bdat, .sav, .dta), ``_text`` (CSV/TSV, optionally gzip-compressed) and ``_parquet`` (Parquet,
 including the cache written by :func:`wstats._convert.convert`). The family modules are
 imported only when a file of theirs is read, so importing this package stays cheap.
 
@@ -60,7 +60,7 @@ def read_raw(
     columns : names of the columns to read, in the order wanted; None reads all of them.
     rows : ``(start, stop)`` row subset, 0-based, stop exclusive (None = to the end).
     progress : show a progress bar on stderr when stderr is a terminal.
-    encoding : text encoding of a CSV/TSV file, or of the labels of a SAS/SPSS/Stata file.
+    encoding : text encoding of a CSV/TSV file, or of the labels of a .sas7bdat/.sav/.dta file.
         For those files the default ``"utf-8"`` lets the file's own declaration decide.
 
     Returns
@@ -176,7 +176,14 @@ def check_file(path: Path) -> str:
 
 
 def check_unique(path: Path, names: Sequence[str]) -> None:
-    """Raise ReadError naming the first column name that occurs twice in the file."""
+    """Raise ReadError for a column without a name, or naming the first one that occurs twice."""
+    for position, name in enumerate(names, start=1):
+        # A damaged dictionary can hand over None or "" as a name (seen with .sav files).
+        if not isinstance(name, str) or not name.strip():
+            raise ReadError(
+                f"'{path}' has a column with no name (position {position}); the file is "
+                "damaged: export it again with every column named"
+            )
     twice = [name for name, n in Counter(names).items() if n > 1]
     if twice:
         raise ReadError(

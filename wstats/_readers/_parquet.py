@@ -108,9 +108,7 @@ def _schema(path: Path) -> pa.Schema:
     try:
         return pq.read_schema(path)
     except (pa.ArrowException, OSError, ValueError) as exc:
-        raise ReadError(
-            f"'{path}' cannot be read as a Parquet file ({exc}); it may be truncated or corrupt"
-        ) from exc
+        raise _damaged(path, exc) from exc
 
 
 def _read_table(path: Path, names: list[str], progress: bool) -> pa.Table:
@@ -130,9 +128,18 @@ def _read_table(path: Path, names: list[str], progress: bool) -> pa.Table:
                 advance(i + 1)
         return pa.concat_tables(parts)
     except (pa.ArrowException, OSError, ValueError) as exc:
-        raise ReadError(
-            f"'{path}' cannot be read as a Parquet file ({exc}); it may be truncated or corrupt"
-        ) from exc
+        raise _damaged(path, exc) from exc
+
+
+def _damaged(path: Path, exc: Exception) -> ReadError:
+    """Return the one-line ReadError for a file pyarrow cannot read."""
+    # pyarrow's messages run over several lines; the first says what went wrong.
+    lines = [" ".join(line.split()) for line in str(exc).splitlines()]
+    detail = next((line for line in lines if line), type(exc).__name__)
+    return ReadError(
+        f"'{path}' cannot be read as a Parquet file ({detail}); it may be truncated or "
+        "corrupt: download or convert it again"
+    )
 
 
 def _cache_info(path: Path, schema: pa.Schema) -> dict[str, Any]:

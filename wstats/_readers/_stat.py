@@ -1,14 +1,14 @@
-"""SAS, SPSS and Stata files (and transport files the fast reader declines) via pyreadstat.
+""".sas7bdat, .sav/.zsav/.por and .dta files, and transport files the fast reader declines.
 
-Metadata kept: variable labels, value labels, display formats, the file label, SPSS
+Metadata kept: variable labels, value labels, display formats, the file label, .sav
 user-missing declarations (``.sav``/``.zsav``; the raw codes stay in the data) and tagged
-missing values (Stata ``.a``-``.z``; SAS ``.A``-``.Z``, ``._`` in ``.sas7bdat``), which
+missing values (.dta ``.a``-``.z``; .sas7bdat ``.A``-``.Z``, ``._`` in ``.sas7bdat``), which
 pyreadstat hands over as letters inside an object column and which become NaN plus a tag.
 
 Limits of pyreadstat, recorded here so nobody hunts for them: ``read_por`` has neither
 ``user_missing`` nor ``encoding``, so user-missing declarations of ``.por`` files are lost;
 ``read_xport`` has no ``user_missing``, so tagged missing values of transport files read here
-are plain NaN (the fast transport reader keeps them); SPSS user-missing declarations on
+are plain NaN (the fast transport reader keeps them); .sav user-missing declarations on
 character columns are dropped because :class:`RawColumn` holds numeric declarations only.
 """
 
@@ -18,7 +18,7 @@ import codecs
 import re
 from collections.abc import Iterator, Sequence
 from pathlib import Path
-from typing import TYPE_CHECKING, Any
+from typing import TYPE_CHECKING, Any, BinaryIO
 
 import numpy as np
 
@@ -50,9 +50,14 @@ _CHUNK_ROWS = 50_000
 _ENCODING_TROUBLE = re.compile(r"encoding|character set", re.IGNORECASE)
 _XPT_RECORD = 80  # transport files are made of 80-byte records
 _XPT_OBS = b"HEADER RECORD*******OBS"  # opens the observations (OBS in v5, OBSV8 in v8/v9)
+#: format -> variables that share one byte of a row at most. A .dta row stores each value in
+#: a byte or more; a compressed .sav row spends a command byte per value (8 per byte is a safe
+#: bound). zsav (zlib) and .sas7bdat (RLE) rows can shrink too much for a useful bound.
+_VARS_PER_BYTE = {"dta": 1, "sav": 8}
+_SAV_HEADER = 176  # bytes of a .sav file before its dictionary records
 _DTA_OPEN = b"<stata_dta>"
 _DTA_CLOSE = b"</stata_dta>"
-_DTA_TAIL = 64  # bytes read from the end of a Stata file to find its closing tag
+_DTA_TAIL = 64  # bytes read from the end of a .dta file to find its closing tag
 
 
 def stat_columns(path: Path, fmt: str, encoding: str = "utf-8") -> list[str]:
@@ -69,7 +74,7 @@ def read_stat(
     progress: bool = False,
     encoding: str = "utf-8",
 ) -> RawTable:
-    """Read a SAS, SPSS, Stata or transport file with pyreadstat into a RawTable."""
+    """Read a .sas7bdat, .sav, .dta or transport file with pyreadstat into a RawTable."""
     meta = _metadata(path, fmt, encoding)
     names = select_columns(path, meta.column_names, columns)
     kinds = meta.readstat_variable_types
@@ -104,7 +109,9 @@ def _call(path: Path, fmt: str, encoding: str, **kwargs: Any) -> tuple[pd.DataFr
         frame, meta = getattr(pyreadstat, func)(str(path), **kwargs)
     except UnicodeError as exc:
         raise encoding_error(path, exc, encoding) from exc
-    except (pyreadstat.ReadstatError, pyreadstat.PyreadstatError, OSError, ValueError) as exc:
+    except (pyreadstat.ReadstatError, pyreadstat.PyreadstatError, OSError, ValueError,
+            IndexError, KeyError, TypeError, OverflowError, MemoryError) as exc:
+        # pyreadstat's callbacks raise plain IndexError & co. when a header lies about sizes.
         if _ENCODING_TROUBLE.search(str(exc)):
             raise encoding_error(path, exc, encoding) from exc
         raise ReadError(
@@ -117,18 +124,111 @@ def _metadata(path: Path, fmt: str, encoding: str) -> Any:
     """Read only the metadata of a file (names, types, labels, row count)."""
     if fmt == "dta":
         _check_dta_end(path)
+    elif fmt in ("sav", "zsav"):
+        _check_sav_dictionary(path)
     meta = _call(path, fmt, encoding, metadataonly=True)[1]
+    _check_row_count(path, fmt, meta)
     if fmt == "xpt":
-        _check_xpt_end(path, sum(meta.variable_storage_width.values()))
+        widths = getattr(meta, "variable_storage_width", None) or {}
+        _check_xpt_end(path, sum(int(w or 0) for w in widths.values()))
     return meta
 
 
+def _check_sav_dictionary(path: Path) -> None:
+    """Raise ReadError when a .sav dictionary points value labels at a missing variable."""
+    # readstat crashes (segmentation fault) on such a label record instead of failing.
+    import struct
+
+    with open(path, "rb") as fh:
+        head = fh.read(_SAV_HEADER)
+        if len(head) < _SAV_HEADER or head[:4] not in (b"$FL2", b"$FL3"):
+            return  # not a system file: readstat says so itself
+        order = "<" if struct.unpack("<i", head[64:68])[0] in (2, 3) else ">"
+        slots = 0
+        while (kind := _sav_int(fh, order)) not in (None, 999):
+            if kind == 2:
+                slots += 1
+                _sav_skip_variable(fh, order)
+            elif kind == 3:
+                _sav_check_labels(fh, order, slots, path)
+            elif kind == 6:
+                fh.seek(80 * _sav_count(fh, order, path), 1)
+            elif kind == 7:
+                fh.seek(4, 1)
+                fh.seek(_sav_count(fh, order, path) * _sav_count(fh, order, path), 1)
+            else:
+                return  # an unknown record: readstat reports it
+
+
+def _sav_int(fh: BinaryIO, order: str) -> int | None:
+    """Read one 32-bit integer of the dictionary, or None at the end of the file."""
+    import struct
+
+    raw = fh.read(4)
+    return struct.unpack(order + "i", raw)[0] if len(raw) == 4 else None
+
+
+def _sav_count(fh: BinaryIO, order: str, path: Path) -> int:
+    """Read a count or size of the dictionary, checking it is not negative."""
+    value = _sav_int(fh, order)
+    if value is None or value < 0:
+        raise ReadError(f"'{path}' is damaged: its dictionary is cut or holds a negative count; "
+                        "download or export the file again")
+    return value
+
+
+def _sav_skip_variable(fh: BinaryIO, order: str) -> None:
+    """Skip the rest of a variable record (type 2): fixed part, label, missing values."""
+    import struct
+
+    fixed = fh.read(28)
+    if len(fixed) < 28:
+        return
+    _width, has_label, n_missing = struct.unpack(order + "3i", fixed[:12])
+    if has_label == 1:
+        length = _sav_int(fh, order) or 0
+        fh.seek(max(length, 0) + (-max(length, 0)) % 4, 1)
+    fh.seek(8 * abs(n_missing), 1)
+
+
+def _sav_check_labels(fh: BinaryIO, order: str, slots: int, path: Path) -> None:
+    """Skip a value-label record (type 3) and check the variables its type-4 record names."""
+    for _ in range(_sav_count(fh, order, path)):  # one value and its label per turn
+        length = fh.read(9)[8:]
+        if not length:
+            return  # cut: readstat reports it
+        fh.seek(length[0] + (-(length[0] + 1)) % 8, 1)  # label padded with its length byte
+    if _sav_int(fh, order) != 4:
+        return  # readstat reports the missing variable-index record
+    count = _sav_count(fh, order, path)
+    raw = fh.read(4 * count)
+    indices = np.frombuffer(raw, dtype=order + "i4", count=len(raw) // 4)
+    if ((indices < 1) | (indices > slots)).any():
+        raise ReadError(f"'{path}' is damaged: value labels point at a variable that does not "
+                        "exist; download or export the file again")
+
+
+def _check_row_count(path: Path, fmt: str, meta: Any) -> None:
+    """Raise ReadError when the header promises more rows than the file's size can hold."""
+    # A damaged row count makes readstat allocate for millions of rows before it fails.
+    rows = getattr(meta, "number_rows", None)
+    if fmt not in _VARS_PER_BYTE or not isinstance(rows, int) or rows <= 0:
+        return
+    per_row = max(1, len(meta.column_names) // _VARS_PER_BYTE[fmt])
+    size = path.stat().st_size
+    if rows * per_row > size:
+        raise ReadError(
+            f"'{path}' is damaged: its header says {rows} rows, more than its {size} bytes "
+            "can hold; download or export the file again"
+        )
+
+
 def _check_dta_end(path: Path) -> None:
-    """Raise ReadError when a Stata 117+ file (XML-like tags) lacks its closing tag."""
+    """Raise ReadError when a .dta (format 117+) file (XML-like tags) lacks its closing tag."""
     # pyreadstat reads such a file without its value labels and says nothing.
     with open(path, "rb") as fh:
         if fh.read(len(_DTA_OPEN)) != _DTA_OPEN:
-            return  # Stata 104-115: a binary layout without tags
+            return  # .dta formats 104-115: a binary layout without tags
         fh.seek(max(path.stat().st_size - _DTA_TAIL, 0))
         tail = fh.read().rstrip(b" \t\r\n\x00")
     if not tail.endswith(_DTA_CLOSE):
