@@ -62,8 +62,16 @@ def test_summary_keys_and_values() -> None:
 
 def test_fpc_counts_and_fractions() -> None:
     # f_h = n_h / N_h for counts > 1, the value itself in (0, 1] (REFERENCES section 1)
-    b = Design("w", strata="st", psu="cl", fpc="N").bind(_basic(N=[10, 10, 0.25, 0.25, .25, .25]))
+    b = Design("w", strata="st", psu="cl", fpc="N").bind(_basic(N=[10, 10, 20, 20, 20, 20]))
+    assert b.f_h.tolist() == [0.2, 0.1]
+    b = Design("w", strata="st", psu="cl", fpc="N").bind(_basic(N=[.2, .2, .25, .25, .25, .25]))
     assert b.f_h.tolist() == [0.2, 0.25]
+
+
+def test_fpc_mixing_counts_and_fractions_is_refused() -> None:
+    # A column is either counts or fractions; a mix is almost always a data error.
+    with pytest.raises(DesignError, match="mixes sampling fractions"):
+        Design("w", strata="st", psu="cl", fpc="N").bind(_basic(N=[10, 10, .25, .25, .25, .25]))
 
 
 def test_drop_incomplete_reports_dropped_rows() -> None:
