@@ -9,7 +9,7 @@ from wstats._reliability import STANDARDS
 from wstats.errors import UsageError
 
 DESIGN = {"weight": "FINALWT", "strata": "STRAT_ID", "psu": "CLUSTER_ID", "fpc": None,
-          "n_strata": 12, "n_psu": 36, "df": 24, "singleton": "center",
+          "n_strata": 12, "n_psu": 36, "df": 24, "singleton": "center", "singleton_strata": 2,
           "variance_method": "linearization", "replicate_method": None, "n_replicates": 0}
 SETTINGS = {"level": 0.9, "proportion_ci": "korn-graubard"}
 REASONS = {"skipped": 903, "dont_know": 41, "refused": 12, "invalid": 0, "not_eligible": 7}
@@ -29,7 +29,8 @@ def test_states_every_required_fact() -> None:
     text = _text()
     for fact in ("tbchs_sample.xpt", "weighted by FINALWT", "Taylor linearization",
                  "12 strata, 36 PSUs, 24 degrees of freedom",
-                 "variance contribution measured around the overall mean",
+                 "2 strata with a single PSU were given a variance contribution measured "
+                 "around the mean of all PSU totals",
                  "90% level", "Korn–Graubard", "not asked an item",
                  "don't know, refused and not eligible for the item",
                  "EXER_FREQ: 888 → 0", "from 1.2% to 18.4%", "'nchs-2017'",

@@ -17,12 +17,10 @@ __all__ = ["escape_latex", "escape_markdown", "methods_paragraph"]
 
 _SINGLETON = {
     "fail": "No stratum had a single PSU (wstats stops when it finds one).",
-    "certainty": "Strata with a single PSU were treated as certainty units that add nothing "
-                 "to the variance.",
-    "center": "Strata with a single PSU were given a variance contribution measured around "
-              "the overall mean.",
-    "collapse": "Strata with a single PSU were merged with a neighbouring stratum before "
-                "variances were computed.",
+    "certainty": "were treated as certainty units that add nothing to the variance.",
+    "center": "were given a variance contribution measured around the mean of all PSU totals.",
+    "collapse": "were merged with the next stratum in sort order before variances were "
+                "computed.",
 }
 _REPLICATES = {
     "brr": "balanced repeated replication", "fay": "Fay-adjusted balanced repeated replication",
@@ -144,7 +142,11 @@ def _variance_sentence(d: Mapping[str, Any]) -> str:
              f"({_number(d.get('n_strata'))} strata, {_number(d.get('n_psu'))} PSUs, {df} "
              "degrees of freedom).")
     singleton = str(d.get("singleton") or "fail")
-    return parts + " " + _SINGLETON.get(singleton, f"Single-PSU strata: {singleton}.")
+    count = int(d.get("singleton_strata") or 0)
+    if singleton == "fail" or count == 0:
+        return parts + " No stratum had a single PSU."
+    strata = "One stratum" if count == 1 else f"{count} strata"
+    return f"{parts} {strata} with a single PSU {_SINGLETON.get(singleton, singleton)}"
 
 
 def _interval_sentence(settings: Mapping[str, Any]) -> str:
