@@ -287,17 +287,16 @@ def test_overwrite_in_a_child_process(run_cli: Run, project: Path) -> None:
     assert leftovers(out.parent) == []
 
 
-def test_overwrite_breaks_a_hard_link_instead_of_writing_through_it(run_cli: Run,
-                                                                    project: Path) -> None:
-    # out/est.json is a second name of the data file: replacing it must not change the data.
+def test_overwrite_refuses_a_hard_link_to_an_input(run_cli: Run, project: Path) -> None:
+    # out/est.json is a second name of the data file: it is an input, even under --overwrite.
     data = project / "survey.csv"
     before = fingerprint([data])
     os.link(data, project / "out" / "est.json")
     proc = run_cli("estimate", "survey.csv", "SLEEP", *DESIGN, "--format", "json", "-o",
                    "out/est.json", "--overwrite", cwd=project)
-    assert proc.returncode == 0, proc.stderr
+    assert proc.returncode == 3, proc.stderr
+    assert "is an input of this command" in proc.stderr
     assert fingerprint([data]) == before
-    assert json.loads((project / "out" / "est.json").read_text(encoding="utf-8"))["results"]
 
 
 @pytest.mark.parametrize("victim", ["survey.csv", "codebook.toml"])
