@@ -92,7 +92,8 @@ def write_survey(frame: Any, path: Path) -> Path:
     elif fmt == "parquet":
         frame.to_parquet(path, index=False)
     elif fmt == "xpt":
-        pyreadstat.write_xport(frame, str(path), column_labels=labels, table_name="FIXTURE")
+        pyreadstat.write_xport(frame, str(path), column_labels=labels, table_name="FIXTURE",
+                               file_format_version=5)  # the public-use layout: fast reader
     elif fmt == "sav":
         pyreadstat.write_sav(frame, str(path), column_labels=labels,
                              variable_value_labels=values)

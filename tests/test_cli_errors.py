@@ -231,7 +231,20 @@ def test_csv_not_utf8(run_cli: Run, survey_copy: Callable[[str], Path], tmp_path
                  absent=(out,))
 
 
-@pytest.mark.parametrize("fmt", ["sav", "dta", "xpt"])
+def test_transport_label_not_utf8_reads_as_latin1(run_cli: Run, survey_copy: Callable[[str], Path],
+                                                  tmp_path: Path) -> None:
+    # A v5 transport file declares no encoding; the fast reader falls back to latin-1 per
+    # value (common practice for files from older systems, no source), so the label survives.
+    data = survey_copy("xpt")
+    raw = data.read_bytes()
+    data.write_bytes(raw.replace(b"Hours of sleep", b"Hours of sl\xe9ep"))  # same length
+    out = tmp_path / "cb.toml"
+    proc = run_cli("codebook", "draft", data, "-o", out)
+    assert proc.returncode == 0, proc.stderr
+    assert "Hours of sl\u00e9ep" in out.read_text(encoding="utf-8")
+
+
+@pytest.mark.parametrize("fmt", ["sav", "dta"])
 def test_label_not_utf8(run_cli: Run, survey_copy: Callable[[str], Path], tmp_path: Path,
                         fmt: str) -> None:
     data = survey_copy(fmt)
