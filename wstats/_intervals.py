@@ -82,13 +82,14 @@ def t_quantile(df: npt.ArrayLike, level: float) -> Array:
     >>> round(float(t_quantile(30, 0.95)), 6)
     2.042272
     """
-    from scipy import stats
+    # scipy.special gives the same quantiles as scipy.stats bit for bit, at half the import
+    from scipy.special import ndtri, stdtrit
 
     q = 1.0 - _alpha(level) / 2.0
     d = _f(df)
     ok = np.isfinite(d) & (d > 0)
-    out = np.where(np.isposinf(d), stats.norm.ppf(q), np.nan)
-    return _f(np.where(ok, stats.t.ppf(q, np.where(ok, d, 1.0)), out))
+    out = np.where(np.isposinf(d), ndtri(q), np.nan)
+    return _f(np.where(ok, stdtrit(np.where(ok, d, 1.0), q), out))
 
 
 def wald_t(
@@ -171,7 +172,7 @@ def effective_n(p: npt.ArrayLike, se: npt.ArrayLike, n: npt.ArrayLike) -> Array:
     p, se, n = _f(p), _f(se), _f(n)
     var = se * se
     use_n = (p == 0) | (p == 1) | (var == 0)
-    with np.errstate(divide="ignore", invalid="ignore"):
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
         raw = np.where(use_n, n, p * (1.0 - p) / np.where(use_n, 1.0, var))
     return _f(np.where(n > 0, np.minimum(raw, n), np.nan))
 
@@ -238,7 +239,7 @@ def clopper_pearson(x: npt.ArrayLike, n: npt.ArrayLike, level: float) -> tuple[A
     >>> round(float(low), 6), round(float(high), 6)
     (0.068311, 0.407037)
     """
-    from scipy import stats
+    from scipy.special import betaincinv
 
     a = _alpha(level)
     xx, nn = np.broadcast_arrays(_f(x), _f(n))
@@ -246,9 +247,9 @@ def clopper_pearson(x: npt.ArrayLike, n: npt.ArrayLike, level: float) -> tuple[A
     # Below 1e-4 successes (failures) the limit is below q^(1/1e-4): zero in double precision;
     # the beta quantile is inaccurate or overflows for such tiny shape parameters.
     has_low, has_high = ok & (xx >= _TINY), ok & (nn - xx >= _TINY)
-    low_q = stats.beta.ppf(a / 2.0, np.where(has_low, xx, 1.0), np.where(has_low, nn - xx + 1, 1.0))
-    high_q = stats.beta.ppf(
-        1.0 - a / 2.0, np.where(has_high, xx + 1, 1.0), np.where(has_high, nn - xx, 1.0)
+    low_q = betaincinv(np.where(has_low, xx, 1.0), np.where(has_low, nn - xx + 1, 1.0), a / 2.0)
+    high_q = betaincinv(
+        np.where(has_high, xx + 1, 1.0), np.where(has_high, nn - xx, 1.0), 1.0 - a / 2.0
     )
     low = np.where(has_low, low_q, np.where(ok, 0.0, np.nan))
     high = np.where(has_high, high_q, np.where(ok, 1.0, np.nan))
