@@ -14,6 +14,7 @@ import hashlib
 import os
 import stat
 import tempfile
+import threading
 from collections.abc import Iterator
 from contextlib import AbstractContextManager, contextmanager
 from pathlib import Path
@@ -21,7 +22,7 @@ from typing import IO, Any, Literal, overload
 
 from wstats.errors import OutputError, ReadError
 
-__all__ = ["atomic_output", "atomic_write", "check_output", "sha256_of"]
+__all__ = ["atomic_output", "atomic_write", "check_output", "prefetch_sha256", "sha256_of"]
 
 _CHUNK = 1 << 20
 _FULL = (errno.ENOSPC, errno.EDQUOT)
@@ -163,6 +164,58 @@ def sha256_of(path: str | os.PathLike[str]) -> str:
     ReadError
         The file is missing or cannot be read.
     """
+    pending = _PENDING.pop(_identity(path), None)
+    if pending is not None:
+        pending.join()
+        if pending.digest is not None:
+            return pending.digest
+    return _digest(path)
+
+
+def prefetch_sha256(path: str | os.PathLike[str]) -> None:
+    """Start hashing *path* on another thread; a later :func:`sha256_of` collects the digest.
+
+    The provenance of a large input costs a full read of the file (about 1 s per GB); done
+    beside reading and estimating it runs on the second core. A file that changes in between
+    (size, modification time or inode) is hashed again.
+    """
+    key = _identity(path)
+    if key is None or key in _PENDING:
+        return
+    job = _HashJob(path)
+    _PENDING[key] = job
+    job.start()
+
+
+class _HashJob(threading.Thread):
+    """A daemon thread computing one file's digest (None when the file cannot be read)."""
+
+    def __init__(self, path: str | os.PathLike[str]) -> None:
+        super().__init__(daemon=True)
+        self.path = path
+        self.digest: str | None = None
+
+    def run(self) -> None:
+        try:
+            self.digest = _digest(self.path)
+        except ReadError:
+            self.digest = None
+
+
+_PENDING: dict[tuple[str, int, int, int] | None, _HashJob] = {}
+
+
+def _identity(path: str | os.PathLike[str]) -> tuple[str, int, int, int] | None:
+    """Return (real path, size, mtime_ns, inode) of *path*, or None if it cannot be seen."""
+    try:
+        st = os.stat(path)
+    except OSError:
+        return None
+    return os.path.realpath(path), st.st_size, st.st_mtime_ns, st.st_ino
+
+
+def _digest(path: str | os.PathLike[str]) -> str:
+    """Hash *path* in 1 MiB chunks (hashlib releases the GIL for such buffers)."""
     digest = hashlib.sha256()
     try:
         with open(path, "rb") as fh:

@@ -107,9 +107,17 @@ def _emit(obj: Any, kind: str, args: argparse.Namespace, inputs: Sequence[str],
 
 
 def _check_outputs(args: argparse.Namespace, inputs: Sequence[str | None]) -> None:
-    """Refuse unwritable outputs before any work is done (they are checked again at write)."""
-    from wstats._io import check_output
+    """Refuse unwritable outputs before any work is done (they are checked again at write).
 
+    When the result will be written with its provenance, the inputs' SHA-256 digests are
+    started on another thread now, so that hashing overlaps reading and estimating.
+    """
+    from wstats._io import check_output, prefetch_sha256
+
+    if getattr(args, "output", None) or format_for(args) != "table":
+        for name in inputs:
+            if name:
+                prefetch_sha256(name)
     for out in (getattr(args, "output", None), getattr(args, "plot", None)):
         if out:
             _not_an_input(out, inputs)
