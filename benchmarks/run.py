@@ -1,21 +1,25 @@
 """Benchmark wstats against the baselines named in docs/performance.md.
 
-One command:  .venv/bin/python benchmarks/run.py [--repeat 5] [--cache DIR]
+One command (from the repository root):
+
+    .venv/bin/python benchmarks/run.py [--repeat 5] [--cache DIR] [--json OUT.json]
 
 It builds the 464,664 x 283 demo-scenario transport file once (cached outside the repository,
-default ~/.cache/wstats-bench), its Parquet cache and a 2x-rows copy, then times whole
-processes in the same run, each several times (median and min-max), with the peak resident
-memory of each process from ``os.wait4``:
+default ~/.cache/wstats-bench; several minutes the first time), its Parquet cache and a
+2x-rows copy, then times whole processes in the same run, each several times after one warm-up
+(median and min-max), with the peak resident memory of each process from ``os.wait4``:
 
   A  wstats estimate FILE.xpt, 10 variables, weight/strata/PSU, codebook, JSON out
-  B  pyreadstat.read_xport(FILE, usecols=the same 13 columns)
+  B  pyreadstat.read_xport(FILE, usecols=the raw columns A reads)
   C  cat FILE > /dev/null
-  D  wstats estimate FILE.xpt on all item variables by a 5-level domain
-  E  pyreadstat.read_xport(FILE) (every column)
+  D  wstats estimate FILE.xpt on every item variable by the 5-level AGE_GRP domain
+  E  pyreadstat.read_xport(FILE) (every column; fewer runs, no warm-up: it is slow)
   F  A on the Parquet cache
   A2 A on the 2x-rows file (memory must not grow beyond the selected columns)
+  H  wstats --help (start-up)
 
-and prints the ratios A/B, A/C, D/E, F/B against their targets, and the machine.
+and prints the ratios A/B, A/C, D/E, F/B against their targets, the memory targets, and the
+machine (cores, RAM, load average before and after: timings on a shared machine are noisy).
 """
 
 from __future__ import annotations
@@ -29,44 +33,52 @@ import subprocess
 import sys
 import time
 from pathlib import Path
+from typing import Any
 
 ROWS, COLUMNS = 464_664, 283
 HERE = Path(__file__).resolve().parent
-TEN = ["GENHLTH", "SLEEPHRS", "FRUITFRQ", "SYSBP", "VIGDAYS", "PHYSDAYS", "MENTDAYS",
-       "SMKNOW", "BMI", "INCGRP"]
-DESIGN = ["--weight", "FINALWT", "--strata", "STRAT_ID", "--psu", "CLUSTRID"]
-
-
-def _python() -> str:
-    return sys.executable
+ROOT = HERE.parent
+# A realistic mix: a categorical item (proportions per level), 1/2/3-digit don't-know and
+# refused codes (7/9, 77/99, 777/999), "none" codes (88/888 = 0), a unit-prefixed frequency
+# (FRUIT: 1xx/day ... 4xx/year), a skip-pattern follow-up (TOB_NOW), a measurement with
+# "not measured" blanks (SYS_BP) and a derived variable (BMI from WT_KG and HT_CM).
+TEN = ["GENHLTH", "SLEEPHRS", "PHYSDAYS", "FRUIT", "VIG_DAYS", "BMI", "SYS_BP", "TOB_NOW",
+       "INCOME", "ALC_DAYS"]
+WEIGHT, STRATA, PSU = "FINALWT", "STRAT_ID", "CLUST_ID"
+DESIGN = ["--weight", WEIGHT, "--strata", STRATA, "--psu", PSU]
+DOMAIN = "AGE_GRP"  # 5 levels
+NOT_ITEMS = {"RESP_ID", "BASEWT", WEIGHT, STRATA, PSU, DOMAIN}  # design/id columns, domain
+TARGETS = {"A/B": 0.10, "A/C": 5.0, "D/E": 0.20, "F/B": None}
 
 
 def _wstats() -> list[str]:
-    return [_python(), "-m", "wstats", "--quiet"]
+    return [sys.executable, "-m", "wstats", "--quiet"]
 
 
-def timed(cmd: list[str], stdout: int | None = subprocess.DEVNULL) -> tuple[float, float]:
-    """Run *cmd*; return (wall seconds, peak RSS in MB) of that process alone."""
+def timed(cmd: list[str]) -> tuple[float, float]:
+    """Run *cmd* (stdout discarded); return (wall seconds, peak RSS in MB) of that process."""
     start = time.perf_counter()
-    proc = subprocess.Popen(cmd, stdout=stdout, stderr=subprocess.PIPE)
+    proc = subprocess.Popen(cmd, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE, cwd=ROOT)
+    assert proc.stderr is not None
+    err = proc.stderr.read().decode()  # read before waiting: a full pipe would block it
     _, status, usage = os.wait4(proc.pid, 0)
     wall = time.perf_counter() - start
-    err = proc.stderr.read().decode() if proc.stderr else ""
     proc.returncode = os.waitstatus_to_exitcode(status)
     if proc.returncode != 0:
         raise SystemExit(f"benchmark command failed ({proc.returncode}): {' '.join(cmd)}\n{err}")
-    return wall, usage.ru_maxrss / 1024.0
+    return wall, usage.ru_maxrss / 1024.0  # Linux: kilobytes
 
 
-def measure(name: str, cmd: list[str], repeat: int) -> dict[str, float]:
-    """Time *cmd* *repeat* times after one warm-up run."""
-    timed(cmd)
+def measure(name: str, cmd: list[str], repeat: int, warm_up: bool = True) -> dict[str, Any]:
+    """Time *cmd* *repeat* times (after one warm-up run); print and return the summary."""
+    if warm_up:
+        timed(cmd)
     runs = [timed(cmd) for _ in range(repeat)]
     walls = [w for w, _ in runs]
     row = {"median": statistics.median(walls), "min": min(walls), "max": max(walls),
-           "rss_mb": max(r for _, r in runs)}
-    print(f"  {name:<3} {row['median']:8.3f} s  (min {row['min']:.3f}, max {row['max']:.3f})"
-          f"  peak RSS {row['rss_mb']:8.1f} MB   {' '.join(cmd[-6:])[:70]}", flush=True)
+           "rss_mb": max(r for _, r in runs), "runs": len(runs)}
+    print(f"  {name:<3} {row['median']:8.3f} s  (min {row['min']:.3f}, max {row['max']:.3f}, "
+          f"{len(runs)} runs)  peak RSS {row['rss_mb']:7.0f} MB", flush=True)
     return row
 
 
@@ -75,73 +87,104 @@ def build(cache: Path, rows: int) -> dict[str, Path]:
     folder = cache / f"tbchs_{rows}x{COLUMNS}"
     xpt = folder / "tbchs_sample.xpt"
     if not xpt.exists():
-        print(f"building {rows:,} x {COLUMNS} demo-scenario file in {folder} (once) ...",
-              flush=True)
-        sys.path.insert(0, str(HERE.parent))
+        print(f"building {rows:,} x {COLUMNS} demo-scenario file in {folder} (once; several "
+              "minutes) ...", flush=True)
+        sys.path.insert(0, str(ROOT))
         from demo import write_demo
 
-        write_demo(folder, rows=rows, columns=COLUMNS, formats=("xpt",), overwrite=True)
+        write_demo(folder, rows=rows, columns=COLUMNS, formats=("xpt",))
     parquet = folder / "tbchs_sample.parquet"
     if not parquet.exists():
-        subprocess.run([*_wstats(), "convert", str(xpt), str(parquet)], check=True)
+        print(f"converting {xpt.name} to Parquet (once) ...", flush=True)
+        subprocess.run([*_wstats(), "convert", str(xpt), str(parquet)], check=True, cwd=ROOT)
     return {"xpt": xpt, "parquet": parquet, "codebook": folder / "tbchs_codebook.toml"}
 
 
-def item_columns(xpt: Path) -> list[str]:
-    """Return every column except the design, id and domain columns."""
-    out = subprocess.run([*_wstats(), "columns", str(xpt)], check=True, capture_output=True,
-                         text=True).stdout.split()
-    skip = {"FINALWT", "STRAT_ID", "CLUSTRID", "RESP_ID", "AGE_GRP"}
-    return [c for c in out if c not in skip]
+def columns_of(xpt: Path, codebook: Path) -> tuple[list[str], list[str]]:
+    """Return (the raw columns A reads, the item variables of D)."""
+    sys.path.insert(0, str(ROOT))
+    from wstats._codebook import load_codebook
+    from wstats._readers import file_columns
+
+    raw_a = [*load_codebook(codebook).raw_columns_for(TEN), WEIGHT, STRATA, PSU]
+    items = [c for c in file_columns(xpt) if c not in NOT_ITEMS]
+    return list(dict.fromkeys(raw_a)), items
+
+
+def commands(files: dict[str, Path], double: dict[str, Path], raw_a: list[str],
+             items: list[str]) -> dict[str, list[str]]:
+    """Return the command line of every timed case."""
+    xpt, cb = str(files["xpt"]), str(files["codebook"])
+    tail = ["--codebook", cb, *DESIGN, "--format", "json"]
+    read = "import pyreadstat; pyreadstat.read_xport({!r}{})"
+    return {
+        "A": [*_wstats(), "estimate", xpt, *TEN, *tail],
+        "B": [sys.executable, "-c", read.format(xpt, f", usecols={raw_a!r}")],
+        "C": ["sh", "-c", f"cat '{xpt}' > /dev/null"],
+        "D": [*_wstats(), "estimate", xpt, *items, "--by", DOMAIN, *tail],
+        "E": [sys.executable, "-c", read.format(xpt, "")],
+        "F": [*_wstats(), "estimate", str(files["parquet"]), *TEN, *tail],
+        "A2": [*_wstats(), "estimate", str(double["xpt"]), *TEN, "--codebook",
+               str(double["codebook"]), *DESIGN, "--format", "json"],
+        "H": [*_wstats(), "--help"],
+    }
+
+
+def machine() -> dict[str, Any]:
+    """Describe the machine: cores, RAM, platform, Python, load average."""
+    return {"cores": os.cpu_count(),
+            "ram_gib": round(os.sysconf("SC_PAGE_SIZE") * os.sysconf("SC_PHYS_PAGES") / 2**30, 1),
+            "platform": platform.platform(), "python": platform.python_version(),
+            "load_average": [round(x, 2) for x in os.getloadavg()]}
+
+
+def report(res: dict[str, dict[str, Any]], items: list[str], raw_a: list[str]) -> dict[str, Any]:
+    """Print ratios and memory against the targets; return them."""
+    ratio = {k: res[k[0]]["median"] / res[k[2]]["median"] for k in TARGETS}
+    print("ratios (median wall time):")
+    for k, v in ratio.items():
+        t = TARGETS[k]
+        verdict = "" if t is None else f"  target <= {t:.2f}: {'met' if v <= t else 'MISSED'}"
+        print(f"  {k:<4} {v:8.3f}{verdict}")
+    sel_d = (len(items) + 3 + 1) * ROWS * 8 / 2**20  # items, design, domain as float64
+    limit_d = 1.5 * sel_d + 200
+    sel_a = len(raw_a) * ROWS * 8 / 2**20
+    a, d, a2 = res["A"]["rss_mb"], res["D"]["rss_mb"], res["A2"]["rss_mb"]
+    print("memory (peak RSS):")
+    print(f"  A  {a:6.0f} MB (target <= 400): {'met' if a <= 400 else 'MISSED'}")
+    print(f"  D  {d:6.0f} MB (target <= 1.5 x {sel_d:.0f} MB selected + 200 = {limit_d:.0f}): "
+          f"{'met' if d <= limit_d else 'MISSED'}")
+    print(f"  A on 1x rows {a:.0f} MB, on 2x rows {a2:.0f} MB: grew {a2 - a:.0f} MB; the "
+          f"{len(raw_a)} selected columns grow by {sel_a:.0f} MB")
+    h = res["H"]["median"]
+    print(f"start-up: wstats --help {h:.3f} s (target < 0.3): {'met' if h < 0.3 else 'MISSED'}")
+    return {"ratios": ratio, "selected_mb_d": sel_d, "limit_mb_d": limit_d,
+            "selected_mb_a": sel_a}
 
 
 def main() -> None:
-    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    ap.add_argument("--repeat", type=int, default=5)
+    """Build (once), time every case, print the comparison."""
+    ap = argparse.ArgumentParser(description=(__doc__ or "").splitlines()[0])
+    ap.add_argument("--repeat", type=int, default=5, help="timed runs per case (default 5)")
+    ap.add_argument("--repeat-slow", type=int, default=2, help="timed runs of E (default 2)")
     ap.add_argument("--cache", type=Path, default=Path.home() / ".cache" / "wstats-bench")
+    ap.add_argument("--json", type=Path, help="also write the results here")
     args = ap.parse_args()
-    files = build(args.cache, ROWS)
-    double = build(args.cache, 2 * ROWS)
-    xpt, cb = str(files["xpt"]), str(files["codebook"])
-    items = item_columns(files["xpt"])
-    usecols = json.dumps([*TEN, "FINALWT", "STRAT_ID", "CLUSTRID"])
-    est = ["estimate", "--codebook", cb, *DESIGN, "--format", "json"]
-    cmds = {
-        "A": [*_wstats(), est[0], xpt, *TEN, *est[1:]],
-        "B": [_python(), "-c", f"import pyreadstat; pyreadstat.read_xport({xpt!r}, "
-              f"usecols={usecols})"],
-        "C": ["sh", "-c", f"cat '{xpt}' > /dev/null"],
-        "D": [*_wstats(), est[0], xpt, *items, *est[1:], "--by", "AGE_GRP"],
-        "E": [_python(), "-c", f"import pyreadstat; pyreadstat.read_xport({xpt!r})"],
-        "F": [*_wstats(), est[0], str(files["parquet"]), *TEN, *est[1:]],
-        "A2": [*_wstats(), est[0], str(double["xpt"]), *TEN, "--codebook",
-               str(double["codebook"]), *DESIGN, "--format", "json"],
-    }
-    print(f"machine: {os.cpu_count()} cores, "
-          f"{os.sysconf('SC_PAGE_SIZE') * os.sysconf('SC_PHYS_PAGES') / 2**30:.1f} GiB RAM, "
-          f"{platform.platform()}, Python {platform.python_version()}")
-    print(f"file: {xpt} ({files['xpt'].stat().st_size / 2**20:,.0f} MiB), "
-          f"{len(items)} item variables; each command {args.repeat} runs after a warm-up")
-    res = {k: measure(k, c, args.repeat if k != "E" else max(2, args.repeat // 2))
-           for k, c in cmds.items()}
-    ratio = {k: res[a]["median"] / res[b]["median"]
-             for k, (a, b) in {"A/B": ("A", "B"), "A/C": ("A", "C"), "D/E": ("D", "E"),
-                               "F/B": ("F", "B")}.items()}
-    targets = {"A/B": 0.10, "A/C": 5.0, "D/E": 0.20, "F/B": None}
-    print("ratios (median wall time):")
-    for k, v in ratio.items():
-        t = targets[k]
-        verdict = "" if t is None else ("  target <= %.2f: %s" % (t, "met" if v <= t else "MISSED"))
-        print(f"  {k:<4} {v:8.3f}{verdict}")
-    selected_mb = len(items) * ROWS * 8 / 2**20
-    print("memory:")
-    print(f"  A peak {res['A']['rss_mb']:.0f} MB (target <= 400): "
-          f"{'met' if res['A']['rss_mb'] <= 400 else 'MISSED'}")
-    limit = 1.5 * selected_mb + 200
-    print(f"  D peak {res['D']['rss_mb']:.0f} MB (target <= 1.5 x {selected_mb:.0f} + 200 = "
-          f"{limit:.0f}): {'met' if res['D']['rss_mb'] <= limit else 'MISSED'}")
-    print(f"  A on 1x rows {res['A']['rss_mb']:.0f} MB, on 2x rows {res['A2']['rss_mb']:.0f} MB"
-          f" (the 10+3 selected columns grow by {13 * ROWS * 8 / 2**20:.0f} MB)")
+    files, double = build(args.cache, ROWS), build(args.cache, 2 * ROWS)
+    raw_a, items = columns_of(files["xpt"], files["codebook"])
+    before = machine()
+    print(f"machine: {before['cores']} cores, {before['ram_gib']} GiB RAM, {before['platform']}, "
+          f"Python {before['python']}, load average {before['load_average']}")
+    print(f"file: {files['xpt']} ({files['xpt'].stat().st_size / 2**20:,.0f} MiB), A reads "
+          f"{len(raw_a)} raw columns, D {len(items)} item variables by {DOMAIN}")
+    res = {k: measure(k, c, args.repeat_slow if k == "E" else args.repeat, warm_up=k != "E")
+           for k, c in commands(files, double, raw_a, items).items()}
+    out = report(res, items, raw_a)
+    after = machine()["load_average"]
+    print(f"load average after: {after}")
+    if args.json:
+        args.json.write_text(json.dumps({"machine": before, "load_after": after, "cases": res,
+                                         **out}, indent=2) + "\n")
 
 
 if __name__ == "__main__":

@@ -15,6 +15,7 @@ import re
 import tomllib
 from collections.abc import Iterable, Mapping, Sequence
 from dataclasses import dataclass, field
+from functools import cached_property
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
@@ -54,6 +55,8 @@ _FAMILY = ("name", "match", "digits", "codes")
 _DERIVED = ("label", "kind", "expr", "labels")
 _UNIT = ("to", "units", "factors", "digits")
 _TAG_KEY = re.compile(r"^\.([A-Za-z_])$")
+_HEADER_NAME = re.compile(r'^\s*\[\s*([^\s.\[\]]+)\s*\.\s*"?([^".\]\s]*)')
+_WILD = re.compile(r"[*?\[]")
 _TOML_POS = re.compile(r"\s*\(at line (\d+), column (\d+)\)")
 
 
@@ -131,9 +134,20 @@ class Family:
 
     def applies(self, variable: str, digits: int | None) -> bool:
         """Tell whether the family covers *variable* whose largest code has *digits* digits."""
-        if self.match and not any(fnmatch.fnmatchcase(variable, g) for g in self.match):
+        if self.match and variable not in self._names and not any(
+                fnmatch.fnmatchcase(variable, g) for g in self._globs):
             return False
         return self.digits is None or self.digits == digits
+
+    @cached_property
+    def _names(self) -> frozenset[str]:
+        """The match entries without wildcards: a set lookup instead of a glob each."""
+        return frozenset(g for g in self.match if not _WILD.search(g))
+
+    @cached_property
+    def _globs(self) -> tuple[str, ...]:
+        """The match entries with wildcards."""
+        return tuple(g for g in self.match if _WILD.search(g))
 
 
 @dataclass(frozen=True)
@@ -148,17 +162,32 @@ class DerivedSpec:
 
 
 class _Locator:
-    """Name a place in a codebook file: the source and, when found, the TOML line."""
+    """Name a place in a codebook file: the source and, when found, the TOML line.
+
+    Header lines are indexed once by (table, name), so locating every table of a codebook
+    with hundreds of variables reads the text once, not once per table.
+    """
 
     def __init__(self, source: str, text: str | None) -> None:
         self.source, self.lines = source, (text.splitlines() if text else [])
+        self.headers = [(i, line) for i, line in enumerate(self.lines)
+                        if line.lstrip().startswith("[")]
+        self.by_name: dict[tuple[str, str], list[tuple[int, str]]] = {}
+        for i, line in self.headers:
+            m = _HEADER_NAME.match(line)
+            if m:
+                self.by_name.setdefault((m.group(1), m.group(2)), []).append((i, line))
 
     def table(self, head: str, name: str | None = None, nth: int = 0) -> str:
         """Return ``"<source> line N, [head.name]"`` for a table header (nth for arrays)."""
         label = f"[{head}.{name}]" if name is not None else f"[[{head}]] #{nth + 1}"
         pat = (re.compile(rf"^\s*\[\s*{head}\s*\.\s*\"?{re.escape(name)}\"?\s*[\].]")
                if name is not None else re.compile(rf"^\s*\[\[\s*{head}\s*\]\]"))
-        hits = [i for i, line in enumerate(self.lines) if pat.match(line)]
+        # only header lines can match; the (table, name) index narrows them further
+        lines = self.by_name.get((head, name), []) if name is not None else []
+        hits = [i for i, line in lines if pat.match(line)]
+        if not hits:
+            hits = [i for i, line in self.headers if pat.match(line)]
         if name is None:
             hits = hits[nth:nth + 1]
         if not hits and name is not None:
@@ -593,11 +622,14 @@ class Codebook:
             add(name)
         return list(out)
 
-    def decode(self, raw: RawTable) -> Dataset:
-        """Apply the codebook to raw columns; see :func:`decode`."""
+    def decode(self, raw: RawTable, consume: bool = False) -> Dataset:
+        """Apply the codebook to raw columns; see :func:`decode`.
+
+        With *consume* the caller gives *raw* up: its numeric arrays are decoded in place.
+        """
         from wstats._decode import decode_table
 
-        return decode_table(raw, self)
+        return decode_table(raw, self, consume)
 
 
 def _show(code: Any) -> str:

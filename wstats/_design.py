@@ -433,8 +433,26 @@ def _codes(col: DecodedColumn | None, rows: Index | None, n: int) -> tuple[Index
     values = _take(col.values, rows)
     if values.dtype.kind not in "fiub":
         values = values.astype(str)
+    uniq, inverse = _unique_inverse(values)
+    return inverse, [_label(col, v) for v in uniq.tolist()]
+
+
+def _unique_inverse(values: npt.NDArray[Any]) -> tuple[npt.NDArray[Any], Index]:
+    """Return the sorted distinct values and each value's position among them.
+
+    Whole numbers of a small span (strata, PSU numbers) take a bincount instead of a sort.
+    """
+    if values.dtype.kind in "fiu" and len(values):
+        lo, hi = values.min(), values.max()
+        if np.isfinite(lo) and np.isfinite(hi) and float(hi) - float(lo) <= 8 * len(values):
+            shifted = values - lo
+            codes = shifted.astype(np.int64)
+            if bool((codes == shifted).all()):
+                seen = np.bincount(codes) > 0
+                position = np.cumsum(seen) - 1
+                return (np.flatnonzero(seen) + lo).astype(values.dtype), position[codes]
     uniq, inverse = np.unique(values, return_inverse=True)
-    return inverse.astype(np.int64).ravel(), [_label(col, v) for v in uniq.tolist()]
+    return uniq, inverse.astype(np.int64).ravel()
 
 
 def _psu_index(stratum: Index, psu: Index | None) -> tuple[Index, Index]:
@@ -445,8 +463,8 @@ def _psu_index(stratum: Index, psu: Index | None) -> tuple[Index, Index]:
         index[order] = np.arange(len(stratum))
         return index, stratum[order]
     key = stratum * (int(psu.max(initial=0)) + 1) + psu
-    uniq, inverse = np.unique(key, return_inverse=True)
-    return inverse.astype(np.int64).ravel(), (uniq // (int(psu.max(initial=0)) + 1))
+    uniq, inverse = _unique_inverse(key)
+    return inverse, (uniq // (int(psu.max(initial=0)) + 1)).astype(np.int64)
 
 
 def _fpc(col: DecodedColumn | None, name: str | None, rows: Index | None, stratum: Index,

@@ -26,6 +26,7 @@ from wstats._stats import (
     Total,
     add_intervals,
     category_levels,
+    distinct_values,
     level_index,
 )
 from wstats._sums import Domains, WeightedSums
@@ -171,31 +172,49 @@ def _is_categorical(col: DecodedColumn, forced: set[str]) -> bool:
         return True
     if not col.value_labels or col.values.dtype.kind != "f":
         return False
-    seen = np.unique(col.values[col.reasons == VALID])
+    seen = distinct_values(col.values[col.reasons == VALID])
     return bool(len(seen)) and all(float(v) in col.value_labels for v in seen)
 
 
 def _run(ctx: Context, variables: Sequence[str], stats: list[str] | None, forced: set[str],
          ratios: Sequence[tuple[str, str]], quantiles: Sequence[float], ci: str) -> list[Piece]:
-    """Call the statistics for every variable (loops over variables and statistics only)."""
-    pieces: list[Piece] = []
+    """Call the statistics for every variable (loops over variables and statistics only).
+
+    Under linearization, means, totals and proportions of all variables are computed in one
+    batched pass (:mod:`wstats._batch`); the output keeps the variable and statistic order.
+    """
+    from wstats._batch import BATCHED, batch_pieces
+
+    fast = not ctx.design.uses_replicates
+    slots: list[list[Piece] | tuple[str, str]] = []
     for name in variables:
         col = ctx.columns[name]
         wanted = stats or (["proportion"] if _is_categorical(col, forced) else ["mean"])
         for stat in wanted:
-            if stat == "mean":
-                pieces.append(Mean()(ctx, name))
-            elif stat == "total":
-                pieces.append(Total()(ctx, name))
-            elif stat == "proportion":
-                pieces.append(Proportion(ci)(ctx, name))
+            if fast and stat in BATCHED:
+                slots.append((name, stat))
+            elif stat in ("mean", "total", "proportion"):
+                slots.append([_one(ctx, name, stat, ci)])
             elif stat == "quantile":
-                pieces.extend(Quantile(p)(ctx, name) for p in quantiles)
-    for num, den in ratios:
-        pieces.append(Ratio()(ctx, num, den))
+                slots.append([Quantile(p)(ctx, name) for p in quantiles])
     if stats and "ratio" in stats and not ratios:
         raise EstimationError("statistic 'ratio' needs ratios=[(numerator, denominator)]")
+    batched = iter(batch_pieces(ctx, [s for s in slots if isinstance(s, tuple)], ci))
+    pieces: list[Piece] = []
+    for slot in slots:
+        pieces.extend([next(batched)] if isinstance(slot, tuple) else slot)
+    for num, den in ratios:
+        pieces.append(Ratio()(ctx, num, den))
     return pieces
+
+
+def _one(ctx: Context, name: str, stat: str, ci: str) -> Piece:
+    """Return one variable's mean, total or proportion (replicate designs)."""
+    if stat == "mean":
+        return Mean()(ctx, name)
+    if stat == "total":
+        return Total()(ctx, name)
+    return Proportion(ci)(ctx, name)
 
 
 def _domains(data: Dataset, bound: BoundDesign, by: list[str], where: str | None

@@ -56,7 +56,7 @@ def read(
     if cb is not None and needed is not None:
         _check_derived_inputs(cb, needed, str(path))
     raw = read_raw(str(path), needed, rows, progress, encoding=encoding)
-    data = (cb or Codebook()).decode(raw)
+    data = (cb or Codebook()).decode(raw, consume=True)  # raw is ours: decode in place
     if wanted is None:
         return data
     for name in wanted:

@@ -68,31 +68,45 @@ class Domains:
 
 
 class WeightedSums:
-    """Sums of row values by (PSU, domain), by domain, and by (replicate, domain)."""
+    """Sums of row values by (PSU, domain), by domain, and by (replicate, domain).
+
+    Every row of the population domain falls in exactly one *bucket*: its PSU crossed with
+    its by-cell (or with "no cell"). Row-level work is one sparse product per value column
+    into bucket sums (one matrix entry per row: its weight), so its cost does not grow with
+    the number of domains; (PSU, domain) pairs and domains are then small sums of buckets
+    (a row counts in the population pair of its PSU and, with a cell, in that cell's pair).
+    """
 
     def __init__(self, design: BoundDesign, domains: Domains) -> None:
         from scipy import sparse
 
         n, nd = design.n_rows, domains.n_domains
-        rows = np.arange(n)
-        pop, incell = rows[domains.inside], rows[domains.cell >= 0]
-        entry_row = np.concatenate([pop, incell])
-        entry_dom = np.concatenate([np.zeros(len(pop), np.int64), domains.cell[incell] + 1])
-        keys, inverse = np.unique(design.psu[entry_row] * nd + entry_dom, return_inverse=True)
         self.design = design
         self.domains = domains
         self.n_domains = nd
+        key = design.psu * nd + (domains.cell + 1)  # cell -1 (no cell) -> slot 0
+        bucket_key, self.bucket = _compact(key, domains.inside, design.n_psu * nd)
+        #: number of occupied buckets; ``bucket`` holds each row's (n_buckets: outside)
+        nb = self.n_buckets = len(bucket_key)
+        rows = np.flatnonzero(domains.inside)
+        self._a = sparse.csr_matrix((design.weights[rows], (self.bucket[rows], rows)),
+                                    shape=(nb, n))
+        b_psu, b_slot = bucket_key // nd, bucket_key % nd
+        in_cell = np.flatnonzero(b_slot > 0)
+        pair_key = np.unique(np.concatenate([b_psu * nd, bucket_key[in_cell]]))
         #: PSU and domain of every stored (PSU, domain) pair
-        self.pair_psu: Index = (keys // nd).astype(np.int64)
-        self.pair_domain: Index = (keys % nd).astype(np.int64)
-        self._a = sparse.csr_matrix(
-            (design.weights[entry_row], (inverse.ravel(), entry_row)), shape=(len(keys), n)
-        )
-        self._ind = sparse.csr_matrix(
-            (np.ones(len(entry_row)), (entry_dom, entry_row)), shape=(nd, n)
-        )
+        self.pair_psu: Index = (pair_key // nd).astype(np.int64)
+        self.pair_domain: Index = (pair_key % nd).astype(np.int64)
+        src = np.concatenate([np.arange(nb), in_cell])
+        to_pair = np.concatenate([np.searchsorted(pair_key, b_psu * nd),
+                                  np.searchsorted(pair_key, bucket_key[in_cell])])
+        ones = np.ones(len(src))
+        self._to_pair = sparse.csr_matrix((ones, (to_pair, src)), shape=(len(pair_key), nb))
+        to_domain = np.concatenate([np.zeros(nb, np.int64), b_slot[in_cell]])
+        self._to_domain = sparse.csr_matrix((ones, (to_domain, src)), shape=(nd, nb))
         self._pair_to_domain = sparse.csr_matrix(
-            (np.ones(len(keys)), (self.pair_domain, np.arange(len(keys)))), shape=(nd, len(keys))
+            (np.ones(len(pair_key)), (self.pair_domain, np.arange(len(pair_key)))),
+            shape=(nd, len(pair_key))
         )
 
     @property
@@ -100,20 +114,32 @@ class WeightedSums:
         """Rows used."""
         return self.design.n_rows
 
-    def pair_sums(self, x: Array) -> Array:
-        """Return sum over rows of w * x by (PSU, domain) pair: shape (pairs, V)."""
+    def bucket_sums(self, x: Array | Sequence[Array]) -> Array:
+        """Return sum over rows of w * x by bucket: shape (buckets, V)."""
         return _product(self._a, x)
+
+    def pair_sums(self, x: Array | Sequence[Array]) -> Array:
+        """Return sum over rows of w * x by (PSU, domain) pair: shape (pairs, V)."""
+        return self.to_pairs(self.bucket_sums(x))
+
+    def to_pairs(self, buckets: Array) -> Array:
+        """Return bucket sums (buckets, V) added up by (PSU, domain) pair."""
+        return np.asarray(self._to_pair @ buckets)
+
+    def bucket_domains(self, buckets: Array) -> Array:
+        """Return bucket sums (buckets, V) added up by domain: shape (D, V)."""
+        return np.asarray(self._to_domain @ buckets)
 
     @cached_property
     def _all_weight(self) -> Array:
         """Pair sums of the weights (x = 1), reused for variables valid in every row."""
-        return np.asarray(self._a @ np.ones(self.n_rows))[:, None]
+        return self.pair_sums(np.ones(self.n_rows))
 
     @cached_property
     def _all_counts(self) -> Array:
         """Domain counts, sums of w and of w^2 over all rows, as (D, 3)."""
         w = self.design.weights
-        return self.counts([np.ones(self.n_rows), w, w * w])
+        return self.counts([np.ones(self.n_rows), w, self._w2])
 
     def valid_pair_sums(self, valid: Bool) -> Array:
         """Return pair sums of w over valid rows: shape (pairs, 1)."""
@@ -126,6 +152,29 @@ class WeightedSums:
         v = valid.astype(np.float64)
         return self.counts([v, self.design.weights * v, self._w2 * v])
 
+    def invalid_counts(self, reasons: npt.NDArray[np.int8], n_reasons: int,
+                       valid: Bool | None = None) -> tuple[Index, Array]:
+        """Return counts per domain and reason code, and sums of w^2, of the non-valid rows.
+
+        Costs one pass over *reasons* (or the *valid* mask, when given) plus work on the
+        non-valid rows only: the valid rows' counts are the domain's rows minus these (see
+        :meth:`domain_rows`).
+        """
+        rows = np.flatnonzero(reasons if valid is None else ~valid)
+        b = self.bucket[rows]
+        nb = self.n_buckets
+        key = b * n_reasons + reasons[rows].astype(np.int64)
+        cnt = np.bincount(key, minlength=(nb + 1) * n_reasons)[: nb * n_reasons]
+        w2 = np.bincount(b, weights=self._w2[rows], minlength=nb + 1)[:nb].astype(np.float64)
+        by_domain = self.bucket_domains(cnt.reshape(nb, n_reasons).astype(np.float64))
+        return np.rint(by_domain).astype(np.int64), self.bucket_domains(w2)
+
+    @cached_property
+    def domain_rows(self) -> Array:
+        """Rows per domain and their sums of w^2: shape (D, 2)."""
+        ones = np.ones(self.n_rows)
+        return self.counts([ones, self._w2])
+
     @cached_property
     def _w2(self) -> Array:
         """Squared weights, for Kish's weighting effect."""
@@ -135,20 +184,22 @@ class WeightedSums:
         """Return pair sums added up by domain: shape (D, V)."""
         return np.asarray(self._pair_to_domain @ pair)
 
+    def _bucket_counts(self, x: Array | Sequence[Array]) -> Array:
+        """Return unweighted sums of x by bucket: shape (buckets, V)."""
+        cols = _columns(x)
+        out = np.empty((self.n_buckets, len(cols)))
+        for j, col in enumerate(cols):  # loop over value columns only
+            out[:, j] = np.bincount(self.bucket, weights=col,
+                                    minlength=self.n_buckets + 1)[: self.n_buckets]
+        return out
+
     def counts(self, x: Array | Sequence[Array]) -> Array:
         """Return unweighted sums of x by domain: shape (D, V) (x = a validity mask: counts)."""
-        return _product(self._ind, x)
-
-    @cached_property
-    def _ones(self) -> sparse.csr_matrix:
-        """The (PSU, domain) matrix with entries 1, for counts of members."""
-        a = self._a.copy()
-        a.data[:] = 1.0
-        return a
+        return self.bucket_domains(self._bucket_counts(x))
 
     def pair_counts(self, x: Array) -> Array:
         """Return unweighted sums of x by (PSU, domain) pair: shape (pairs, V)."""
-        return _product(self._ones, x)
+        return self.to_pairs(self._bucket_counts(x))
 
     @cached_property
     def strata_cells(self) -> tuple[Index, sparse.csr_matrix]:
@@ -159,6 +210,19 @@ class WeightedSums:
         size = self.design.n_strata * self.n_domains
         s = sparse.csr_matrix((np.ones(len(hd)), (hd, np.arange(len(hd)))), shape=(size, len(hd)))
         return hd.astype(np.int64), s
+
+    @cached_property
+    def _ind(self) -> sparse.csr_matrix:
+        """The domain x row membership matrix (replicate designs only)."""
+        from scipy import sparse
+
+        rows = np.arange(self.n_rows)
+        pop, incell = rows[self.domains.inside], rows[self.domains.cell >= 0]
+        entry_row = np.concatenate([pop, incell])
+        entry_dom = np.concatenate([np.zeros(len(pop), np.int64),
+                                    self.domains.cell[incell] + 1])
+        return sparse.csr_matrix((np.ones(len(entry_row)), (entry_dom, entry_row)),
+                                 shape=(self.n_domains, self.n_rows))
 
     def replicate_sums(self, x: Array) -> Array:
         """Return sums of replicate weight x x by (replicate, domain): shape (R, D, V)."""
@@ -175,13 +239,31 @@ class WeightedSums:
 
         The ``valid`` column (code 0) is left at 0: only the rows that are not valid are read.
         """
-        rows = np.flatnonzero(reasons)
-        code = reasons[rows].astype(np.int64)
-        pop = self.domains.inside[rows]
-        cell = self.domains.cell[rows]
-        key = np.concatenate([code[pop], (cell[cell >= 0] + 1) * n_reasons + code[cell >= 0]])
-        counts = np.bincount(key, minlength=self.n_domains * n_reasons)
-        return counts.reshape(self.n_domains, n_reasons).astype(np.int64)
+        return self.invalid_counts(reasons, n_reasons)[0]
+
+
+def _compact(key: Index, inside: Bool, size: int) -> tuple[Index, Index]:
+    """Return the occupied keys (sorted) and each row's position among them (outside: last+1).
+
+    A bincount finds the occupied keys when the key space is small; a sort otherwise.
+    """
+    k = key[inside]
+    if size <= 8 * max(len(key), 1):
+        seen = np.bincount(k, minlength=size) > 0
+        keys = np.flatnonzero(seen)
+        ids = (np.cumsum(seen) - 1)[k]
+    else:
+        keys, ids = np.unique(k, return_inverse=True)
+    bucket = np.full(len(key), len(keys), dtype=np.int64)
+    bucket[inside] = ids.ravel()
+    return keys.astype(np.int64), bucket
+
+
+def _columns(x: Array | Sequence[Array]) -> list[Array]:
+    """Return the value columns of a 1-D/2-D array or a sequence of 1-D arrays."""
+    if isinstance(x, np.ndarray):
+        return [x] if x.ndim == 1 else [x[:, j] for j in range(x.shape[1])]
+    return list(x)
 
 
 def _product(m: Any, x: Array | Sequence[Array]) -> Array:
@@ -190,10 +272,7 @@ def _product(m: Any, x: Array | Sequence[Array]) -> Array:
     Columns are multiplied one at a time: a contiguous column needs no copy into a row-major
     block, which on large files costs more than the products themselves.
     """
-    if isinstance(x, np.ndarray):
-        columns = [x] if x.ndim == 1 else [x[:, j] for j in range(x.shape[1])]
-    else:
-        columns = list(x)
+    columns = _columns(x)
     out = np.empty((m.shape[0], len(columns)))
     for j, col in enumerate(columns):  # loop over value columns only
         out[:, j] = m @ np.ascontiguousarray(col, dtype=np.float64)
