@@ -23,9 +23,10 @@ def _sample(seed: int, n: int) -> dict[str, np.ndarray]:
     rng = np.random.default_rng(seed)
     y = rng.normal(10, 4, n)
     y[rng.random(n) < 0.1] = np.nan
+    # 3 strata x 3 PSUs, every (stratum, PSU) cell filled, in random row order
+    cell = rng.permutation(np.arange(n) % 9)
     return {"y": y, "c": rng.integers(1, 4, n).astype(float), "w": rng.uniform(0.2, 5, n),
-            "st": rng.integers(0, 3, n), "psu": rng.integers(0, 3, n),
-            "g": rng.integers(0, 2, n).astype(float)}
+            "st": cell // 3, "psu": cell % 3, "g": rng.integers(0, 2, n).astype(float)}
 
 
 _DESIGN = Design("w", strata="st", psu="psu")
