@@ -217,10 +217,13 @@ def _number_cells(
 def nonresponse_grid(table: NonresponseLike) -> Grid:
     """Return the grid of a nonresponse table: a section per variable, a row per domain."""
     frame, by = table.frame, list(table.by)
-    reasons = [r for r in table.reasons if f"count_{r}" in frame.columns]
+    # core reasons always; a reason a codebook or file added only when some row has it
+    reasons = [r for r in table.reasons if f"count_{r}" in frame.columns
+               and (r in _REASON_HEADERS or bool((frame[f"count_{r}"] > 0).any()))]
     ci = f"{fmt_number(table.level * 100, 1).rstrip('0').rstrip('.')}% CI"
     cols = [*(Column(b, b, "l") for b in by), Column("n_rows", "Rows"), Column("asked", "Asked")]
-    cols += [Column(f"count_{r}", _REASON_HEADERS.get(r, r)) for r in reasons]
+    cols += [Column(f"count_{r}", _REASON_HEADERS.get(r, r.replace("_", " ").capitalize()))
+             for r in reasons]
     cols += [Column("rate", "Nonresponse"), Column("ci", ci)]
     notes, acc = FlagNotes(), _Rows()
     for (var,), sub in _sections(frame, ["variable"]):
