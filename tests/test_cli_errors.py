@@ -19,6 +19,7 @@ from typing import Any
 
 import numpy as np
 import pytest
+
 from conftest import CODEBOOK_TOML, permissions_enforced
 
 Run = Callable[..., subprocess.CompletedProcess[str]]

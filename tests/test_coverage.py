@@ -32,10 +32,10 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 import pytest
-from _demo_helpers import demo_codebook, raw_table
 from scipy import stats
 
 import demo
+from _demo_helpers import demo_codebook, raw_table
 from demo.write import value_labels
 from wstats import Design, estimate
 

@@ -19,9 +19,9 @@ from pathlib import Path
 from typing import Any
 
 import pytest
-from conftest import CODEBOOK_TOML, ROOT
 
 import wstats.render
+from conftest import CODEBOOK_TOML, ROOT
 from wstats.cli import main
 
 Run = Callable[..., subprocess.CompletedProcess[str]]

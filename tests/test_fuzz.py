@@ -22,10 +22,10 @@ from typing import Any
 
 import numpy as np
 import pytest
-from conftest import CODEBOOK_TOML, ROOT
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
+from conftest import CODEBOOK_TOML, ROOT
 from wstats._codebook import load_codebook
 from wstats._column import Dataset
 from wstats._expr import parse_expression

@@ -9,9 +9,9 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 import pytest
+
 from render_tables import PROVENANCE
 from test_render import check_golden, draw
-
 from wstats._cellfmt import fmt_count, fmt_number
 from wstats._pubtable import build_table, load_table_spec
 from wstats.errors import AnalysisError, OutputError
@@ -172,7 +172,8 @@ def _spec(folder: Path, text: str) -> Path:
 
 
 @pytest.mark.parametrize("text,message", [
-    ('data = "sample.csv"\nrowz = ["SLEEP"]\n', r"bad.toml: rowz: unknown key.*did you mean 'rows'"),
+    ('data = "sample.csv"\nrowz = ["SLEEP"]\n',
+     r"bad.toml: rowz: unknown key.*did you mean 'rows'"),
     ('data = "sample.csv"\n', r"bad.toml: rows: missing"),
     ('rows = ["SLEEP"]\n', r"bad.toml: data: missing"),
     ('data = "nope.csv"\nrows = ["SLEEP"]\n', r"bad.toml: data: file .*nope.csv does not exist"),

@@ -23,9 +23,9 @@ from pathlib import Path
 from typing import Any
 
 import pytest
-from render_tables import PROVENANCE, estimate_table, nonresponse_table
 from rich.console import Console
 
+from render_tables import PROVENANCE, estimate_table, nonresponse_table
 from wstats._reliability import RULES
 from wstats.render import (
     ESTIMATE_RENDERERS,

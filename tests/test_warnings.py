@@ -16,6 +16,7 @@ from typing import Any
 
 import numpy as np
 import pytest
+
 from conftest import CODEBOOK_TOML
 
 Run = Callable[..., subprocess.CompletedProcess[str]]

@@ -1,6 +1,6 @@
 """The fast transport (XPORT v5) reader, wstats._readers._xpt.
 
-Oracles: pyreadstat.read_xport on the same files, and the record layout of 
+Oracles: pyreadstat.read_xport on the same files, and the record layout of
 "The Record Layout of a Data Set in Transport (XPORT) Format", technical support document
 TS-140 (from memory), which `build_xpt` below writes byte by byte.
 """
@@ -17,8 +17,8 @@ import pyreadstat
 import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
-from test_ibm_float import LARGEST, SMALLEST, ibm_value, ieee_to_ibm
 
+from test_ibm_float import LARGEST, SMALLEST, ibm_value, ieee_to_ibm
 from wstats._readers import _xpt
 from wstats._readers._xpt import XptUnsupported, read_xpt, xpt_file_columns
 from wstats.errors import ColumnError, ReadError, UsageError
