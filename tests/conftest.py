@@ -20,6 +20,8 @@ import numpy as np
 import pytest
 
 ROOT = Path(__file__).resolve().parents[1]
+# Tests must not fill the real digest cache in ~/.cache (test_io_prefetch turns it on).
+os.environ.setdefault("WSTATS_NO_DIGEST_CACHE", "1")
 #: Every format the fixtures write, by extension.
 SURVEY_FORMATS = ("csv", "xpt", "sav", "dta", "parquet")
 #: Seconds one command-line run may take before the test fails.

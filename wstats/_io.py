@@ -164,12 +164,13 @@ def sha256_of(path: str | os.PathLike[str]) -> str:
     ReadError
         The file is missing or cannot be read.
     """
-    pending = _PENDING.pop(_identity(path), None)
+    key = _identity(path)
+    pending = _PENDING.pop(key, None)
     if pending is not None:
         pending.join()
         if pending.digest is not None:
             return pending.digest
-    return _digest(path)
+    return _digest(path, key)
 
 
 def prefetch_sha256(path: str | os.PathLike[str]) -> None:
@@ -180,7 +181,7 @@ def prefetch_sha256(path: str | os.PathLike[str]) -> None:
     (size, modification time or inode) is hashed again.
     """
     key = _identity(path)
-    if key is None or key in _PENDING:
+    if key is None or key in _PENDING or _cached(key) is not None:
         return
     job = _HashJob(path)
     _PENDING[key] = job
@@ -197,7 +198,7 @@ class _HashJob(threading.Thread):
 
     def run(self) -> None:
         try:
-            self.digest = _digest(self.path)
+            self.digest = _digest(self.path, _identity(self.path))
         except ReadError:
             self.digest = None
 
@@ -214,8 +215,63 @@ def _identity(path: str | os.PathLike[str]) -> tuple[str, int, int, int] | None:
     return os.path.realpath(path), st.st_size, st.st_mtime_ns, st.st_ino
 
 
-def _digest(path: str | os.PathLike[str]) -> str:
-    """Hash *path* in 1 MiB chunks (hashlib releases the GIL for such buffers)."""
+def _digest_cache() -> Path | None:
+    """Return the digest cache file, or None when caching is switched off."""
+    if os.environ.get("WSTATS_NO_DIGEST_CACHE"):
+        return None
+    base = os.environ.get("XDG_CACHE_HOME") or os.path.join(os.path.expanduser("~"), ".cache")
+    return Path(base) / "wstats" / "digests.json"
+
+
+def _cached(key: tuple[str, int, int, int] | None) -> str | None:
+    """Return the cached digest of a file identity (path, size, mtime_ns, inode), if any."""
+    cache = _digest_cache()
+    if key is None or cache is None:
+        return None
+    import json
+
+    try:
+        entry = json.loads(cache.read_text(encoding="utf-8")).get(key[0])
+    except (OSError, ValueError, AttributeError):
+        return None
+    if isinstance(entry, list) and len(entry) == 4 and tuple(entry[:3]) == key[1:]:
+        return str(entry[3])
+    return None
+
+
+def _remember(key: tuple[str, int, int, int] | None, digest: str) -> None:
+    """Store a digest for its file identity; any failure just leaves the cache as it was."""
+    cache = _digest_cache()
+    if key is None or cache is None:
+        return
+    import json
+
+    try:
+        cache.parent.mkdir(parents=True, exist_ok=True)
+        try:
+            table = json.loads(cache.read_text(encoding="utf-8"))
+        except (OSError, ValueError):
+            table = {}
+        if not isinstance(table, dict):
+            table = {}
+        table[key[0]] = [*key[1:], digest]
+        tmp = cache.with_name(f".{cache.name}.{os.getpid()}.tmp")
+        tmp.write_text(json.dumps(table), encoding="utf-8")
+        os.replace(tmp, cache)
+    except OSError:
+        pass
+
+
+def _digest(path: str | os.PathLike[str], key: tuple[str, int, int, int] | None = None) -> str:
+    """Hash *path* in 1 MiB chunks (hashlib releases the GIL), or take it from the cache.
+
+    The cache (``~/.cache/wstats/digests.json``; ``WSTATS_NO_DIGEST_CACHE=1`` switches it
+    off) is keyed by the file's real path, size, modification time in nanoseconds and inode,
+    as version-control tools do for their indexes: a file that changes gets hashed again.
+    """
+    hit = _cached(key)
+    if hit is not None:
+        return hit
     digest = hashlib.sha256()
     try:
         with open(path, "rb") as fh:
@@ -223,6 +279,7 @@ def _digest(path: str | os.PathLike[str]) -> str:
                 digest.update(chunk)
     except OSError as exc:
         raise ReadError(f"cannot read '{path}' to fingerprint it: {exc.strerror}") from exc
+    _remember(key, digest.hexdigest())
     return digest.hexdigest()
 
 
