@@ -146,9 +146,11 @@ def _print_rich(renderable: Any) -> None:
 
 
 def _rich_to_text(renderable: Any) -> str:
+    import io
+
     from rich.console import Console
 
-    console = Console(record=True, width=120, file=open("/dev/null", "w"))  # noqa: SIM115
+    console = Console(record=True, width=120, file=io.StringIO())
     console.print(renderable)
     return console.export_text()
 
