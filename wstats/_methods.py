@@ -129,6 +129,11 @@ def _counts(reasons_used: Mapping[str, int] | Iterable[str]) -> dict[str, int]:
     return {str(k): 1 for k in reasons_used if k != "valid"}
 
 
+def _strata(n: Any) -> str:
+    """Return '1 stratum' or 'N strata'."""
+    return "1 stratum" if n == 1 else f"{_number(n)} strata"
+
+
 def _variance_sentence(d: Mapping[str, Any]) -> str:
     """Describe the variance method, design size, degrees of freedom and singletons."""
     df = _number(d.get("df"))
@@ -139,7 +144,7 @@ def _variance_sentence(d: Mapping[str, Any]) -> str:
     fpc = " with a first-stage finite population correction" if d.get("fpc") else ""
     parts = (f"Standard errors were estimated by Taylor linearization, treating primary "
              f"sampling units as drawn with replacement within strata{fpc} "
-             f"({_number(d.get('n_strata'))} strata, {_number(d.get('n_psu'))} PSUs, {df} "
+             f"({_strata(d.get('n_strata'))}, {_number(d.get('n_psu'))} PSUs, {df} "
              "degrees of freedom).")
     singleton = str(d.get("singleton") or "fail")
     count = int(d.get("singleton_strata") or 0)

@@ -275,7 +275,8 @@ def design_line(design: Mapping[str, Any], settings: Mapping[str, Any], level: f
     if design.get("weight"):
         parts.append(f"weight {design['weight']}")
     if design.get("n_strata") is not None:
-        parts.append(f"{design['n_strata']} strata")
+        n = design["n_strata"]
+        parts.append(f"{n} stratum" if n == 1 else f"{n} strata")
     if design.get("n_psu") is not None:
         parts.append(f"{design['n_psu']} PSUs")
     if design.get("df") is not None:
