@@ -216,6 +216,8 @@ class _WarmServer:
         if self.proc.stdin is not None:
             self.proc.stdin.close()
         self.proc.wait(timeout=30)
+        if self.proc.stdout is not None:
+            self.proc.stdout.close()
 
 
 _WARM: list[_WarmServer] = []
@@ -224,6 +226,8 @@ _WARM: list[_WarmServer] = []
 def _server() -> _WarmServer:
     """Return the session's warm server, starting it on first use."""
     if not _WARM or _WARM[0].proc.poll() is not None:
+        for old in _WARM:
+            old.close()
         _WARM[:] = [_WarmServer()]
     return _WARM[0]
 
