@@ -153,3 +153,14 @@ def test_check_collects_problems_instead_of_failing() -> None:
     assert "reads 'SLEEP', which is neither a column" in check.problems[1]
     clean = check_codebook(raw, Codebook())
     assert clean.ok and clean.unexplained.empty
+
+
+def test_check_shows_what_a_value_substitute_became() -> None:
+    # 888 = "none" recoded to 0 (common practice in health-survey codebooks, no single source)
+    book = Codebook.from_dict({"variables": {"EXER_FREQ": {
+        "codes": {"777": "dont_know", "888": 0, "999": "refused"}}}})
+    check = check_codebook(survey(), book)
+    rows = check.frame[check.frame.variable == "EXER_FREQ"]
+    assert rows[["raw_code", "reason", "count"]].values.tolist() == [
+        ["777", "dont_know", 30], ["888", "valid", 10], ["999", "refused", 5]]
+    assert rows["value"].tolist()[1] == 0.0 and np.isnan(rows["value"].tolist()[0])

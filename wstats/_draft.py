@@ -21,7 +21,7 @@ from __future__ import annotations
 import json
 import re
 from dataclasses import dataclass
-from typing import TYPE_CHECKING
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
@@ -212,7 +212,7 @@ class CodebookCheck:
     ----------
     frame : rows explained by a rule, tidy: ``variable``, ``raw_code`` (text: ``777``, ``-9``,
         ``.a`` for a tag, ``blank``), ``reason`` (``valid`` for a substitute such as
-        ``888 -> 0``), ``count`` (rows).
+        ``888 -> 0``), ``value`` (what a substitute became; NaN otherwise), ``count`` (rows).
     unexplained : ``variable``, ``code``, ``count`` of values no rule explains that became
         ``invalid`` (outside the range, or a bad unit prefix).
     absent : (variable, closest file column or None) for codebook variables not in the file.
@@ -254,6 +254,21 @@ def _explained(name: str, col: RawColumn, dec: DecodedColumn,
         out += [(name, f".{chr(t)}" if t else "blank", names[r], int(by_tag[t]))
                 for t in np.flatnonzero(by_tag)]
     return sorted(out, key=_code_order)
+
+
+def _substitutes(frame: Any, cols: dict[str, DecodedColumn], raw: RawTable) -> list[float]:
+    """Return, per explained row, the value a substitute code became (NaN for reasons)."""
+    out = []
+    for name, code, reason in zip(frame["variable"], frame["raw_code"], frame["reason"],
+                                  strict=True):
+        col, dec = raw.columns[name], cols.get(name)
+        if reason != "valid" or dec is None or not col.numeric or code in ("blank",) \
+                or code.startswith("."):
+            out.append(float("nan"))
+            continue
+        hit = np.asarray(col.data, np.float64) == float(code)
+        out.append(float(dec.values[np.argmax(hit)]) if hit.any() else float("nan"))
+    return out
 
 
 def _code_order(row: tuple[str, str, str, int]) -> tuple[int, float, str]:
@@ -312,7 +327,9 @@ def check_codebook(raw: RawTable, codebook: Codebook) -> CodebookCheck:
     except CodebookError as exc:
         problems.append(str(exc))
     absent = _absent(raw, codebook)
+    frame = pd.DataFrame(explained, columns=["variable", "raw_code", "reason", "count"])
+    frame.insert(3, "value", _substitutes(frame, cols, raw))
     return CodebookCheck(
-        frame=pd.DataFrame(explained, columns=["variable", "raw_code", "reason", "count"]),
+        frame=frame,
         unexplained=pd.DataFrame(odd, columns=["variable", "code", "count"]),
         absent=absent, problems=tuple(problems), ok=not absent and not problems)

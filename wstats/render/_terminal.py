@@ -164,6 +164,14 @@ def _table(
     return table
 
 
+def _meaning(row: dict[str, Any]) -> str:
+    """Return a check row's reason, or for a substitute code the value it became."""
+    value = row.get("value")
+    if row["reason"] == "valid" and isinstance(value, float) and value == value:
+        return f"→ {value:g} (valid)"
+    return str(row["reason"])
+
+
 def render_check(report: Any) -> RenderableType:
     """Return a rich renderable of a codebook check (``wstats._draft.CodebookCheck``)."""
     from rich.console import Group
@@ -172,7 +180,7 @@ def render_check(report: Any) -> RenderableType:
     parts: list[RenderableType] = [Text("Codebook check", style="bold")]
     explained = report.frame
     if len(explained):
-        rows = [(str(r["variable"]), str(r["raw_code"]), str(r["reason"]),
+        rows = [(str(r["variable"]), str(r["raw_code"]), _meaning(r),
                  f"{int(r['count']):,}") for r in explained.to_dict(orient="records")]
         parts.append(_plain_table("Codes explained by a rule",
                                   ["Variable", "Raw code", "Meaning", "Rows"], rows))
