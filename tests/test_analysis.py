@@ -322,3 +322,27 @@ def test_the_demo_analysis_file_runs(tmp_path: Path) -> None:
     results = json.loads((tmp_path / "tbchs_estimates.json").read_text())["results"]
     assert {r["variable"] for r in results} == {"GENHLTH", "INSURED", "SLEEPHRS", "MENTDAYS",
                                                 "FRUIT", "BMI"}
+
+
+def test_replicate_glob_is_matched_against_the_file(folder: Path,
+                                                    monkeypatch: pytest.MonkeyPatch) -> None:
+    # Stratum-deletion jackknife replicates built here (Wolter 2007, ch. 4, from memory):
+    # the glob must read exactly RW1..RW4; a glob matching nothing names itself.
+    frame = pd.read_csv(folder / "s.csv")
+    for r in range(1, 5):
+        frame[f"RW{r}"] = frame["W"] * np.where(frame["S"] == r, 0.0, 4 / 3)
+    frame.to_csv(folder / "s.csv", index=False)
+    calls: list[list[str]] = []
+    real = wstats._load.read
+
+    def spy(path, columns=None, **kw):  # type: ignore[no-untyped-def]
+        calls.append(list(columns))
+        return real(path, columns, **kw)
+
+    monkeypatch.setattr(wstats._load, "read", spy)
+    body = ('data = "s.csv"\n[design]\nweight = "W"\nreplicates = "{}"\n'
+            'replicate_method = "jackknife"\n[[estimates]]\nvariables = ["X"]\noutput = "{}"\n')
+    run_analysis(_analysis(folder, body.format("RW*", "e.json"), "r.toml"))
+    assert sorted(c for c in calls[0] if c.startswith("RW")) == ["RW1", "RW2", "RW3", "RW4"]
+    with pytest.raises(wstats.errors.DesignError, match=r"replicate glob 'QQ\*' matches no"):
+        run_analysis(_analysis(folder, body.format("QQ*", "f.json"), "q.toml"))

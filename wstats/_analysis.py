@@ -146,7 +146,8 @@ def _design(analysis: Analysis, codebook: Codebook | None) -> Design:
     return Design(**merged)
 
 
-def _needed(analysis: Analysis, design: Design) -> tuple[list[str], dict[str, str]]:
+def _needed(analysis: Analysis, design: Design, known: Sequence[str]
+            ) -> tuple[list[str], dict[str, str]]:
     """Return the variables to read and, for each, the key that asked for it."""
     from wstats._expr import parse_expression
 
@@ -170,18 +171,9 @@ def _needed(analysis: Analysis, design: Design) -> tuple[list[str], dict[str, st
             expr = parse_expression(opts["where"], None, f"{analysis.source}: {job.key} where")
             for name in sorted(expr.inputs):
                 wanted.setdefault(name, f"{job.key} where")
-    for name in _design_columns(design):
+    for name in design.columns(known, analysis.data.name):  # replicate globs matched here
         wanted.setdefault(name, "design")
     return list(wanted), wanted
-
-
-def _design_columns(design: Design) -> list[str]:
-    """Return the columns the design names (replicate globs are left to the reader)."""
-    cols = [c for c in (design.weight, design.strata, design.psu, design.fpc) if c]
-    reps = design.replicates
-    if isinstance(reps, str):
-        return cols if any(ch in reps for ch in "*?[") else [*cols, reps]
-    return [*cols, *(reps or ())]
 
 
 def _read(analysis: Analysis, codebook: Codebook | None, design: Design,
@@ -190,32 +182,16 @@ def _read(analysis: Analysis, codebook: Codebook | None, design: Design,
     from wstats._load import read
     from wstats._readers import file_columns
 
-    names, asked_by = _needed(analysis, design)
     known = [*file_columns(str(analysis.data)), *(codebook.derived if codebook else ())]
+    names, asked_by = _needed(analysis, design, known)
     known_set = set(known)
     for name in names:
-        if name not in known_set and not _is_glob(name):
+        if name not in known_set:
             raise AnalysisError(
                 f"{analysis.source}: {asked_by[name]}: variable '{name}' is neither a column of "
                 f"{analysis.data.name} nor a derived variable of the codebook"
                 f"{did_you_mean(name, known)}")
-    globbed = _expand_replicates(design, known)
-    return read(analysis.data, columns=[*names, *globbed], codebook=codebook, progress=progress)
-
-
-def _is_glob(name: str) -> bool:
-    """Tell whether *name* is a glob pattern (replicate weights)."""
-    return any(ch in name for ch in "*?[")
-
-
-def _expand_replicates(design: Design, known: Sequence[str]) -> list[str]:
-    """Return the file columns a replicate glob matches (empty without a glob)."""
-    import fnmatch
-
-    reps = design.replicates
-    if not isinstance(reps, str) or not _is_glob(reps):
-        return []
-    return [c for c in known if fnmatch.fnmatchcase(c, reps)]
+    return read(analysis.data, columns=names, codebook=codebook, progress=progress)
 
 
 # ------------------------------------------------------------------ computing and rendering
