@@ -130,20 +130,9 @@ def _codebook(analysis: Analysis) -> Codebook | None:
 
 def _design(analysis: Analysis, codebook: Codebook | None) -> Design:
     """Return the Design: the codebook's ``[design]`` with the analysis's keys on top."""
-    from dataclasses import fields
+    from wstats._tablespec import design_over_codebook
 
-    from wstats._design import Design
-
-    merged: dict[str, Any] = {**(getattr(codebook, "design", None) or {}), **analysis.design}
-    allowed = [f.name for f in fields(Design) if f.name != "extra"]
-    for key in merged:
-        if key not in allowed:
-            raise AnalysisError(f"{analysis.source}: design.{key}: unknown design key; "
-                                f"allowed: {', '.join(allowed)}{did_you_mean(key, allowed)}")
-    if not merged.get("weight"):
-        raise AnalysisError(f"{analysis.source}: design.weight: no weight column given; add "
-                            "[design] weight = \"COLUMN\" (or set it in the codebook)")
-    return Design(**merged)
+    return design_over_codebook(analysis.source, codebook, analysis.design)
 
 
 def _needed(analysis: Analysis, design: Design, known: Sequence[str]

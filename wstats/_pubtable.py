@@ -152,17 +152,9 @@ def _codebook(spec: TableSpec) -> Codebook | None:
 
 def _design(spec: TableSpec, codebook: Codebook | None) -> Design:
     """Return the Design: the spec's [design] over the codebook's [design]."""
-    from wstats._design import Design
+    from wstats._tablespec import design_over_codebook
 
-    merged: dict[str, Any] = {**(getattr(codebook, "design", None) or {}), **spec.design}
-    if not merged.get("weight"):
-        raise AnalysisError(f"{spec.source}: design.weight: missing; name the weight column "
-                            "in [design] (or in the codebook's [design] table)")
-    try:
-        return Design(**merged)
-    except TypeError as exc:  # a key from the codebook's [design] that Design does not take
-        raise AnalysisError(f"{spec.source}: design: {exc}; check the codebook's [design] "
-                            "table") from exc
+    return design_over_codebook(spec.source, codebook, spec.design)
 
 
 def _check_variables(spec: TableSpec, codebook: Codebook | None) -> None:

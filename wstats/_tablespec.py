@@ -12,11 +12,15 @@ import tomllib
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, field, fields
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 from wstats.errors import AnalysisError, did_you_mean
 
-__all__ = ["STATISTICS", "RowSpec", "TableSpec", "load_table_spec"]
+if TYPE_CHECKING:
+    from wstats._codebook import Codebook
+    from wstats._design import Design
+
+__all__ = ["STATISTICS", "RowSpec", "TableSpec", "design_over_codebook", "load_table_spec"]
 
 #: Statistics a table row can show.
 STATISTICS: tuple[str, ...] = ("mean", "total", "proportion", "quantile")
@@ -337,3 +341,23 @@ def _standards() -> list[str]:
     from wstats._reliability import STANDARDS
 
     return list(STANDARDS)
+
+
+def design_over_codebook(source: Path, codebook: Codebook | None,
+                         given: Mapping[str, Any]) -> Design:
+    """Return the Design of a spec or analysis file: its ``[design]`` over the codebook's.
+
+    Raises AnalysisError naming *source* for an unknown key or a missing weight.
+    """
+    from wstats._design import Design
+
+    merged: dict[str, Any] = {**(getattr(codebook, "design", None) or {}), **given}
+    allowed = [f.name for f in fields(Design) if f.name != "extra"]
+    for key in merged:
+        if key not in allowed:
+            raise AnalysisError(f"{source}: design.{key}: unknown design key; allowed: "
+                                f"{', '.join(allowed)}{did_you_mean(key, allowed)}")
+    if not merged.get("weight"):
+        raise AnalysisError(f"{source}: design.weight: no weight column given; add [design] "
+                            'weight = "COLUMN" (or set it in the codebook\'s [design] table)')
+    return Design(**merged)
