@@ -53,7 +53,7 @@ def estimate_table() -> EstimateTable:
     ]
     frame = pd.DataFrame(rows)
     order = [*ESTIMATE_COLUMNS[:4], "SEX", *ESTIMATE_COLUMNS[4:]]
-    return EstimateTable(frame[order], by=("SEX",), level=0.95, design=DESIGN,
+    return EstimateTable.from_frame(frame[order], by=("SEX",), level=0.95, design=DESIGN,
                          settings=SETTINGS)
 
 

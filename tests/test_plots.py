@@ -20,6 +20,7 @@ from wstats._plots import (
     render_reasons,
 )
 from wstats._reasons import DONT_KNOW, REFUSED, SKIPPED, VALID, Reasons
+from wstats._results import EstimateTable
 from wstats.errors import OutputError, UsageError
 
 
@@ -93,7 +94,7 @@ def test_missing_matplotlib_names_the_extra(data: Dataset, monkeypatch: pytest.M
 
 def test_empty_tables_are_refused(data: Dataset) -> None:
     table = estimate(data, Design("W"), ["X"])
-    from dataclasses import replace
-
+    empty = EstimateTable.from_frame(table.frame.iloc[:0], table.by, table.level, table.design,
+                                     table.settings)
     with pytest.raises(UsageError, match="no rows"):
-        render_domains(replace(table, frame=table.frame.iloc[:0]), "svg")
+        render_domains(empty, "svg")

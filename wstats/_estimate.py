@@ -99,7 +99,7 @@ def estimate(
     2.8333
     """
     from wstats._reliability import DEFAULT_STANDARD, assess
-    from wstats._results import EstimateTable
+    from wstats._results import EstimateTable, object_column
 
     stats = _check_options(statistics, level, proportion_ci, quantiles)
     _check_names(data, [*variables, *by, *categorical, *(v for r in ratios for v in r)])
@@ -109,17 +109,17 @@ def estimate(
     ctx = Context(WeightedSums(bound, domains), columns, data.vocabulary, level,
                   per_domain_df=design.domain_df == "domain")
     pieces = _run(ctx, variables, stats, set(categorical), ratios, quantiles, proportion_ci)
-    frame = _frame(pieces, list(by), by_levels, data.vocabulary.names, level)
+    rows = _columns(pieces, list(by), by_levels, data.vocabulary.names, level)
     _warn(data, bound, variables, domains, by_levels)
     standard = reliability or DEFAULT_STANDARD
-    flags, suppress = assess(frame, standard, level)
-    frame["flags"] = flags
-    frame["suppress"] = suppress
+    flags, suppress = assess(rows, standard, level)
+    rows["flags"] = object_column(flags)
+    rows["suppress"] = suppress
     settings = {"proportion_ci": proportion_ci, "mean_ci": "wald-t", "quantile_ci": "woodruff",
                 "df_rule": "replicates" if bound.uses_replicates else design.domain_df,
                 "level": level, "reliability": standard.name,
                 "deff_srs": "with-replacement"}
-    return EstimateTable(frame, tuple(by), level, bound.summary(), settings)
+    return EstimateTable(rows, tuple(by), level, bound.summary(), settings)
 
 
 def _warn(data: Dataset, bound: BoundDesign, variables: Sequence[str], domains: Domains,
@@ -255,19 +255,18 @@ def _plain(v: Any) -> Any:
     return v
 
 
-def _frame(pieces: list[Piece], by: list[str], by_levels: list[tuple[list[Any], list[Any]]],
-           reason_names: Sequence[str], level: float) -> Any:
-    """Return the tidy frame of all pieces (columns per ESTIMATE_COLUMNS, by after ``p``)."""
-    import pandas as pd
+def _columns(pieces: list[Piece], by: list[str],
+             by_levels: list[tuple[list[Any], list[Any]]], reason_names: Sequence[str],
+             level: float) -> dict[str, npt.NDArray[Any]]:
+    """Return the tidy columns of all pieces (per ESTIMATE_COLUMNS, by-columns after ``p``)."""
+    from wstats._results import ESTIMATE_COLUMNS, object_column
 
-    from wstats._results import ESTIMATE_COLUMNS
-
-    cols: dict[str, Any] = {}
+    cols: dict[str, npt.NDArray[Any]] = {}
     numeric = ("estimate", "se", "ci_low", "ci_high", "df", "deff", "deff_weight", "n_eff",
                "weighted_n")
-    cols["variable"] = [p.variable for p in pieces for _ in p.domain]
-    cols["statistic"] = [p.statistic for p in pieces for _ in p.domain]
-    cols["level"] = pd.Series([lv for p in pieces for lv in p.level], dtype=object)
+    cols["variable"] = object_column([p.variable for p in pieces for _ in p.domain])
+    cols["statistic"] = object_column([p.statistic for p in pieces for _ in p.domain])
+    cols["level"] = object_column([lv for p in pieces for lv in p.level])
     cols["p"] = _stack(pieces, lambda p: np.full(len(p.domain), p.p))
     domain = _stack(pieces, lambda p: p.domain).astype(np.int64)
     cols.update(_by_columns(domain, by, by_levels))
@@ -281,12 +280,13 @@ def _frame(pieces: list[Piece], by: list[str], by_levels: list[tuple[list[Any], 
                   [p.interval for p in pieces for _ in p.domain], cols["ci_low"],
                   cols["ci_high"], level)
     counts = np.vstack([p.reasons for p in pieces]) if pieces else np.zeros((0, 1), np.int64)
-    cols["reasons"] = [{reason_names[int(j)]: int(c[j]) for j in np.flatnonzero(c) if j != VALID}
-                       for c in counts]
-    cols["flags"] = [()] * len(domain)
+    cols["reasons"] = object_column(
+        [{reason_names[int(j)]: int(c[j]) for j in np.flatnonzero(c) if j != VALID}
+         for c in counts])
+    cols["flags"] = object_column([()] * len(domain))
     cols["suppress"] = np.zeros(len(domain), dtype=bool)
     order = [*ESTIMATE_COLUMNS[:4], *by, *ESTIMATE_COLUMNS[4:]]
-    return pd.DataFrame({c: cols[c] for c in order})
+    return {c: cols[c] for c in order}
 
 
 def _stack(pieces: list[Piece], get: Callable[[Piece], Any]) -> npt.NDArray[Any]:
@@ -295,18 +295,17 @@ def _stack(pieces: list[Piece], get: Callable[[Piece], Any]) -> npt.NDArray[Any]
 
 
 def _by_columns(domain: Index, by: list[str], by_levels: list[tuple[list[Any], list[Any]]]
-                ) -> dict[str, Any]:
+                ) -> dict[str, npt.NDArray[Any]]:
     """Return one column per by-variable: the level shown for each row (None: population)."""
-    import pandas as pd
+    from wstats._results import object_column
 
     if not by:
         return {}
     sizes = [max(len(v), 1) for v, _ in by_levels]
     cell = np.where(domain > 0, domain - 1, 0)
     idx = np.unravel_index(cell, sizes)
-    out: dict[str, Any] = {}
+    out: dict[str, npt.NDArray[Any]] = {}
     for k, name in enumerate(by):
-        display = np.array([*by_levels[k][1], None], dtype=object)
-        shown = display[np.where(domain > 0, np.minimum(idx[k], len(display) - 1), -1)]
-        out[name] = pd.Series(shown, dtype=object)  # None (not NaN) on population rows
+        display = object_column([*by_levels[k][1], None])
+        out[name] = display[np.where(domain > 0, np.minimum(idx[k], len(display) - 1), -1)]
     return out

@@ -215,7 +215,7 @@ def _estimate_all(spec: TableSpec, data: Dataset, design: Design) -> EstimateTab
     at = cols.index("p") + 1
     stacked = stacked[[*cols[:at], *spec.by, *cols[at:]]]
     settings = {**first.settings, "level": spec.level, "proportion_ci": spec.proportion_ci}
-    return EstimateTable(stacked, by=spec.by, level=spec.level, design=first.design,
+    return EstimateTable.from_frame(stacked, by=spec.by, level=spec.level, design=first.design,
                          settings=settings)
 
 

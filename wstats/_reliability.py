@@ -27,10 +27,15 @@ from wstats._intervals import effective_n, korn_graubard_ci
 from wstats.errors import EstimationError, did_you_mean
 
 if TYPE_CHECKING:
+    from collections.abc import Mapping
+    from typing import Any
+
     import numpy.typing as npt
     import pandas as pd
 
     Bool = npt.NDArray[np.bool_]
+    #: estimate rows: a pandas frame or a mapping of column name -> 1-D array
+    Rows = pd.DataFrame | Mapping[str, Any]
 
 __all__ = [
     "NONRESPONSE_RULES",
@@ -170,11 +175,19 @@ DEFAULT_STANDARD: ReliabilityStandard = STANDARDS["nchs-2017"]
 _REQUIRED = ("statistic", "estimate", "se", "df", "n")
 
 
-def _column(frame: pd.DataFrame, name: str) -> npt.NDArray[np.float64]:
-    """Return a numeric frame column as float64 (None -> NaN)."""
-    import pandas as pd
+def _column(rows: Rows, name: str) -> npt.NDArray[np.float64]:
+    """Return a numeric column as float64 (None -> NaN)."""
+    values = rows[name]
+    if getattr(values, "dtype", None) is not None and values.dtype.kind in "fiub":
+        return np.asarray(values, dtype=np.float64)
+    import pandas as pd  # an object column: let pandas coerce None and text
 
-    return np.asarray(pd.to_numeric(frame[name], errors="coerce"), dtype=np.float64)
+    return np.asarray(pd.to_numeric(pd.Series(values), errors="coerce"), dtype=np.float64)
+
+
+def _length(rows: Rows) -> int:
+    """Return the number of rows of a frame or of a mapping of columns."""
+    return len(rows[_REQUIRED[0]])
 
 
 def _proportion_rules(
@@ -209,13 +222,14 @@ def _rse_rules(
 
 
 def evaluate(
-    frame: pd.DataFrame, standard: ReliabilityStandard = DEFAULT_STANDARD
+    frame: Rows, standard: ReliabilityStandard = DEFAULT_STANDARD
 ) -> dict[str, Bool]:
     """Return rule id -> boolean array (one per row) of the rules that fire under *standard*.
 
     Parameters
     ----------
-    frame : estimates with columns statistic, estimate, se, df, n (see ``ESTIMATE_COLUMNS``).
+    frame : estimates with columns statistic, estimate, se, df, n (see ``ESTIMATE_COLUMNS``):
+        a pandas frame or a mapping of column name -> 1-D array.
     standard : the reliability standard.
 
     Returns
@@ -223,14 +237,14 @@ def evaluate(
     dict over every id of :data:`RULES`, in that order; rules the standard does not use are
     all False.
     """
-    missing = [c for c in _REQUIRED if c not in frame.columns]
+    missing = [c for c in _REQUIRED if c not in frame]
     if missing:
         raise EstimationError(
             f"cannot assess reliability: the estimate table lacks column(s) {', '.join(missing)}; "
             "pass a frame with the columns of wstats ESTIMATE_COLUMNS"
         )
     est, se, df, n = (_column(frame, c) for c in ("estimate", "se", "df", "n"))
-    is_prop = np.asarray(frame["statistic"].astype(str) == "proportion", dtype=bool)
+    is_prop = np.asarray(frame["statistic"], dtype=object).astype(str) == "proportion"
     nchs = is_prop & (standard.proportions == "proportion-nchs")
     rse = np.where(is_prop, standard.proportions == "rse", standard.others == "rse")
     filled = n > 0
@@ -252,7 +266,7 @@ def _suppressing(standard: ReliabilityStandard) -> tuple[str, ...]:
 
 
 def assess(
-    frame: pd.DataFrame, standard: ReliabilityStandard = DEFAULT_STANDARD, level: float = 0.95
+    frame: Rows, standard: ReliabilityStandard = DEFAULT_STANDARD, level: float = 0.95
 ) -> tuple[list[tuple[str, ...]], npt.NDArray[np.bool_]]:
     """Flag and suppress estimates under a reliability standard.
 
@@ -280,13 +294,14 @@ def assess(
     """
     fired = evaluate(frame, standard)
     ids = list(fired)
-    matrix = np.column_stack([fired[r] for r in ids]) if len(frame) else np.zeros((0, len(ids)))
+    n_rows = _length(frame)
+    matrix = np.column_stack([fired[r] for r in ids]) if n_rows else np.zeros((0, len(ids)))
     codes = matrix.astype(np.int64) @ (1 << np.arange(len(ids), dtype=np.int64))
     patterns, inverse = np.unique(codes, return_inverse=True)
     names = [tuple(r for j, r in enumerate(ids) if int(code) >> j & 1) for code in patterns]
     flags = [names[i] for i in inverse.ravel()]
     stop = _suppressing(standard)
-    suppress = np.logical_or.reduce([fired[r] for r in stop]) & np.ones(len(frame), dtype=bool)
+    suppress = np.logical_or.reduce([fired[r] for r in stop]) & np.ones(n_rows, dtype=bool)
     return flags, np.asarray(suppress, dtype=bool)
 
 
