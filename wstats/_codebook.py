@@ -175,18 +175,18 @@ class _Locator:
         self.by_name: dict[tuple[str, str], list[tuple[int, str]]] = {}
         for i, line in self.headers:
             m = _HEADER_NAME.match(line)
-            if m:
+            # a whole name: the header closes (or a sub-table starts) right after it
+            if m and line[m.end():].lstrip('"').lstrip().startswith(("]", ".")):
                 self.by_name.setdefault((m.group(1), m.group(2)), []).append((i, line))
 
     def table(self, head: str, name: str | None = None, nth: int = 0) -> str:
         """Return ``"<source> line N, [head.name]"`` for a table header (nth for arrays)."""
         label = f"[{head}.{name}]" if name is not None else f"[[{head}]] #{nth + 1}"
-        pat = (re.compile(rf"^\s*\[\s*{head}\s*\.\s*\"?{re.escape(name)}\"?\s*[\].]")
-               if name is not None else re.compile(rf"^\s*\[\[\s*{head}\s*\]\]"))
-        # only header lines can match; the (table, name) index narrows them further
-        lines = self.by_name.get((head, name), []) if name is not None else []
-        hits = [i for i, line in lines if pat.match(line)]
-        if not hits:
+        # the (table, name) index holds the header lines of whole names: no pattern needed
+        hits = [i for i, _ in self.by_name.get((head, name), [])] if name is not None else []
+        if not hits:  # a quoted or unusual header, or an array of tables: match each line
+            pat = (re.compile(rf"^\s*\[\s*{head}\s*\.\s*\"?{re.escape(name)}\"?\s*[\].]")
+                   if name is not None else re.compile(rf"^\s*\[\[\s*{head}\s*\]\]"))
             hits = [i for i, line in self.headers if pat.match(line)]
         if name is None:
             hits = hits[nth:nth + 1]

