@@ -225,6 +225,55 @@ def test_many_variables_many_domains_equal_reference(fpc: str | None) -> None:
         assert r.n == ok.sum()
 
 
+@pytest.mark.parametrize("where", [None, "y1 > 0"])
+def test_rows_stored_in_psu_order_equal_reference(where: str | None) -> None:
+    # [C] rows sorted by stratum and PSU are summed segment by segment (the other path of the
+    # row pass); same reference, 1e-12 relative; with `where`, the rows outside are skipped
+    ds0, c0 = _design_data(12)
+    order = np.lexsort((c0["psu"], c0["st"]))
+    c = {k: v[order] for k, v in c0.items()}
+    ds = _ds(**c)
+    t = estimate(ds, Design("w", strata="st", psu="psu"), [f"y{j}" for j in range(5)],
+                 statistics=["mean", "total"], where=where)
+    inside = np.ones(len(c["w"]), bool) if where is None else np.nan_to_num(c["y1"]) > 0
+    inside &= ~np.isnan(c["y1"]) if where is not None else True
+    f = dict.fromkeys(range(4), 0.0)
+    assert len(t.frame) == 5 * 2
+    for _, r in t.frame.iterrows():
+        y = c[r.variable]
+        ok = inside & ~np.isnan(y)
+        est, v = _reference(np.nan_to_num(y), ok, c["w"], c["st"], c["psu"], f,
+                            r.statistic == "total")
+        assert r.estimate == pytest.approx(est, rel=1e-12)
+        assert r.se**2 == pytest.approx(v, rel=1e-12)
+
+
+def test_row_sums_and_group_sums_equal_dense_products() -> None:
+    # common practice, no source: both row-pass paths and the group sums against dense
+    # matrix products built from their definitions
+    from wstats._sums import GroupSum, _RowSums
+
+    rng = np.random.default_rng(5)
+    n, nb = 500, 7
+    w, x = rng.uniform(1, 3, n), rng.normal(size=n)
+    for bucket in (np.sort(rng.integers(0, nb, n)), rng.integers(0, nb, n)):
+        outside = rng.random(n) < 0.2
+        bucket = np.where(outside, nb, bucket)  # n_buckets marks rows outside
+        dense = np.zeros((nb, n))
+        dense[bucket[~outside], np.flatnonzero(~outside)] = w[~outside]
+        assert np.allclose(_RowSums(bucket, w, nb, n).weighted(x), dense @ x, rtol=1e-13)
+    inside = np.sort(rng.integers(0, nb, n))
+    rows = _RowSums(inside, w, nb, n)
+    assert rows.starts is not None  # sorted: the segment path was taken
+    target, source = rng.integers(0, 4, 30), rng.integers(0, 9, 30)
+    m = np.zeros((4, 9))
+    np.add.at(m, (target, source), 1.0)
+    block = rng.normal(size=(9, 3))
+    g = GroupSum(target, source, 4)
+    assert np.allclose(g @ block, m @ block, rtol=1e-13)
+    assert np.allclose(g @ block[:, 0], m @ block[:, 0], rtol=1e-13)
+
+
 def test_domain_keeps_full_design_unlike_subsetting() -> None:
     # REFERENCES 2 (NCHS tutorial; Graubard & Korn 1996): u = 0 outside the domain, all PSUs
     # kept. Subsetting drops PSUs without domain members and gives a different (smaller) SE.

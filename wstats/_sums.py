@@ -1,12 +1,15 @@
 """Weighted sums by (PSU, domain): the sufficient statistics of every estimator, vectorised.
 
 Every estimate of wstats is a function of weighted sums of per-row values over PSU x domain
-cells (and, for replicate designs, over replicate x domain). :class:`WeightedSums` builds the
-sparse row -> (PSU, domain) matrices once per call and multiplies blocks of values with them.
+cells (and, for replicate designs, over replicate x domain). :class:`WeightedSums` maps every
+row to its (PSU, by-cell) bucket once per call and sums value columns by bucket in numpy
+(segment sums when the rows are stored in bucket order, weighted counts otherwise); small
+group sums take buckets to (PSU, domain) pairs, strata and domains. scipy.sparse is used
+only for replicate weights, so a linearization run does not import scipy.
 
 Domains: domain 0 is the whole population (rows satisfying the ``where`` condition); domains
-1..C are the crossed ``by`` cells. A row is in domain 0 and in at most one cell, so the sparse
-matrix has at most two entries per row. Only (PSU, domain) pairs that hold rows are stored:
+1..C are the crossed ``by`` cells. A row is in domain 0 and in at most one cell, so it adds
+to at most two (PSU, domain) pairs. Only (PSU, domain) pairs that hold rows are stored:
 a PSU without members of a domain contributes a zero total there, which the variance adds
 back exactly (see :mod:`wstats._variance`), so nothing the size of PSUs x domains is built.
 """
@@ -16,7 +19,7 @@ from __future__ import annotations
 from collections.abc import Sequence
 from dataclasses import dataclass
 from functools import cached_property
-from typing import TYPE_CHECKING, Any
+from typing import TYPE_CHECKING
 
 import numpy as np
 
@@ -71,15 +74,13 @@ class WeightedSums:
     """Sums of row values by (PSU, domain), by domain, and by (replicate, domain).
 
     Every row of the population domain falls in exactly one *bucket*: its PSU crossed with
-    its by-cell (or with "no cell"). Row-level work is one sparse product per value column
-    into bucket sums (one matrix entry per row: its weight), so its cost does not grow with
+    its by-cell (or with "no cell"). Row-level work is one weighted pass per value column
+    into bucket sums, so its cost does not grow with
     the number of domains; (PSU, domain) pairs and domains are then small sums of buckets
     (a row counts in the population pair of its PSU and, with a cell, in that cell's pair).
     """
 
     def __init__(self, design: BoundDesign, domains: Domains) -> None:
-        from scipy import sparse
-
         n, nd = design.n_rows, domains.n_domains
         self.design = design
         self.domains = domains
@@ -88,9 +89,7 @@ class WeightedSums:
         bucket_key, self.bucket = _compact(key, domains.inside, design.n_psu * nd)
         #: number of occupied buckets; ``bucket`` holds each row's (n_buckets: outside)
         nb = self.n_buckets = len(bucket_key)
-        rows = np.flatnonzero(domains.inside)
-        self._a = sparse.csr_matrix((design.weights[rows], (self.bucket[rows], rows)),
-                                    shape=(nb, n))
+        self._rows = _RowSums(self.bucket, design.weights, nb, n)
         b_psu, b_slot = bucket_key // nd, bucket_key % nd
         in_cell = np.flatnonzero(b_slot > 0)
         pair_key = np.unique(np.concatenate([b_psu * nd, bucket_key[in_cell]]))
@@ -100,14 +99,10 @@ class WeightedSums:
         src = np.concatenate([np.arange(nb), in_cell])
         to_pair = np.concatenate([np.searchsorted(pair_key, b_psu * nd),
                                   np.searchsorted(pair_key, bucket_key[in_cell])])
-        ones = np.ones(len(src))
-        self._to_pair = sparse.csr_matrix((ones, (to_pair, src)), shape=(len(pair_key), nb))
+        self._to_pair = GroupSum(to_pair, src, len(pair_key))
         to_domain = np.concatenate([np.zeros(nb, np.int64), b_slot[in_cell]])
-        self._to_domain = sparse.csr_matrix((ones, (to_domain, src)), shape=(nd, nb))
-        self._pair_to_domain = sparse.csr_matrix(
-            (np.ones(len(pair_key)), (self.pair_domain, np.arange(len(pair_key)))),
-            shape=(nd, len(pair_key))
-        )
+        self._to_domain = GroupSum(to_domain, src, nd)
+        self._pair_to_domain = GroupSum(self.pair_domain, np.arange(len(pair_key)), nd)
 
     @property
     def n_rows(self) -> int:
@@ -116,7 +111,11 @@ class WeightedSums:
 
     def bucket_sums(self, x: Array | Sequence[Array]) -> Array:
         """Return sum over rows of w * x by bucket: shape (buckets, V)."""
-        return _product(self._a, x)
+        columns = _columns(x)
+        out = np.empty((self.n_buckets, len(columns)))
+        for j, col in enumerate(columns):  # loop over value columns only
+            out[:, j] = self._rows.weighted(col)
+        return out
 
     def pair_sums(self, x: Array | Sequence[Array]) -> Array:
         """Return sum over rows of w * x by (PSU, domain) pair: shape (pairs, V)."""
@@ -202,14 +201,11 @@ class WeightedSums:
         return self.to_pairs(self._bucket_counts(x))
 
     @cached_property
-    def strata_cells(self) -> tuple[Index, sparse.csr_matrix]:
-        """Return the (stratum, domain) cell of every pair and the cell x pair indicator."""
-        from scipy import sparse
-
+    def strata_cells(self) -> tuple[Index, GroupSum]:
+        """Return the (stratum, domain) cell of every pair and the pair -> cell summation."""
         hd = self.design.psu_stratum[self.pair_psu] * self.n_domains + self.pair_domain
         size = self.design.n_strata * self.n_domains
-        s = sparse.csr_matrix((np.ones(len(hd)), (hd, np.arange(len(hd)))), shape=(size, len(hd)))
-        return hd.astype(np.int64), s
+        return hd.astype(np.int64), GroupSum(hd, np.arange(len(hd)), size)
 
     @cached_property
     def _ind(self) -> sparse.csr_matrix:
@@ -266,17 +262,59 @@ def _columns(x: Array | Sequence[Array]) -> list[Array]:
     return list(x)
 
 
-def _product(m: Any, x: Array | Sequence[Array]) -> Array:
-    """Return m @ x as (rows of m, V), one sparse matrix-vector product per value column.
+class GroupSum:
+    """Adds rows of a block into groups: ``g @ block`` is ``out[target[k]] += block[source[k]]``.
 
-    Columns are multiplied one at a time: a contiguous column needs no copy into a row-major
-    block, which on large files costs more than the products themselves.
+    The small 0/1 matrices between buckets, (PSU, domain) pairs, strata and domains, applied
+    without building a matrix.
     """
-    columns = _columns(x)
-    out = np.empty((m.shape[0], len(columns)))
-    for j, col in enumerate(columns):  # loop over value columns only
-        out[:, j] = m @ np.ascontiguousarray(col, dtype=np.float64)
-    return out
+
+    def __init__(self, target: Index, source: Index, n_targets: int) -> None:
+        self.target = np.asarray(target, dtype=np.int64)
+        self.source = np.asarray(source, dtype=np.int64)
+        #: (groups, rows of the blocks it applies to)
+        self.shape = (n_targets, int(self.source.max()) + 1 if self.source.size else 0)
+
+    def __matmul__(self, block: npt.ArrayLike) -> Array:
+        """Return the group sums of the rows of a 1-D or 2-D *block*."""
+        b = np.asarray(block, dtype=np.float64)
+        out = np.zeros((self.shape[0], *b.shape[1:]))
+        np.add.at(out, self.target, b[self.source])
+        return out
+
+
+class _RowSums:
+    """Weighted sums of row values by bucket (a row's bucket ``n_buckets`` means: outside).
+
+    Rows stored in bucket order (a file sorted by stratum and PSU, without by-cells) are
+    summed segment by segment; otherwise a weighted count by bucket does it. Either way one
+    pass over the rows per value column, in numpy alone.
+    """
+
+    def __init__(self, bucket: Index, weights: Array, n_buckets: int, n_rows: int) -> None:
+        inside = bucket < n_buckets
+        self.rows: Index | None = None if inside.all() else np.flatnonzero(inside)
+        self.bucket = bucket if self.rows is None else bucket[self.rows]
+        self.weights = np.asarray(weights if self.rows is None else weights[self.rows],
+                                  dtype=np.float64)
+        self.n_buckets = n_buckets
+        in_order = bool(np.all(self.bucket[1:] >= self.bucket[:-1])) and n_rows > 0
+        # every bucket holds rows (they are the occupied keys), so no segment is empty
+        self.starts = (np.searchsorted(self.bucket, np.arange(n_buckets)) if in_order
+                       else None)
+
+    def weighted(self, x: Array) -> Array:
+        """Return sum of w * x by bucket: shape (buckets,)."""
+        values = np.asarray(x, dtype=np.float64)
+        if self.rows is not None:
+            values = values[self.rows]
+        values = self.weights * values
+        if self.n_buckets == 0:  # no row inside the population domain
+            return np.zeros(0)
+        if self.starts is not None:
+            return np.asarray(np.add.reduceat(values, self.starts))
+        return np.asarray(np.bincount(self.bucket, weights=values, minlength=self.n_buckets),
+                          dtype=np.float64)
 
 
 def domain_quantiles(
