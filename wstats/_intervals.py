@@ -82,14 +82,9 @@ def t_quantile(df: npt.ArrayLike, level: float) -> Array:
     >>> round(float(t_quantile(30, 0.95)), 6)
     2.042272
     """
-    # scipy.special gives the same quantiles as scipy.stats bit for bit, at half the import
-    from scipy.special import ndtri, stdtrit
+    from wstats._special import t_ppf
 
-    q = 1.0 - _alpha(level) / 2.0
-    d = _f(df)
-    ok = np.isfinite(d) & (d > 0)
-    out = np.where(np.isposinf(d), ndtri(q), np.nan)
-    return _f(np.where(ok, stdtrit(np.where(ok, d, 1.0), q), out))
+    return t_ppf(1.0 - _alpha(level) / 2.0, df)
 
 
 def wald_t(
@@ -159,9 +154,9 @@ def logit_ci(
 
 def _expit(x: Array) -> Array:
     """Return the logistic function of *x*."""
-    from scipy.special import expit
+    from wstats._special import expit
 
-    return _f(expit(x))
+    return expit(x)
 
 
 def effective_n(p: npt.ArrayLike, se: npt.ArrayLike, n: npt.ArrayLike) -> Array:
@@ -239,7 +234,7 @@ def clopper_pearson(x: npt.ArrayLike, n: npt.ArrayLike, level: float) -> tuple[A
     >>> round(float(low), 6), round(float(high), 6)
     (0.068311, 0.407037)
     """
-    from scipy.special import betaincinv
+    from wstats._special import beta_ppf
 
     a = _alpha(level)
     xx, nn = np.broadcast_arrays(_f(x), _f(n))
@@ -247,9 +242,9 @@ def clopper_pearson(x: npt.ArrayLike, n: npt.ArrayLike, level: float) -> tuple[A
     # Below 1e-4 successes (failures) the limit is below q^(1/1e-4): zero in double precision;
     # the beta quantile is inaccurate or overflows for such tiny shape parameters.
     has_low, has_high = ok & (xx >= _TINY), ok & (nn - xx >= _TINY)
-    low_q = betaincinv(np.where(has_low, xx, 1.0), np.where(has_low, nn - xx + 1, 1.0), a / 2.0)
-    high_q = betaincinv(
-        np.where(has_high, xx + 1, 1.0), np.where(has_high, nn - xx, 1.0), 1.0 - a / 2.0
+    low_q = beta_ppf(a / 2.0, np.where(has_low, xx, 1.0), np.where(has_low, nn - xx + 1, 1.0))
+    high_q = beta_ppf(
+        1.0 - a / 2.0, np.where(has_high, xx + 1, 1.0), np.where(has_high, nn - xx, 1.0)
     )
     low = np.where(has_low, low_q, np.where(ok, 0.0, np.nan))
     high = np.where(has_high, high_q, np.where(ok, 1.0, np.nan))
