@@ -248,20 +248,25 @@ def test_rows_stored_in_psu_order_equal_reference(where: str | None) -> None:
         assert r.se**2 == pytest.approx(v, rel=1e-12)
 
 
-def test_row_sums_and_group_sums_equal_dense_products() -> None:
-    # common practice, no source: both row-pass paths and the group sums against dense
-    # matrix products built from their definitions
+@pytest.mark.parametrize("tile", [65_536, 37, 1])
+def test_row_sums_and_group_sums_equal_dense_products(tile: int,
+                                                      monkeypatch: pytest.MonkeyPatch) -> None:
+    # common practice, no source: both row-pass paths (whole, and in row tiles that split
+    # buckets) and the group sums against dense matrix products built from their definitions
+    from wstats import _sums
     from wstats._sums import GroupSum, _RowSums
 
+    monkeypatch.setattr(_sums, "_ROW_TILE", tile)
     rng = np.random.default_rng(5)
     n, nb = 500, 7
     w, x = rng.uniform(1, 3, n), rng.normal(size=n)
-    for bucket in (np.sort(rng.integers(0, nb, n)), rng.integers(0, nb, n)):
-        outside = rng.random(n) < 0.2
-        bucket = np.where(outside, nb, bucket)  # n_buckets marks rows outside
-        dense = np.zeros((nb, n))
-        dense[bucket[~outside], np.flatnonzero(~outside)] = w[~outside]
-        assert np.allclose(_RowSums(bucket, w, nb, n).weighted(x), dense @ x, rtol=1e-13)
+    for inside in (np.sort(rng.integers(0, nb, n)), rng.integers(0, nb, n)):
+        for outside in (rng.random(n) < 0.2, np.zeros(n, bool)):
+            bucket = np.where(outside, nb, inside)  # n_buckets marks rows outside
+            dense = np.zeros((nb, n))
+            dense[bucket[~outside], np.flatnonzero(~outside)] = w[~outside]
+            got = _RowSums(bucket, w, nb, n).weighted(x)
+            assert np.allclose(got, dense @ x, rtol=1e-13)
     inside = np.sort(rng.integers(0, nb, n))
     rows = _RowSums(inside, w, nb, n)
     assert rows.starts is not None  # sorted: the segment path was taken

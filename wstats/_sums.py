@@ -36,6 +36,7 @@ if TYPE_CHECKING:
 __all__ = ["Domains", "WeightedSums", "domain_quantiles"]
 
 _TOL = 1e-10  # relative tolerance when comparing cumulative weight shares with p
+_ROW_TILE = 65_536  # rows per tile of a weighted pass (0.5 MB per float64 temporary)
 
 
 @dataclass(frozen=True, eq=False)
@@ -304,17 +305,28 @@ class _RowSums:
                        else None)
 
     def weighted(self, x: Array) -> Array:
-        """Return sum of w * x by bucket: shape (buckets,)."""
-        values = np.asarray(x, dtype=np.float64)
-        if self.rows is not None:
-            values = values[self.rows]
-        values = self.weights * values
+        """Return sum of w * x by bucket: shape (buckets,).
+
+        Rows are taken in tiles of :data:`_ROW_TILE`, so the temporaries (the values as
+        float64, times the weights) stay the size of a tile whatever the file's length.
+        """
+        out = np.zeros(self.n_buckets)
         if self.n_buckets == 0:  # no row inside the population domain
-            return np.zeros(0)
-        if self.starts is not None:
-            return np.asarray(np.add.reduceat(values, self.starts))
-        return np.asarray(np.bincount(self.bucket, weights=values, minlength=self.n_buckets),
-                          dtype=np.float64)
+            return out
+        n = len(self.bucket)
+        for begin in range(0, n, _ROW_TILE):  # loop over row tiles, not rows
+            end = min(begin + _ROW_TILE, n)
+            part = x[begin:end] if self.rows is None else x[self.rows[begin:end]]
+            values = self.weights[begin:end] * np.asarray(part, dtype=np.float64)
+            bucket = self.bucket[begin:end]
+            if self.starts is None:
+                out += np.bincount(bucket, weights=values, minlength=self.n_buckets)
+                continue
+            first, last = int(bucket[0]), int(bucket[-1])  # sorted: every bucket between
+            local = self.starts[first : last + 1] - begin  # them starts inside the tile
+            local[0] = 0  # ... except the first, which may have begun in the tile before
+            out[first : last + 1] += np.add.reduceat(values, local)
+        return out
 
 
 def domain_quantiles(
