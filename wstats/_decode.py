@@ -178,24 +178,30 @@ class _Work:
             self.ruled |= hit
 
     def units(self, spec: UnitPrefix) -> None:
-        """Convert unit-prefixed answers of undecided rows; bad prefixes become invalid."""
-        rows = np.flatnonzero(~self.ruled & np.isfinite(self.x))
-        v = self.x[rows]
+        """Convert unit-prefixed answers of undecided rows; bad prefixes become invalid.
+
+        Whole-column arithmetic with a mask, not a gather and a scatter of the rows: on a
+        465,000-row column that took a third of the time.
+        """
+        x = self.x
+        target = ~self.ruled & np.isfinite(x)
         base = 10.0 ** (spec.digits - 1)
-        # floor(v / base) rather than v // base: float floor-division is ~30x slower
-        first = np.floor(v / base)
-        count = v - first * base
         per_year = np.full(11, np.nan)  # slot 10: any leading value that is not a digit 1-9
         for digit, unit in spec.units.items():
             per_year[digit] = spec.factors[unit]
         per_year[0] = np.nan  # below base: no unit digit
-        # v in [base, 10 base) and whole  <=>  first in 1..9 and count whole (base is whole)
-        factor = per_year[np.clip(first, 0, 10).astype(np.int64)]
         with np.errstate(invalid="ignore"):
-            rate = count * factor / spec.factors[spec.to]
-        good = np.isfinite(rate) & (count == np.floor(count))
-        self.writable()[rows] = np.where(good, rate, np.nan)
-        self.reasons[rows[~good]] = INVALID
+            # floor(v / base) rather than v // base: float floor-division is ~30x slower
+            first = np.floor(x / base)
+            count = x - first * base
+            # v in [base, 10 base) and whole  <=>  first in 1..9 and count whole
+            slot = np.fmax(np.fmin(first, 10.0), 0.0).astype(np.int64)  # fmin: NaN -> 10
+            rate = count * per_year[slot]
+            rate /= spec.factors[spec.to]
+            bad = ~(np.isfinite(rate) & (count == np.floor(count)))
+        np.copyto(rate, np.nan, where=bad)
+        np.copyto(self.writable(), rate, where=target)
+        self.reasons[target & bad] = INVALID
 
     def bounds(self, low: float, high: float) -> None:
         """Mark valid, not substituted values outside [low, high] invalid."""
