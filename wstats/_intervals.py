@@ -242,10 +242,14 @@ def clopper_pearson(x: npt.ArrayLike, n: npt.ArrayLike, level: float) -> tuple[A
     # Below 1e-4 successes (failures) the limit is below q^(1/1e-4): zero in double precision;
     # the beta quantile is inaccurate or overflows for such tiny shape parameters.
     has_low, has_high = ok & (xx >= _TINY), ok & (nn - xx >= _TINY)
-    low_q = beta_ppf(a / 2.0, np.where(has_low, xx, 1.0), np.where(has_low, nn - xx + 1, 1.0))
-    high_q = beta_ppf(
-        1.0 - a / 2.0, np.where(has_high, xx + 1, 1.0), np.where(has_high, nn - xx, 1.0)
-    )
+    # both limits in one call: the solver's steps are shared by all cells
+    k = xx.size
+    shape_a = [np.where(has_low, xx, 1.0), np.where(has_high, xx + 1, 1.0)]
+    shape_b = [np.where(has_low, nn - xx + 1, 1.0), np.where(has_high, nn - xx, 1.0)]
+    both = beta_ppf(np.repeat([a / 2.0, 1.0 - a / 2.0], k),
+                    np.concatenate([s.ravel() for s in shape_a]),
+                    np.concatenate([s.ravel() for s in shape_b]))
+    low_q, high_q = both[:k].reshape(xx.shape), both[k:].reshape(xx.shape)
     low = np.where(has_low, low_q, np.where(ok, 0.0, np.nan))
     high = np.where(has_high, high_q, np.where(ok, 1.0, np.nan))
     return _f(low), _f(high)

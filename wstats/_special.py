@@ -339,6 +339,21 @@ def _fisher_t(z: float, nu: Array) -> Array:
     return _f(z + r * (g1 + r * (g2 + r * (g3 + r * g4))))
 
 
+def _distinct(v: Array) -> tuple[Array, npt.NDArray[np.int64]]:
+    """Return the sorted distinct values of *v* and each element's position among them.
+
+    As ``numpy.unique(v, return_inverse=True)``, which would import numpy.ma (12 ms).
+    """
+    order = np.argsort(v, kind="stable")
+    ordered = v[order]
+    new = np.empty(len(v), dtype=bool)
+    new[:1] = True
+    np.not_equal(ordered[1:], ordered[:-1], out=new[1:])
+    back = np.empty(len(v), dtype=np.int64)
+    back[order] = np.cumsum(new) - 1
+    return ordered[new], back
+
+
 def t_ppf(q: float, df: npt.ArrayLike) -> Array:
     """Return the quantile t with P(T <= t) = q of Student's t on *df* degrees of freedom.
 
@@ -363,7 +378,7 @@ def t_ppf(q: float, df: npt.ArrayLike) -> Array:
         out[finite] = 0.0
         return out.reshape(shape)
     if finite.any():
-        nu, back = np.unique(flat[finite], return_inverse=True)
+        nu, back = _distinct(flat[finite])
         upper = max(q, 1.0 - q)  # solve for the upper quantile; the sign follows q
         inside, outside = 2.0 * upper - 1.0, 2.0 * (1.0 - upper)  # P(|T| <= t), P(|T| > t)
         t = np.empty(nu.shape)
