@@ -20,12 +20,12 @@ import numpy as np
 from wstats._intervals import effective_n
 from wstats._reasons import VALID
 from wstats._stats import (
+    _SPAN,
     Context,
     Piece,
     _Moments,
     _piece,
     category_levels,
-    integer_codes,
     level_index,
 )
 from wstats._variance import domain_df, linearized_variance
@@ -46,6 +46,7 @@ _Job = tuple["Array", Callable[["Array"], Piece]]
 BATCHED = ("mean", "total", "proportion")
 _TILE = 4_000_000  # pair x column cells of linearized totals held before their variances
 _THREADS = 2  # the machines this is tuned for have 2 cores
+_ROW_TILE = 65_536  # rows per tile of a categorical variable's passes
 
 
 class _Variances:
@@ -107,10 +108,10 @@ def _prepare(ctx: Context, job: tuple[str, str], ci: str) -> _Job:
     return _mean_or_total(ctx, name, stat)
 
 
-def _moments(ctx: Context, col: DecodedColumn, weighted_n: Array, valid: Bool) -> _Moments:
+def _moments(ctx: Context, col: DecodedColumn, weighted_n: Array) -> _Moments:
     """Return n, weighted n, Kish deff_w, df and reason counts, from the non-valid rows."""
     sums = ctx.sums
-    counts, w2_bad = sums.invalid_counts(col.reasons, len(ctx.vocabulary), valid)
+    counts, w2_bad = sums.invalid_counts(col.reasons, len(ctx.vocabulary))
     rows = sums.domain_rows
     n = rows[:, 0] - counts.sum(1)
     w2 = rows[:, 1] - w2_bad
@@ -118,7 +119,8 @@ def _moments(ctx: Context, col: DecodedColumn, weighted_n: Array, valid: Bool) -
         kish = np.where(weighted_n > 0, n * w2 / (weighted_n * weighted_n), np.nan)
     df = np.full(len(n), ctx.design.df)
     if ctx.per_domain_df:
-        df = domain_df(sums.pair_counts(valid.astype(np.float64)), sums)[:, 0]
+        valid = (col.reasons == VALID).astype(np.float64)
+        df = domain_df(sums.pair_counts(valid), sums)[:, 0]
     return _Moments(n, weighted_n, kish, df, counts)
 
 
@@ -126,13 +128,17 @@ def _mean_or_total(ctx: Context, name: str, stat: str) -> _Job:
     """Queue the domain mean or total of *name* (Wald-t; intervals are added later)."""
     col = ctx.numeric(name, stat)
     sums = ctx.sums
-    valid = col.reasons == VALID
-    y = np.where(valid, col.values, 0.0)
-    buckets = sums.bucket_sums([y, valid])
+    values, reasons = col.values, col.reasons
+
+    def parts(rows: Any) -> list[Any]:  # a tile of rows: the values (0 if not valid), validity
+        ok = reasons[rows] == VALID
+        return [np.where(ok, values[rows], 0.0), ok]
+
+    buckets = sums.bucket_sums_of(parts, 2)
     pair = sums.to_pairs(buckets)
     tot = sums.bucket_domains(buckets)
     wn = tot[:, 1]
-    m = _moments(ctx, col, wn, valid)
+    m = _moments(ctx, col, wn)
     with np.errstate(divide="ignore", invalid="ignore"):
         mean = tot[:, 0] / wn
         if stat == "mean":
@@ -140,7 +146,7 @@ def _mean_or_total(ctx: Context, name: str, stat: str) -> _Job:
             z = np.where(np.isfinite(z), z, 0.0)
         else:
             z = pair[:, 0]
-    s2 = _weighted_s2(ctx, y, valid, mean, m)
+    s2 = _weighted_s2(ctx, col, mean, m)
     est = mean if stat == "mean" else tot[:, 0]
 
     def finish(var: Array) -> Piece:
@@ -153,67 +159,96 @@ def _mean_or_total(ctx: Context, name: str, stat: str) -> _Job:
     return z[:, None], finish
 
 
-def _weighted_s2(ctx: Context, y: Array, valid: Bool, centre: Array, m: _Moments) -> Array:
+def _weighted_s2(ctx: Context, col: DecodedColumn, centre: Array, m: _Moments) -> Array:
     """Return s^2 = n/(n-1) sum w (y - centre_d)^2 / sum w per domain (see :mod:`_stats`)."""
     c = centre[0] if np.isfinite(centre[0]) else 0.0
-    dev = y - c
-    np.multiply(dev, dev, out=dev)
-    np.multiply(dev, valid, out=dev)
-    q = ctx.sums.bucket_domains(ctx.sums.bucket_sums(dev))[:, 0]
+    values, reasons = col.values, col.reasons
+
+    def parts(rows: Any) -> list[Any]:  # a tile of rows: squared deviations of valid values
+        dev = np.where(reasons[rows] == VALID, values[rows] - c, 0.0)
+        np.multiply(dev, dev, out=dev)
+        return [dev]
+
+    q = ctx.sums.bucket_domains(ctx.sums.bucket_sums_of(parts, 1))[:, 0]
     with np.errstate(divide="ignore", invalid="ignore"):
         ss = np.maximum(q - m.weighted_n * (centre - c) ** 2, 0.0)
         return np.asarray(m.n / (m.n - 1.0) * ss / m.weighted_n)
 
 
-def _levels(ctx: Context, col: DecodedColumn, valid: Bool
-            ) -> tuple[list[Any], list[str], Array]:
+def _levels(ctx: Context, col: DecodedColumn) -> tuple[list[Any], list[str], Array]:
     """Return the levels, their labels and the weighted sums by bucket and level (nb, L).
 
-    Small whole-number codes (the usual case) take one bincount over the valid rows: their
-    codes give both the distinct values and, through a lookup table, each row's level.
+    Small whole-number codes (the usual case) take row tiles: one pass finds their span, one
+    the codes observed, one the weighted counts by bucket and level through a lookup table;
+    the temporaries are a tile's. Other categories are indexed over the whole column.
     """
     sums = ctx.sums
     nb = sums.n_buckets
-    rows = np.flatnonzero(valid)  # then gathers: cheaper than three boolean selections
-    vv = col.values.take(rows) if col.values.dtype.kind == "f" else col.values[:0]
-    codes = integer_codes(vv)
-    if codes is None:
+    span = _whole_span(col)
+    if span is None:
+        valid = col.reasons == VALID
         values, labels = category_levels(col)
         index = level_index(col, values, valid)
         key = sums.bucket * len(values) + index
         key[index < 0] = nb * len(values)  # not valid / no level: the discard slot
-        weights = ctx.design.weights
-    else:
-        shifted, lo = codes
-        observed = np.flatnonzero(np.bincount(shifted)) + lo
-        values, labels = category_levels(col, observed)
-        # every valid value is an observed whole number in [lo, hi] and one of the levels
-        lv = np.asarray(values, dtype=np.float64)
-        hi = float(observed[-1])
-        pos = np.flatnonzero((lv >= lo) & (lv <= hi) & (lv == np.floor(lv)))[::-1]
-        table = np.full(int(hi - lo) + 1, -1, dtype=np.int64)
-        table[(lv[pos] - lo).astype(np.int64)] = pos  # reversed: the first level wins
-        key = sums.bucket.take(rows)
-        key *= len(values)
-        key += table[shifted]
-        weights = ctx.design.weights.take(rows)
+        nl = len(values)
+        out = np.bincount(key, weights=ctx.design.weights, minlength=nb * nl + 1)[: nb * nl]
+        return values, labels, out.reshape(nb, nl).astype(np.float64, copy=False)
+    lo, hi = span
+    seen = np.zeros(int(hi - lo) + 1, dtype=bool)
+    for tile in _tiles(len(col.values)):  # loop over row tiles, not rows
+        v = col.values[tile][col.reasons[tile] == VALID]
+        seen[(v - lo).astype(np.int64)] = True
+    observed = np.flatnonzero(seen) + lo
+    values, labels = category_levels(col, observed)
+    # every valid value is an observed whole number in [lo, hi] and one of the levels
+    lv = np.asarray(values, dtype=np.float64)
+    pos = np.flatnonzero((lv >= lo) & (lv <= hi) & (lv == np.floor(lv)))[::-1]
+    table = np.full(int(hi - lo) + 1, -1, dtype=np.int64)
+    table[(lv[pos] - lo).astype(np.int64)] = pos  # reversed: the first level wins
     nl = len(values)
-    out = np.bincount(key, weights=weights, minlength=nb * nl + 1)[: nb * nl]
-    return values, labels, out.reshape(nb, nl).astype(np.float64, copy=False)
+    by_key = np.zeros(nb * nl + nl)  # the last nl slots: rows outside the population domain
+    for tile in _tiles(len(col.values)):
+        ok = col.reasons[tile] == VALID
+        key = sums.bucket[tile][ok] * nl
+        key += table[(col.values[tile][ok] - lo).astype(np.int64)]
+        by_key += np.bincount(key, weights=ctx.design.weights[tile][ok], minlength=len(by_key))
+    return values, labels, by_key[: nb * nl].reshape(nb, nl)
+
+
+def _whole_span(col: DecodedColumn) -> tuple[float, float] | None:
+    """Return (min, max) of the valid values when they are whole numbers of a small span."""
+    if col.values.dtype.kind != "f":
+        return None
+    lo, hi, whole = np.inf, -np.inf, True
+    for tile in _tiles(len(col.values)):  # loop over row tiles, not rows
+        v = col.values[tile][col.reasons[tile] == VALID]
+        if len(v):
+            lo, hi = min(lo, float(v.min())), max(hi, float(v.max()))
+            whole = whole and bool((v == np.floor(v)).all())
+    if not (whole and np.isfinite(lo) and np.isfinite(hi)) or hi - lo > _SPAN:
+        return None
+    return lo, hi
+
+
+def _tiles(n: int) -> list[slice]:
+    """Return slices of :data:`_ROW_TILE` rows covering 0..n."""
+    return [slice(b, min(b + _ROW_TILE, n)) for b in range(0, n, _ROW_TILE)]
 
 
 def _proportion(ctx: Context, name: str, ci: str) -> _Job:
     """Queue the proportion of every level of *name*, per domain."""
     col = ctx.columns[name]
     sums = ctx.sums
-    valid = col.reasons == VALID
-    values, labels, buckets = _levels(ctx, col, valid)
+    reasons = col.reasons
+    values, labels, buckets = _levels(ctx, col)
     nl = len(values)
+    valid_b = (sums.bucket_sums_of(lambda rows: [reasons[rows] == VALID], 1) if nl
+               else np.zeros((sums.n_buckets, 1)))
     by_level = sums.to_pairs(buckets)
-    valid_b = sums.bucket_sums([valid]) if nl else np.zeros((sums.n_buckets, 1))
     den_pair = sums.to_pairs(valid_b)[:, 0]
     den = sums.bucket_domains(valid_b)[:, 0]
-    m = _moments(ctx, col, den, valid)
+    m = _moments(ctx, col, den)
     nd = sums.n_domains
     with np.errstate(divide="ignore", invalid="ignore"):
         est = (sums.domain_totals(by_level) / den[:, None]) if nl else np.zeros((nd, 0))

@@ -29,7 +29,7 @@ from wstats._stats import (
     distinct_values,
     level_index,
 )
-from wstats._sums import Domains, WeightedSums
+from wstats._sums import Domains, WeightedSums, no_cell
 from wstats.errors import EstimationError, did_you_mean
 
 if TYPE_CHECKING:
@@ -244,7 +244,7 @@ def _domains(data: Dataset, bound: BoundDesign, by: list[str], where: str | None
             f"{MAX_CELLS}); group a continuous by-variable into classes first"
         )
     if any(s == 0 for s in sizes):
-        return Domains(inside, np.full(bound.n_rows, -1, dtype=np.int64), 0), levels
+        return Domains(inside, no_cell(bound.n_rows), 0), levels
     return Domains.build(inside, codes, sizes), levels
 
 

@@ -16,10 +16,10 @@ back exactly (see :mod:`wstats._variance`), so nothing the size of PSUs x domain
 
 from __future__ import annotations
 
-from collections.abc import Sequence
+from collections.abc import Callable, Sequence
 from dataclasses import dataclass
 from functools import cached_property
-from typing import TYPE_CHECKING
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
@@ -32,8 +32,10 @@ if TYPE_CHECKING:
     Array = npt.NDArray[np.float64]
     Index = npt.NDArray[np.int64]
     Bool = npt.NDArray[np.bool_]
+    #: makes the value columns of a tile of rows (a slice or row numbers)
+    Parts = Callable[[slice | Index], Sequence[npt.NDArray[Any]]]
 
-__all__ = ["Domains", "WeightedSums", "domain_quantiles"]
+__all__ = ["Domains", "GroupSum", "WeightedSums", "domain_quantiles", "no_cell"]
 
 _TOL = 1e-10  # relative tolerance when comparing cumulative weight shares with p
 _ROW_TILE = 65_536  # rows per tile of a weighted pass (0.5 MB per float64 temporary)
@@ -64,11 +66,19 @@ class Domains:
     def build(cls, inside: Bool, codes: list[Index], sizes: list[int]) -> Domains:
         """Cross per-variable level codes (-1 = no level) into cell numbers, row-major."""
         if not codes:
-            return cls(inside, np.full(len(inside), -1, dtype=np.int64), 0)
+            return cls(inside, no_cell(len(inside)), 0)
         ok = inside & np.logical_and.reduce([c >= 0 for c in codes])
         safe = [np.where(ok, c, 0) for c in codes]
         cell = np.ravel_multi_index(safe, sizes) if sizes else np.zeros(len(inside), np.int64)
         return cls(inside, np.where(ok, cell, -1).astype(np.int64), int(np.prod(sizes)))
+
+
+def no_cell(n: int) -> Index:
+    """Return the cell column of *n* rows outside every by-cell: -1 everywhere, read-only.
+
+    A broadcast view of one value: no memory per row.
+    """
+    return np.broadcast_to(np.int64(-1), (n,))
 
 
 class WeightedSums:
@@ -119,6 +129,14 @@ class WeightedSums:
             out[:, j] = self._rows.weighted(col)
         return out
 
+    def bucket_sums_of(self, parts: Parts, width: int) -> Array:
+        """Return sum over rows of w * v by bucket for value columns made tile by tile.
+
+        ``parts(rows)`` returns the *width* value columns of the rows ``rows`` (a slice or an
+        array of row numbers); see :meth:`_RowSums.weighted_parts`. Shape (buckets, width).
+        """
+        return self._rows.weighted_parts(parts, width)
+
     def pair_sums(self, x: Array | Sequence[Array]) -> Array:
         """Return sum over rows of w * x by (PSU, domain) pair: shape (pairs, V)."""
         return self.to_pairs(self.bucket_sums(x))
@@ -140,7 +158,7 @@ class WeightedSums:
     def _all_counts(self) -> Array:
         """Domain counts, sums of w and of w^2 over all rows, as (D, 3)."""
         w = self.design.weights
-        return self.counts([np.ones(self.n_rows), w, self._w2])
+        return self.counts([np.ones(self.n_rows), w, w * w])
 
     def valid_pair_sums(self, valid: Bool) -> Array:
         """Return pair sums of w over valid rows: shape (pairs, 1)."""
@@ -151,7 +169,8 @@ class WeightedSums:
         if valid.all():
             return self._all_counts
         v = valid.astype(np.float64)
-        return self.counts([v, self.design.weights * v, self._w2 * v])
+        w = self.design.weights
+        return self.counts([v, w * v, w * w * v])
 
     def invalid_counts(self, reasons: npt.NDArray[np.int8], n_reasons: int,
                        valid: Bool | None = None) -> tuple[Index, Array]:
@@ -161,25 +180,27 @@ class WeightedSums:
         non-valid rows only: the valid rows' counts are the domain's rows minus these (see
         :meth:`domain_rows`).
         """
-        rows = np.flatnonzero(reasons if valid is None else ~valid)
-        b = self.bucket[rows]
         nb = self.n_buckets
-        key = b * n_reasons + reasons[rows].astype(np.int64)
-        cnt = np.bincount(key, minlength=(nb + 1) * n_reasons)[: nb * n_reasons]
-        w2 = np.bincount(b, weights=self._w2[rows], minlength=nb + 1)[:nb].astype(np.float64)
-        by_domain = self.bucket_domains(cnt.reshape(nb, n_reasons).astype(np.float64))
+        cnt = np.zeros((nb + 1) * n_reasons, dtype=np.int64)
+        w2 = np.zeros(nb + 1)
+        for begin in range(0, len(reasons), _ROW_TILE):  # row tiles: bounded temporaries
+            tile = slice(begin, begin + _ROW_TILE)
+            rows = np.flatnonzero(reasons[tile] if valid is None else ~valid[tile]) + begin
+            b = self.bucket[rows]
+            key = b * n_reasons + reasons[rows].astype(np.int64)
+            cnt += np.bincount(key, minlength=len(cnt))
+            w = self.design.weights[rows]
+            w2 += np.bincount(b, weights=w * w, minlength=nb + 1)
+        by_domain = self.bucket_domains(
+            cnt[: nb * n_reasons].reshape(nb, n_reasons).astype(np.float64))
+        w2 = w2[:nb]
         return np.rint(by_domain).astype(np.int64), self.bucket_domains(w2)
 
     @cached_property
     def domain_rows(self) -> Array:
-        """Rows per domain and their sums of w^2: shape (D, 2)."""
-        ones = np.ones(self.n_rows)
-        return self.counts([ones, self._w2])
-
-    @cached_property
-    def _w2(self) -> Array:
-        """Squared weights, for Kish's weighting effect."""
-        return np.asarray(self.design.weights**2)
+        """Rows per domain and their sums of w^2 (Kish's weighting effect): shape (D, 2)."""
+        w = self.design.weights
+        return self.counts([np.ones(self.n_rows), w * w])
 
     def domain_totals(self, pair: Array) -> Array:
         """Return pair sums added up by domain: shape (D, V)."""
@@ -306,27 +327,34 @@ class _RowSums:
                        else None)
 
     def weighted(self, x: Array) -> Array:
-        """Return sum of w * x by bucket: shape (buckets,).
+        """Return sum of w * x by bucket: shape (buckets,)."""
+        return self.weighted_parts(lambda rows: [x[rows]], 1)[:, 0]
 
-        Rows are taken in tiles of :data:`_ROW_TILE`, so the temporaries (the values as
-        float64, times the weights) stay the size of a tile whatever the file's length.
+    def weighted_parts(self, parts: Parts, width: int) -> Array:
+        """Return sums of w * v by bucket for the *width* columns v that *parts* makes.
+
+        Rows are taken in tiles of :data:`_ROW_TILE`: ``parts(rows)`` gets a tile's rows (a
+        slice or row numbers into the full columns) and returns its value columns, so the
+        temporaries stay the size of a tile whatever the file's length.
         """
-        out = np.zeros(self.n_buckets)
+        out = np.zeros((self.n_buckets, width))
         if self.n_buckets == 0:  # no row inside the population domain
             return out
         n = len(self.bucket)
         for begin in range(0, n, _ROW_TILE):  # loop over row tiles, not rows
             end = min(begin + _ROW_TILE, n)
-            part = x[begin:end] if self.rows is None else x[self.rows[begin:end]]
-            values = self.weights[begin:end] * np.asarray(part, dtype=np.float64)
+            rows = slice(begin, end) if self.rows is None else self.rows[begin:end]
+            w = self.weights[begin:end]
             bucket = self.bucket[begin:end]
-            if self.starts is None:
-                out += np.bincount(bucket, weights=values, minlength=self.n_buckets)
-                continue
-            first, last = int(bucket[0]), int(bucket[-1])  # sorted: every bucket between
-            local = self.starts[first : last + 1] - begin  # them starts inside the tile
-            local[0] = 0  # ... except the first, which may have begun in the tile before
-            out[first : last + 1] += np.add.reduceat(values, local)
+            for j, part in enumerate(parts(rows)):
+                values = w * np.asarray(part, dtype=np.float64)
+                if self.starts is None:
+                    out[:, j] += np.bincount(bucket, weights=values, minlength=self.n_buckets)
+                    continue
+                first, last = int(bucket[0]), int(bucket[-1])  # sorted: every bucket between
+                local = self.starts[first : last + 1] - begin  # them starts inside the tile
+                local[0] = 0  # ... except the first, which may have begun in the tile before
+                out[first : last + 1, j] += np.add.reduceat(values, local)
         return out
 
 
