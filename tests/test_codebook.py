@@ -165,6 +165,22 @@ def test_unit_prefixed_unknown_leading_digit_and_bad_width_are_invalid() -> None
     assert reasons_of(ds, "EX") == ["invalid", "invalid", "invalid", "invalid", "skipped"]
 
 
+def test_unit_prefixed_conversion_in_tiles_equals_one_pass(monkeypatch: pytest.MonkeyPatch
+                                                           ) -> None:
+    # common practice, no source: the conversion runs on row tiles; tiles of 3 rows (cutting
+    # through codes, blanks and bad prefixes) give what one tile over all rows gives
+    from wstats import _decode
+
+    codes = [103, 777, 203, NAN, 503, 888, 303, 102.5, 403, 999, 15, 210] * 3
+    whole = decode(table(num("EX", codes)), unit_book("week"))
+    monkeypatch.setattr(_decode, "_TILE", 3)
+    tiled = decode(table(num("EX", codes)), unit_book("week"))
+    np.testing.assert_array_equal(tiled["EX"].values, whole["EX"].values)
+    assert reasons_of(tiled, "EX") == reasons_of(whole, "EX")
+    assert reasons_of(whole, "EX")[:6] == ["valid", "dont_know", "valid", "skipped", "invalid",
+                                           "valid"]
+
+
 def test_unit_prefixed_factors_are_overridable() -> None:
     # a user may prefer 365.25 days and 52.1775 weeks per year (Julian year; from memory)
     book = unit_book("year", factors={"day": 365.25, "week": 52.1775, "month": 12, "year": 1})
@@ -313,6 +329,26 @@ def test_derived_bmi_and_reason_precedence() -> None:
     # precedence refused > dont_know; division by zero is invalid
     assert reasons_of(ds, "BMI") == ["valid", "dont_know", "refused", "refused", "invalid"]
     assert ds["BMI"].label == "BMI" and ds["BMI"].kind == "continuous"
+
+
+def test_derived_in_tiles_equals_one_pass(monkeypatch: pytest.MonkeyPatch) -> None:
+    # common practice, no source: derived variables are evaluated on row tiles; tiles of 2
+    # rows give what one pass gives (values, reasons, derived on derived)
+    from wstats import _decode
+
+    raw = table(num("KG", [70, 777, 70, 999, 80, 95, 60]),
+                num("CM", [175, 180, 999, 777, 0, 160, 181]))
+    book = cb({"variables": {"KG": {"codes": {"777": "dont_know", "999": "refused"}},
+                             "CM": {"codes": {"777": "dont_know", "999": "refused"}}},
+               "derived": {"BMI": {"expr": "KG / (CM / 100) ^ 2"},
+                           "OBESE": {"expr": "BMI >= 30"}}})
+    whole = decode(raw, book)
+    monkeypatch.setattr(_decode, "_TILE", 2)
+    tiled = decode(raw, book)
+    for name in ("BMI", "OBESE"):
+        np.testing.assert_array_equal(tiled[name].values, whole[name].values)
+        assert reasons_of(tiled, name) == reasons_of(whole, name)
+    assert reasons_of(tiled, "OBESE")[4:] == ["invalid", "valid", "valid"]
 
 
 def test_derived_on_derived_in_dependency_order_and_boolean_kind() -> None:

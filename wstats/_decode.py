@@ -15,7 +15,7 @@ their value label when it clearly says don't know / refused / not asked / missin
 from __future__ import annotations
 
 import re
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from typing import TYPE_CHECKING, Any
 
 import numpy as np
@@ -180,28 +180,32 @@ class _Work:
     def units(self, spec: UnitPrefix) -> None:
         """Convert unit-prefixed answers of undecided rows; bad prefixes become invalid.
 
-        Whole-column arithmetic with a mask, not a gather and a scatter of the rows: on a
-        465,000-row column that took a third of the time.
+        Masked arithmetic on tiles of rows (no gather and scatter of the rows, and
+        temporaries the size of a tile): on a 465,000-row column a third of the time.
         """
-        x = self.x
-        target = ~self.ruled & np.isfinite(x)
         base = 10.0 ** (spec.digits - 1)
         per_year = np.full(11, np.nan)  # slot 10: any leading value that is not a digit 1-9
         for digit, unit in spec.units.items():
             per_year[digit] = spec.factors[unit]
         per_year[0] = np.nan  # below base: no unit digit
-        with np.errstate(invalid="ignore"):
-            # floor(v / base) rather than v // base: float floor-division is ~30x slower
-            first = np.floor(x / base)
-            count = x - first * base
-            # v in [base, 10 base) and whole  <=>  first in 1..9 and count whole
-            slot = np.fmax(np.fmin(first, 10.0), 0.0).astype(np.int64)  # fmin: NaN -> 10
-            rate = count * per_year[slot]
-            rate /= spec.factors[spec.to]
-            bad = ~(np.isfinite(rate) & (count == np.floor(count)))
-        np.copyto(rate, np.nan, where=bad)
-        np.copyto(self.writable(), rate, where=target)
-        self.reasons[target & bad] = INVALID
+        to = spec.factors[spec.to]
+        values = self.writable()  # (a copy of x when x is not ours; x keeps the codes)
+        for begin in range(0, len(self.x), _TILE):  # loop over row tiles, not rows
+            tile = slice(begin, begin + _TILE)
+            x = self.x[tile]
+            target = ~self.ruled[tile] & np.isfinite(x)
+            with np.errstate(invalid="ignore"):
+                # floor(v / base) rather than v // base: float floor-division is ~30x slower
+                first = np.floor(x / base)
+                count = x - first * base
+                # v in [base, 10 base) and whole  <=>  first in 1..9 and count whole
+                slot = np.fmax(np.fmin(first, 10.0), 0.0).astype(np.int64)  # fmin: NaN -> 10
+                rate = count * per_year[slot]
+                rate /= to
+                bad = ~(np.isfinite(rate) & (count == np.floor(count)))
+            np.copyto(rate, np.nan, where=bad)
+            np.copyto(values[tile], rate, where=target)
+            self.reasons[tile][target & bad] = INVALID
 
     def bounds(self, low: float, high: float) -> None:
         """Mark valid, not substituted values outside [low, high] invalid."""
@@ -212,6 +216,9 @@ class _Work:
         if len(out):
             self.reasons[out] = INVALID
             self.writable()[out] = np.nan
+
+
+_TILE = 65_536  # rows per tile of the unit-prefix conversion and of derived variables
 
 
 def _digits(x: np.ndarray) -> int | None:
@@ -402,10 +409,28 @@ def add_derived(cols: dict[str, DecodedColumn], raw: RawTable, cb: Codebook,
             raise unknown_input(expr, unknown[0], raw.path, [*raw.file_columns, *cb.derived])
         if absent:
             continue  # an input was not read: the caller did not ask for this variable
-        values, reasons = expr.evaluate(cols, vocab, raw.n_rows)
+        values, reasons = _evaluate_in_tiles(expr, cols, vocab, raw.n_rows)
         kind = spec.kind or ("binary" if expr.boolean else "continuous")
         cols[name] = DecodedColumn(name, values, reasons, vocab, spec.label, kind,
                                    dict(spec.labels or {}))
+
+
+def _evaluate_in_tiles(expr: Expression, cols: dict[str, DecodedColumn], vocab: Reasons,
+                       n_rows: int) -> tuple[np.ndarray, np.ndarray]:
+    """Evaluate a derived variable tile by tile (every operation of the language is per row).
+
+    The intermediate arrays of the expression are then the size of a tile, not of the file.
+    """
+    if n_rows <= _TILE or not expr.inputs:
+        return expr.evaluate(cols, vocab, n_rows)
+    values, reasons = np.empty(n_rows), np.empty(n_rows, dtype=np.int8)
+    for begin in range(0, n_rows, _TILE):  # loop over row tiles, not rows
+        tile = slice(begin, min(begin + _TILE, n_rows))
+        part = {name: replace(cols[name], values=cols[name].values[tile],
+                              reasons=cols[name].reasons[tile], raw=None)
+                for name in expr.inputs}
+        values[tile], reasons[tile] = expr.evaluate(part, vocab, tile.stop - tile.start)
+    return values, reasons
 
 
 def unknown_input(expr: Expression, name: str, path: str,

@@ -440,19 +440,33 @@ def _codes(col: DecodedColumn | None, rows: Index | None, n: int) -> tuple[Index
 def _unique_inverse(values: npt.NDArray[Any]) -> tuple[npt.NDArray[Any], Index]:
     """Return the sorted distinct values and each value's position among them.
 
-    Whole numbers of a small span (strata, PSU numbers) take a bincount instead of a sort.
+    Whole numbers of a small span (strata, PSU numbers) take a lookup table instead of a
+    sort, in row tiles (temporaries the size of a tile).
     """
     if values.dtype.kind in "fiu" and len(values):
         lo, hi = values.min(), values.max()
         if np.isfinite(lo) and np.isfinite(hi) and float(hi) - float(lo) <= 8 * len(values):
-            shifted = values - lo
-            codes = shifted.astype(np.int64)
-            if bool((codes == shifted).all()):
-                seen = np.bincount(codes) > 0
+            seen = np.zeros(int(float(hi) - float(lo)) + 1, dtype=bool)
+            tiles = [slice(b, b + _TILE) for b in range(0, len(values), _TILE)]
+            whole = True
+            for tile in tiles:  # loop over row tiles, not rows
+                shifted = values[tile] - lo
+                codes = shifted.astype(np.int64)
+                if not bool((codes == shifted).all()):
+                    whole = False
+                    break
+                seen[codes] = True
+            if whole:
                 position = np.cumsum(seen) - 1
-                return (np.flatnonzero(seen) + lo).astype(values.dtype), position[codes]
+                inverse = np.empty(len(values), dtype=np.int64)
+                for tile in tiles:
+                    inverse[tile] = position[(values[tile] - lo).astype(np.int64)]
+                return (np.flatnonzero(seen) + lo).astype(values.dtype), inverse
     uniq, inverse = np.unique(values, return_inverse=True)
     return uniq, inverse.astype(np.int64).ravel()
+
+
+_TILE = 65_536  # rows per tile when coding strata and PSUs
 
 
 def _psu_index(stratum: Index, psu: Index | None) -> tuple[Index, Index]:
