@@ -270,6 +270,30 @@ def test_tags_become_reasons_and_case_folds() -> None:
                                    "skipped"]
 
 
+@pytest.mark.parametrize("threads", [1, 2])
+def test_columns_decoded_at_once_keep_the_vocabulary_order(
+        threads: int, monkeypatch: pytest.MonkeyPatch) -> None:
+    # common practice, no source: columns are decoded on threads, each on its own vocabulary;
+    # the reasons they meet join in column order, as one after another would (the order ranks
+    # the extra reasons' precedence, which a derived variable then uses)
+    from wstats import _decode
+
+    monkeypatch.setattr(_decode, "_THREADS", threads)
+
+    def tagged(name: str, letters: str) -> RawColumn:
+        tags = np.array([0, *(ord(c) for c in letters)], dtype=np.uint8)
+        return num(name, [1.0] + [NAN] * len(letters), tags=tags)
+
+    raw = table(tagged("A", "cb"), tagged("B", "ad"), tagged("C", "db"))
+    book = cb({"derived": {"S": {"expr": "A + B + C"}}})
+    ds = decode(raw, book)
+    # within a column the tags are met in letter order; columns in file order
+    assert ds.vocabulary.extra == ("tag_b", "tag_c", "tag_a", "tag_d")
+    assert reasons_of(ds, "C") == ["valid", "tag_d", "tag_b"]
+    # the precedence of extras follows their order: the earlier-registered tag wins
+    assert reasons_of(ds, "S") == ["valid", "tag_c", "tag_b"]
+
+
 def test_codebook_overrides_file_declarations_and_tags() -> None:
     tags = np.array([0, ord("a"), 0, 0], dtype=np.uint8)
     col = num("T", [7, NAN, 9, 1], tags=tags, user_missing=[7.0, 9.0],

@@ -9,7 +9,7 @@ Invariants (checked in ``__post_init__``):
 from __future__ import annotations
 
 from collections.abc import Iterator, Mapping
-from dataclasses import dataclass, field
+from dataclasses import InitVar, dataclass, field
 from typing import TYPE_CHECKING, Any
 
 import numpy as np
@@ -39,6 +39,8 @@ class DecodedColumn:
     kind : one of ``continuous``, ``count``, ``categorical``, ``binary``, ``text``.
     value_labels : value -> label for categorical/binary variables (may be empty).
     raw : the raw codes before decoding (float64 or object), kept for ``codebook check``.
+    check : (construction only) validate the arrays; False when they come from a column
+        already checked (e.g. moved to another vocabulary with the same names).
     """
 
     name: str
@@ -49,8 +51,11 @@ class DecodedColumn:
     kind: str = "continuous"
     value_labels: dict[float, str] = field(default_factory=dict)
     raw: np.ndarray | None = None
+    check: InitVar[bool] = True
 
-    def __post_init__(self) -> None:
+    def __post_init__(self, check: bool) -> None:
+        if not check:
+            return
         if len(self.values) != len(self.reasons):
             raise ValueError(f"{self.name}: values and reasons differ in length")
         if self.reasons.dtype != np.int8:

@@ -14,7 +14,9 @@ their value label when it clearly says don't know / refused / not asked / missin
 
 from __future__ import annotations
 
+import os
 import re
+from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass, replace
 from typing import TYPE_CHECKING, Any
 
@@ -219,6 +221,7 @@ class _Work:
 
 
 _TILE = 65_536  # rows per tile of the unit-prefix conversion and of derived variables
+_THREADS = 2  # columns decoded at once
 
 
 def _digits(x: np.ndarray) -> int | None:
@@ -441,6 +444,14 @@ def unknown_input(expr: Expression, name: str, path: str,
                            f"{did_you_mean(name, choices)}")
 
 
+def _adopt(col: DecodedColumn, vocab: Reasons) -> DecodedColumn:
+    """Return *col* on the shared vocabulary, registering its new reasons there in order."""
+    codes = np.array([vocab.add(name) for name in col.vocabulary.names], dtype=np.int8)
+    if np.array_equal(codes, np.arange(len(codes))):  # same codes: only the vocabulary changes
+        return replace(col, vocabulary=vocab, check=False)
+    return replace(col, reasons=codes[col.reasons], vocabulary=vocab, check=False)
+
+
 def new_vocabulary(cb: Codebook) -> Reasons:
     """Start the dataset's vocabulary with the codebook's reasons in declaration order."""
     return Reasons(list(cb.reasons))
@@ -453,8 +464,20 @@ def decode_table(raw: RawTable, cb: Codebook, consume: bool = False) -> Dataset:
     dataset needs little memory beyond the raw columns (their ``raw`` codes are then not kept).
     """
     vocab = new_vocabulary(cb)
-    cols = {name: decode_column(col, cb, vocab, consume).column
-            for name, col in raw.columns.items()}
+    names = list(raw.columns)
+
+    def one(name: str) -> DecodedColumn:  # on its own vocabulary: threads do not share one
+        return decode_column(raw.columns[name], cb, Reasons(list(vocab.extra)), consume).column
+
+    threads = min(_THREADS, os.cpu_count() or 1, len(names))
+    if threads > 1:
+        with ThreadPoolExecutor(threads) as pool:  # numpy releases the GIL on whole columns
+            decoded = list(pool.map(one, names))  # in order: the first failing column raises
+    else:
+        decoded = [one(name) for name in names]
+    # reasons met while decoding join the shared vocabulary in column order, as if decoded
+    # one after another (the order matters: it ranks the extra reasons' precedence)
+    cols = {name: _adopt(col, vocab) for name, col in zip(names, decoded, strict=True)}
     add_derived(cols, raw, cb, vocab)
     meta: dict[str, Any] = {"format": raw.format, "reader": raw.reader,
                             "file_label": raw.file_label, "codebook": cb.source,
