@@ -69,16 +69,41 @@ def timed(cmd: list[str]) -> tuple[float, float]:
     return wall, usage.ru_maxrss / 1024.0  # Linux: kilobytes
 
 
+def cpu_ticks() -> tuple[int, int] | None:
+    """Return (all, stolen) CPU ticks of the machine so far (Linux ``/proc/stat``; else None).
+
+    Steal time is what the hypervisor gave to other guests while this one wanted the CPU: on a
+    shared virtual machine it slows every case, but not evenly (it hits user-space work more
+    than ``cat``'s kernel copies), so the ratios move with it.
+    """
+    try:
+        with open("/proc/stat") as f:
+            fields = [int(x) for x in f.readline().split()[1:]]
+    except (OSError, ValueError):
+        return None
+    return sum(fields[:8]), fields[7] if len(fields) > 7 else 0
+
+
+def _steal(before: tuple[int, int] | None, after: tuple[int, int] | None) -> float | None:
+    """Return the share of CPU time stolen between two :func:`cpu_ticks` readings."""
+    if before is None or after is None or after[0] == before[0]:
+        return None
+    return (after[1] - before[1]) / (after[0] - before[0])
+
+
 def measure(name: str, cmd: list[str], repeat: int, warm_up: bool = True) -> dict[str, Any]:
     """Time *cmd* *repeat* times (after one warm-up run); print and return the summary."""
     if warm_up:
         timed(cmd)
+    start = cpu_ticks()
     runs = [timed(cmd) for _ in range(repeat)]
+    steal = _steal(start, cpu_ticks())
     walls = [w for w, _ in runs]
     row = {"median": statistics.median(walls), "min": min(walls), "max": max(walls),
-           "rss_mb": max(r for _, r in runs), "runs": len(runs)}
+           "rss_mb": max(r for _, r in runs), "runs": len(runs), "steal": steal}
+    stolen = "" if steal is None else f"  CPU steal {100 * steal:4.1f}%"
     print(f"  {name:<3} {row['median']:8.3f} s  (min {row['min']:.3f}, max {row['max']:.3f}, "
-          f"{len(runs)} runs)  peak RSS {row['rss_mb']:7.0f} MB", flush=True)
+          f"{len(runs)} runs)  peak RSS {row['rss_mb']:7.0f} MB{stolen}", flush=True)
     return row
 
 
