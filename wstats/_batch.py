@@ -178,9 +178,10 @@ def _weighted_s2(ctx: Context, col: DecodedColumn, centre: Array, m: _Moments) -
 def _levels(ctx: Context, col: DecodedColumn) -> tuple[list[Any], list[str], Array]:
     """Return the levels, their labels and the weighted sums by bucket and level (nb, L).
 
-    Small whole-number codes (the usual case) take row tiles: one pass finds their span, one
-    the codes observed, one the weighted counts by bucket and level through a lookup table;
-    the temporaries are a tile's. Other categories are indexed over the whole column.
+    Small whole-number codes (the usual case) take row tiles: one pass checks them, one finds
+    the codes observed, one the weighted counts by bucket and level through a lookup table
+    (NaN, a row without a valid value, goes to a discard slot); the temporaries are a tile's.
+    Other categories are indexed over the whole column.
     """
     sums = ctx.sums
     nb = sums.n_buckets
@@ -195,39 +196,50 @@ def _levels(ctx: Context, col: DecodedColumn) -> tuple[list[Any], list[str], Arr
         out = np.bincount(key, weights=ctx.design.weights, minlength=nb * nl + 1)[: nb * nl]
         return values, labels, out.reshape(nb, nl).astype(np.float64, copy=False)
     lo, hi = span
-    seen = np.zeros(int(hi - lo) + 1, dtype=bool)
+    size = int(hi - lo) + 1
+    seen = np.zeros(size + 1, dtype=bool)  # slot `size`: rows without a valid value
     for tile in _tiles(len(col.values)):  # loop over row tiles, not rows
-        v = col.values[tile][col.reasons[tile] == VALID]
-        seen[(v - lo).astype(np.int64)] = True
-    observed = np.flatnonzero(seen) + lo
+        seen[_codes_of(col.values[tile], lo, size)] = True
+    observed = np.flatnonzero(seen[:size]) + lo
     values, labels = category_levels(col, observed)
     # every valid value is an observed whole number in [lo, hi] and one of the levels
     lv = np.asarray(values, dtype=np.float64)
     pos = np.flatnonzero((lv >= lo) & (lv <= hi) & (lv == np.floor(lv)))[::-1]
-    table = np.full(int(hi - lo) + 1, -1, dtype=np.int64)
-    table[(lv[pos] - lo).astype(np.int64)] = pos  # reversed: the first level wins
     nl = len(values)
-    by_key = np.zeros(nb * nl + nl)  # the last nl slots: rows outside the population domain
+    table = np.full(size + 1, nb * nl, dtype=np.int64)  # not valid: past every bucket
+    table[(lv[pos] - lo).astype(np.int64)] = pos  # reversed: the first level wins
+    by_key = np.zeros(nb * nl + nl + nb * nl + nl)  # slots past nb*nl: rows to discard
     for tile in _tiles(len(col.values)):
-        ok = col.reasons[tile] == VALID
-        key = sums.bucket[tile][ok] * nl
-        key += table[(col.values[tile][ok] - lo).astype(np.int64)]
-        by_key += np.bincount(key, weights=ctx.design.weights[tile][ok], minlength=len(by_key))
+        key = sums.bucket[tile] * nl
+        key += table[_codes_of(col.values[tile], lo, size)]
+        by_key += np.bincount(key, weights=ctx.design.weights[tile], minlength=len(by_key))
     return values, labels, by_key[: nb * nl].reshape(nb, nl)
 
 
+def _codes_of(v: Array, lo: float, size: int) -> npt.NDArray[np.int64]:
+    """Return v - lo as integer codes, *size* where v is NaN (a row without a valid value)."""
+    shifted = v - lo
+    np.copyto(shifted, size, where=np.isnan(shifted))
+    return shifted.astype(np.int64)
+
+
 def _whole_span(col: DecodedColumn) -> tuple[float, float] | None:
-    """Return (min, max) of the valid values when they are whole numbers of a small span."""
-    if col.values.dtype.kind != "f":
+    """Return (min, max) of the valid values when they are whole numbers of a small span.
+
+    A non-valid row holds NaN, which ``fmin``/``fmax`` skip; the tiled passes then take NaN
+    for "not valid", so a valid row holding NaN sends the column the other way.
+    """
+    if col.values.dtype.kind != "f" or not len(col.values):
         return None
-    lo, hi, whole = np.inf, -np.inf, True
+    lo, hi = float(np.fmin.reduce(col.values)), float(np.fmax.reduce(col.values))
+    if not (np.isfinite(lo) and np.isfinite(hi)) or hi - lo > _SPAN:
+        return None
     for tile in _tiles(len(col.values)):  # loop over row tiles, not rows
-        v = col.values[tile][col.reasons[tile] == VALID]
-        if len(v):
-            lo, hi = min(lo, float(v.min())), max(hi, float(v.max()))
-            whole = whole and bool((v == np.floor(v)).all())
-    if not (whole and np.isfinite(lo) and np.isfinite(hi)) or hi - lo > _SPAN:
-        return None
+        v = col.values[tile]
+        blank = np.isnan(v)
+        if not bool(np.all((v == np.floor(v)) | blank)) or bool(
+                np.any(blank & (col.reasons[tile] == VALID))):
+            return None
     return lo, hi
 
 
