@@ -46,7 +46,7 @@ _Job = tuple["Array", Callable[["Array"], Piece]]
 BATCHED = ("mean", "total", "proportion")
 _TILE = 4_000_000  # pair x column cells of linearized totals held before their variances
 _THREADS = 2  # the machines this is tuned for have 2 cores
-_ROW_TILE = 65_536  # rows per tile of a categorical variable's passes
+_ROW_TILE = 262_144  # rows per tile of a categorical variable's passes
 
 
 class _Variances:
