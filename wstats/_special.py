@@ -36,6 +36,8 @@ from typing import TYPE_CHECKING
 import numpy as np
 
 if TYPE_CHECKING:
+    from collections.abc import Callable
+
     import numpy.typing as npt
 
     Array = npt.NDArray[np.float64]
@@ -169,16 +171,26 @@ def betainc(a: npt.ArrayLike, b: npt.ArrayLike, x: npt.ArrayLike) -> Array:
     >>> round(float(betainc(2.0, 3.0, 0.4)), 12)  # 1 - (1-x)^3 (1 + 3x) ... = 0.5248
     0.5248
     """
-    aa, bb, xx = np.broadcast_arrays(_f(a), _f(b), _f(x))
-    shape = aa.shape
-    aa, bb, xx = aa.ravel(), bb.ravel(), xx.ravel()
-    out = np.full(aa.shape, np.nan)
-    ok = (aa > 0) & (bb > 0) & np.isfinite(aa) & np.isfinite(bb) & (xx >= 0) & (xx <= 1)
-    out[ok & (xx == 0)] = 0.0
-    out[ok & (xx == 1)] = 1.0
-    inner = np.flatnonzero(ok & (xx > 0) & (xx < 1))
-    if inner.size:
-        out[inner] = _betainc_inner(aa[inner], bb[inner], xx[inner])[0]
+    return _on_unit_interval(x, a, b, lambda xx, aa, bb: _betainc_inner(aa, bb, xx)[0])
+
+
+def _on_unit_interval(t: npt.ArrayLike, a: npt.ArrayLike, b: npt.ArrayLike,
+                      inner: Callable[[Array, Array, Array], Array]) -> Array:
+    """Broadcast (t, a, b) and return ``inner(t, a, b)`` where 0 < t < 1 and a, b are valid.
+
+    0 at t = 0, 1 at t = 1 (both I_x(a, b) and its inverse map the ends to themselves); NaN
+    where a or b is not positive and finite or t lies outside [0, 1].
+    """
+    tt, aa, bb = np.broadcast_arrays(_f(t), _f(a), _f(b))
+    shape = tt.shape
+    tt, aa, bb = tt.ravel(), aa.ravel(), bb.ravel()
+    out = np.full(tt.shape, np.nan)
+    ok = (aa > 0) & (bb > 0) & np.isfinite(aa) & np.isfinite(bb) & (tt >= 0) & (tt <= 1)
+    out[ok & (tt == 0)] = 0.0
+    out[ok & (tt == 1)] = 1.0
+    interior = np.flatnonzero(ok & (tt > 0) & (tt < 1))
+    if interior.size:
+        out[interior] = inner(tt[interior], aa[interior], bb[interior])
     return out.reshape(shape)
 
 
@@ -189,6 +201,7 @@ def _betainc_inner(a: Array, b: Array, x: Array) -> tuple[Array, Array]:
 
 
 def _betainc_parts(a: Array, b: Array, x: Array) -> tuple[Array, Array]:
+    """See :func:`_betainc_inner` (without the floating-point error settings)."""
     kernel = _log_kernel(a, b, x)
     front = np.exp(kernel)
     flip = x > (a + 1.0) / (a + b + 2.0)
@@ -244,17 +257,7 @@ def beta_ppf(p: npt.ArrayLike, a: npt.ArrayLike, b: npt.ArrayLike) -> Array:
     >>> round(float(beta_ppf(0.5, 2.0, 2.0)), 12)
     0.5
     """
-    pp, aa, bb = np.broadcast_arrays(_f(p), _f(a), _f(b))
-    shape = pp.shape
-    pp, aa, bb = pp.ravel(), aa.ravel(), bb.ravel()
-    out = np.full(pp.shape, np.nan)
-    ok = (aa > 0) & (bb > 0) & np.isfinite(aa) & np.isfinite(bb) & (pp >= 0) & (pp <= 1)
-    out[ok & (pp == 0)] = 0.0
-    out[ok & (pp == 1)] = 1.0
-    inner = np.flatnonzero(ok & (pp > 0) & (pp < 1))
-    if inner.size:
-        out[inner] = _solve_beta(pp[inner], aa[inner], bb[inner])
-    return out.reshape(shape)
+    return _on_unit_interval(p, a, b, _solve_beta)
 
 
 def _solve_beta(p: Array, a: Array, b: Array) -> Array:
