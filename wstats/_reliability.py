@@ -248,8 +248,14 @@ def evaluate(
     nchs = is_prop & (standard.proportions == "proportion-nchs")
     rse = np.where(is_prop, standard.proportions == "rse", standard.others == "rse")
     filled = n > 0
-    low, high = korn_graubard_ci(est, se, n, df, standard.kg_level)
-    fired = _proportion_rules(est, high - low, effective_n(est, se, n), df, standard)
+    # the interval only for the rows its rules apply to (the beta quantiles cost time)
+    width = np.full(len(est), np.nan)
+    rows = np.flatnonzero(nchs & filled)
+    if rows.size:
+        low, high = korn_graubard_ci(est[rows], se[rows], n[rows], df[rows], standard.kg_level)
+        width[rows] = high - low
+    with np.errstate(invalid="ignore"):
+        fired = _proportion_rules(est, width, effective_n(est, se, n), df, standard)
     out = {rule: fired[rule] & nchs & filled for rule in fired}
     out.update({r: b & rse & filled for r, b in _rse_rules(est, se, n, standard).items()})
     edge = is_prop & ((est == 0) | (est == 1))
