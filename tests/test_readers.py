@@ -185,6 +185,34 @@ def test_parquet_types(tmp_path: Path) -> None:
     assert list(raw.columns["d"].data) == ["p", "q", "p"]
 
 
+def test_parquet_numbers_across_row_groups_with_nulls(tmp_path: Path) -> None:
+    # common practice, no source: numbers come straight from the Arrow buffers; nulls (in
+    # any row group, at any bit offset) become NaN, NaN stays NaN, the arrays are writable
+    path = tmp_path / "groups.parquet"
+    rng = np.random.default_rng(3)
+    ints = [None if k % 7 == 3 else int(k) for k in range(50)]
+    floats = rng.normal(size=50)
+    floats[[5, 17]] = NAN
+    table = pa.table({"i": pa.array(ints, pa.int16()),
+                      "f": pa.array(floats, mask=np.arange(50) % 11 == 4)})
+    pq.write_table(table, path, row_group_size=9)
+    raw = read_raw(path)
+    want_i = np.array([NAN if v is None else v for v in ints])
+    want_f = np.where(np.arange(50) % 11 == 4, NAN, floats)
+    np.testing.assert_array_equal(raw.columns["i"].data, want_i)
+    np.testing.assert_array_equal(raw.columns["f"].data, want_f)
+    assert raw.columns["f"].data.flags.writeable
+    sliced = pa.table({"x": pa.array([1.0, None, 3.0, None, 5.0]).slice(1)})
+    pq.write_table(sliced, tmp_path / "sliced.parquet")
+    np.testing.assert_array_equal(read_raw(tmp_path / "sliced.parquet").columns["x"].data,
+                                  [NAN, 3.0, NAN, 5.0])
+    from wstats._readers._parquet import _float64
+
+    offset = pa.array([1.0, None, 3.0, None, 5.0, 6.0, 7.0, 8.0, 9.0, None, 11.0]).slice(3)
+    np.testing.assert_array_equal(_float64(offset),
+                                  [NAN, 5.0, 6.0, 7.0, 8.0, 9.0, NAN, 11.0])
+
+
 @pytest.mark.parametrize("kind", ALL_KINDS)
 def test_column_subset_in_requested_order(files: dict[str, Path], kind: str) -> None:
     nx, _ny, ns = _names(kind)
