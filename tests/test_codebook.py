@@ -169,11 +169,11 @@ def test_unit_prefixed_conversion_in_tiles_equals_one_pass(monkeypatch: pytest.M
                                                            ) -> None:
     # common practice, no source: the conversion runs on row tiles; tiles of 3 rows (cutting
     # through codes, blanks and bad prefixes) give what one tile over all rows gives
-    from wstats import _decode
+    from wstats import _column
 
     codes = [103, 777, 203, NAN, 503, 888, 303, 102.5, 403, 999, 15, 210] * 3
     whole = decode(table(num("EX", codes)), unit_book("week"))
-    monkeypatch.setattr(_decode, "_TILE", 3)
+    monkeypatch.setattr(_column, "ROW_TILE", 3)
     tiled = decode(table(num("EX", codes)), unit_book("week"))
     np.testing.assert_array_equal(tiled["EX"].values, whole["EX"].values)
     assert reasons_of(tiled, "EX") == reasons_of(whole, "EX")
@@ -358,7 +358,7 @@ def test_derived_bmi_and_reason_precedence() -> None:
 def test_derived_in_tiles_equals_one_pass(monkeypatch: pytest.MonkeyPatch) -> None:
     # common practice, no source: derived variables are evaluated on row tiles; tiles of 2
     # rows give what one pass gives (values, reasons, derived on derived)
-    from wstats import _decode
+    from wstats import _column
 
     raw = table(num("KG", [70, 777, 70, 999, 80, 95, 60]),
                 num("CM", [175, 180, 999, 777, 0, 160, 181]))
@@ -367,7 +367,7 @@ def test_derived_in_tiles_equals_one_pass(monkeypatch: pytest.MonkeyPatch) -> No
                "derived": {"BMI": {"expr": "KG / (CM / 100) ^ 2"},
                            "OBESE": {"expr": "BMI >= 30"}}})
     whole = decode(raw, book)
-    monkeypatch.setattr(_decode, "_TILE", 2)
+    monkeypatch.setattr(_column, "ROW_TILE", 2)
     tiled = decode(raw, book)
     for name in ("BMI", "OBESE"):
         np.testing.assert_array_equal(tiled[name].values, whole[name].values)

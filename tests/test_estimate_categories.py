@@ -179,7 +179,7 @@ def test_proportions_in_row_tiles_equal_one_pass(monkeypatch: pytest.MonkeyPatch
     # common practice, no source: a categorical variable's passes run on row tiles; tiles of
     # 5 rows (cutting through PSUs, domains, missing rows and rows outside `where`) give what
     # one tile over all rows gives, and the levels' proportions add up to 1 in every domain
-    from wstats import _batch, _sums
+    from wstats import _column
 
     rng = np.random.default_rng(8)
     n = 300
@@ -195,8 +195,7 @@ def test_proportions_in_row_tiles_equal_one_pass(monkeypatch: pytest.MonkeyPatch
                         where="x > -1").frame
 
     whole = run()
-    monkeypatch.setattr(_batch, "_ROW_TILE", 5)
-    monkeypatch.setattr(_sums, "_ROW_TILE", 5)
+    monkeypatch.setattr(_column, "ROW_TILE", 5)
     tiled = run()
     for col in ("estimate", "se", "n", "weighted_n", "deff"):
         np.testing.assert_allclose(tiled[col].to_numpy(float), whole[col].to_numpy(float),

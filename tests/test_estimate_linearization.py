@@ -253,10 +253,10 @@ def test_row_sums_and_group_sums_equal_dense_products(tile: int,
                                                       monkeypatch: pytest.MonkeyPatch) -> None:
     # common practice, no source: both row-pass paths (whole, and in row tiles that split
     # buckets) and the group sums against dense matrix products built from their definitions
-    from wstats import _sums
+    from wstats import _column
     from wstats._sums import GroupSum, _RowSums
 
-    monkeypatch.setattr(_sums, "_ROW_TILE", tile)
+    monkeypatch.setattr(_column, "ROW_TILE", tile)
     rng = np.random.default_rng(5)
     n, nb = 500, 7
     w, x = rng.uniform(1, 3, n), rng.normal(size=n)

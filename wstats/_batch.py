@@ -17,6 +17,7 @@ from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
+from wstats._column import row_tiles
 from wstats._intervals import effective_n
 from wstats._reasons import VALID
 from wstats._stats import (
@@ -46,7 +47,6 @@ _Job = tuple["Array", Callable[["Array"], Piece]]
 BATCHED = ("mean", "total", "proportion")
 _TILE = 4_000_000  # pair x column cells of linearized totals held before their variances
 _THREADS = 2  # the machines this is tuned for have 2 cores
-_ROW_TILE = 262_144  # rows per tile of a categorical variable's passes
 
 
 class _Variances:
@@ -198,7 +198,7 @@ def _levels(ctx: Context, col: DecodedColumn) -> tuple[list[Any], list[str], Arr
     lo, hi = span
     size = int(hi - lo) + 1
     seen = np.zeros(size + 1, dtype=bool)  # slot `size`: rows without a valid value
-    for tile in _tiles(len(col.values)):  # loop over row tiles, not rows
+    for tile in row_tiles(len(col.values)):  # loop over row tiles, not rows
         seen[_codes_of(col.values[tile], lo, size)] = True
     observed = np.flatnonzero(seen[:size]) + lo
     values, labels = category_levels(col, observed)
@@ -209,7 +209,7 @@ def _levels(ctx: Context, col: DecodedColumn) -> tuple[list[Any], list[str], Arr
     table = np.full(size + 1, nb * nl, dtype=np.int64)  # not valid: past every bucket
     table[(lv[pos] - lo).astype(np.int64)] = pos  # reversed: the first level wins
     by_key = np.zeros(nb * nl + nl + nb * nl + nl)  # slots past nb*nl: rows to discard
-    for tile in _tiles(len(col.values)):
+    for tile in row_tiles(len(col.values)):
         key = sums.bucket[tile] * nl
         key += table[_codes_of(col.values[tile], lo, size)]
         by_key += np.bincount(key, weights=ctx.design.weights[tile], minlength=len(by_key))
@@ -234,18 +234,13 @@ def _whole_span(col: DecodedColumn) -> tuple[float, float] | None:
     lo, hi = float(np.fmin.reduce(col.values)), float(np.fmax.reduce(col.values))
     if not (np.isfinite(lo) and np.isfinite(hi)) or hi - lo > _SPAN:
         return None
-    for tile in _tiles(len(col.values)):  # loop over row tiles, not rows
+    for tile in row_tiles(len(col.values)):  # loop over row tiles, not rows
         v = col.values[tile]
         blank = np.isnan(v)
         if not bool(np.all((v == np.floor(v)) | blank)) or bool(
                 np.any(blank & (col.reasons[tile] == VALID))):
             return None
     return lo, hi
-
-
-def _tiles(n: int) -> list[slice]:
-    """Return slices of :data:`_ROW_TILE` rows covering 0..n."""
-    return [slice(b, min(b + _ROW_TILE, n)) for b in range(0, n, _ROW_TILE)]
 
 
 def _proportion(ctx: Context, name: str, ci: str) -> _Job:

@@ -20,9 +20,18 @@ from wstats.errors import ColumnError, did_you_mean
 if TYPE_CHECKING:
     import pandas as pd
 
-__all__ = ["KINDS", "Dataset", "DecodedColumn"]
+__all__ = ["KINDS", "ROW_TILE", "Dataset", "DecodedColumn", "row_tiles"]
 
 KINDS = ("continuous", "count", "categorical", "binary", "text")
+
+#: rows per tile of a pass over columns (2 MiB per float64 temporary): passes that go tile by
+#: tile keep their temporaries this size whatever the file's length
+ROW_TILE = 262_144
+
+
+def row_tiles(n: int) -> list[slice]:
+    """Return slices of :data:`ROW_TILE` rows covering rows 0..n-1, in order."""
+    return [slice(b, min(b + ROW_TILE, n)) for b in range(0, n, ROW_TILE)]
 
 
 @dataclass(frozen=True, eq=False)

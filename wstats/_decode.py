@@ -22,7 +22,7 @@ from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
-from wstats._column import Dataset, DecodedColumn
+from wstats._column import Dataset, DecodedColumn, row_tiles
 from wstats._reasons import INVALID, VALID, Reasons
 from wstats.errors import CodebookError, ExpressionError, did_you_mean
 
@@ -192,8 +192,7 @@ class _Work:
         per_year[0] = np.nan  # below base: no unit digit
         to = spec.factors[spec.to]
         values = self.writable()  # (a copy of x when x is not ours; x keeps the codes)
-        for begin in range(0, len(self.x), _TILE):  # loop over row tiles, not rows
-            tile = slice(begin, begin + _TILE)
+        for tile in row_tiles(len(self.x)):  # loop over row tiles, not rows
             x = self.x[tile]
             target = ~self.ruled[tile] & np.isfinite(x)
             with np.errstate(invalid="ignore"):
@@ -220,7 +219,6 @@ class _Work:
             self.writable()[out] = np.nan
 
 
-_TILE = 65_536  # rows per tile of the unit-prefix conversion and of derived variables
 _THREADS = 2  # columns decoded at once
 
 
@@ -424,13 +422,13 @@ def _evaluate_in_tiles(expr: Expression, cols: dict[str, DecodedColumn], vocab: 
 
     The intermediate arrays of the expression are then the size of a tile, not of the file.
     """
-    if n_rows <= _TILE or not expr.inputs:
+    tiles = row_tiles(n_rows)
+    if len(tiles) <= 1 or not expr.inputs:
         return expr.evaluate(cols, vocab, n_rows)
     values, reasons = np.empty(n_rows), np.empty(n_rows, dtype=np.int8)
-    for begin in range(0, n_rows, _TILE):  # loop over row tiles, not rows
-        tile = slice(begin, min(begin + _TILE, n_rows))
-        part = {name: replace(cols[name], values=cols[name].values[tile],
-                              reasons=cols[name].reasons[tile], raw=None)
+    for tile in tiles:  # loop over row tiles, not rows
+        part = {name: replace(cols[name], values=cols[name].values[tile],  # checked already
+                              reasons=cols[name].reasons[tile], raw=None, check=False)
                 for name in expr.inputs}
         values[tile], reasons[tile] = expr.evaluate(part, vocab, tile.stop - tile.start)
     return values, reasons

@@ -24,6 +24,7 @@ from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
+from wstats._column import row_tiles
 from wstats._reasons import VALID
 from wstats._replicates import (
     jackknife_strata_factors,
@@ -447,7 +448,7 @@ def _unique_inverse(values: npt.NDArray[Any]) -> tuple[npt.NDArray[Any], Index]:
         lo, hi = values.min(), values.max()
         if np.isfinite(lo) and np.isfinite(hi) and float(hi) - float(lo) <= 8 * len(values):
             seen = np.zeros(int(float(hi) - float(lo)) + 1, dtype=bool)
-            tiles = [slice(b, b + _TILE) for b in range(0, len(values), _TILE)]
+            tiles = row_tiles(len(values))
             whole = True
             for tile in tiles:  # loop over row tiles, not rows
                 shifted = values[tile] - lo
@@ -464,9 +465,6 @@ def _unique_inverse(values: npt.NDArray[Any]) -> tuple[npt.NDArray[Any], Index]:
                 return (np.flatnonzero(seen) + lo).astype(values.dtype), inverse
     uniq, inverse = np.unique(values, return_inverse=True)
     return uniq, inverse.astype(np.int64).ravel()
-
-
-_TILE = 65_536  # rows per tile when coding strata and PSUs
 
 
 def _psu_index(stratum: Index, psu: Index | None) -> tuple[Index, Index]:

@@ -23,6 +23,8 @@ from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
+from wstats._column import row_tiles
+
 if TYPE_CHECKING:
     import numpy.typing as npt
     from scipy import sparse
@@ -38,7 +40,6 @@ if TYPE_CHECKING:
 __all__ = ["Domains", "GroupSum", "WeightedSums", "domain_quantiles", "no_cell"]
 
 _TOL = 1e-10  # relative tolerance when comparing cumulative weight shares with p
-_ROW_TILE = 262_144  # rows per tile of a weighted pass (2 MiB per float64 temporary)
 
 
 @dataclass(frozen=True, eq=False)
@@ -183,9 +184,9 @@ class WeightedSums:
         nb = self.n_buckets
         cnt = np.zeros((nb + 1) * n_reasons, dtype=np.int64)
         w2 = np.zeros(nb + 1)
-        for begin in range(0, len(reasons), _ROW_TILE):  # row tiles: bounded temporaries
-            tile = slice(begin, begin + _ROW_TILE)
-            rows = np.flatnonzero(reasons[tile] if valid is None else ~valid[tile]) + begin
+        for tile in row_tiles(len(reasons)):  # row tiles: bounded temporaries
+            rows = (np.flatnonzero(reasons[tile] if valid is None else ~valid[tile])
+                    + tile.start)
             b = self.bucket[rows]
             key = b * n_reasons + reasons[rows].astype(np.int64)
             cnt += np.bincount(key, minlength=len(cnt))
@@ -333,16 +334,16 @@ class _RowSums:
     def weighted_parts(self, parts: Parts, width: int) -> Array:
         """Return sums of w * v by bucket for the *width* columns v that *parts* makes.
 
-        Rows are taken in tiles of :data:`_ROW_TILE`: ``parts(rows)`` gets a tile's rows (a
-        slice or row numbers into the full columns) and returns its value columns, so the
-        temporaries stay the size of a tile whatever the file's length.
+        Rows are taken in tiles (:func:`wstats._column.row_tiles`): ``parts(rows)`` gets a
+        tile's rows (a slice or row numbers into the full columns) and returns its value
+        columns, so the temporaries stay the size of a tile whatever the file's length.
         """
         out = np.zeros((self.n_buckets, width))
         if self.n_buckets == 0:  # no row inside the population domain
             return out
         n = len(self.bucket)
-        for begin in range(0, n, _ROW_TILE):  # loop over row tiles, not rows
-            end = min(begin + _ROW_TILE, n)
+        for tile in row_tiles(n):  # loop over row tiles, not rows
+            begin, end = tile.start, tile.stop
             rows = slice(begin, end) if self.rows is None else self.rows[begin:end]
             w = self.weights[begin:end]
             bucket = self.bucket[begin:end]
