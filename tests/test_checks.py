@@ -42,6 +42,18 @@ def test_weight_spread_uses_kish_deff() -> None:
     assert len(msgs) == 1 and "8.42" in msgs[0] and f"{KISH_DEFF_THRESHOLD:g}" in msgs[0]
 
 
+def test_weight_spread_in_row_tiles_skips_zero_weights(monkeypatch: pytest.MonkeyPatch) -> None:
+    # Kish (1992) deff_w over the positive weights, summed tile by tile: the 9 ones and 100 of
+    # the test above with zeros between them give the same 8.42 with tiles of 3 rows
+    from wstats import _column
+
+    monkeypatch.setattr(_column, "ROW_TILE", 3)
+    w = np.array([1.0, 0.0] * 9 + [0.0, 100.0])
+    msgs = check_weight_spread(w, "w")
+    assert len(msgs) == 1 and "8.42" in msgs[0]
+    assert check_weight_spread(np.array([0.0, 5.0, 0.0]), "w") == []  # one positive weight
+
+
 def test_small_groups_are_named() -> None:
     counts = np.array([MIN_GROUP_SIZE, MIN_GROUP_SIZE - 1])
     msgs = check_group_sizes(["a", "b"], counts)

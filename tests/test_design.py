@@ -41,6 +41,59 @@ def test_psu_ids_are_nested_within_strata() -> None:
     assert b.df == 2.0  # PSUs - strata, NCHS variance estimation tutorial
 
 
+@pytest.mark.parametrize("tile", [262_144, 7, 1])
+def test_psu_index_equals_pairs_numbered_in_sorted_order(tile: int,
+                                                        monkeypatch: pytest.MonkeyPatch) -> None:
+    # common practice, no source: the PSU index is the rank of the (stratum, PSU) pair among
+    # the distinct pairs, built in place and in row tiles; checked against numpy.unique on
+    # the pairs, for whole-number and text codes, with and without strata
+    from wstats import _column
+
+    monkeypatch.setattr(_column, "ROW_TILE", tile)
+    rng = np.random.default_rng(11)
+    st = rng.integers(1, 6, 300).astype(float)
+    cl = rng.integers(1, 9, 300).astype(float) * 10
+    for strata, psu in ((st, cl), (st, cl.astype(str)), (None, cl), (st * 1e9, cl + 0.5)):
+        cols: dict[str, object] = {"w": np.ones(300), "cl": psu}
+        if strata is not None:
+            cols["st"] = strata
+        b = Design("w", strata=None if strata is None else "st", psu="cl").bind(_data(**cols))
+        pairs = np.column_stack([np.zeros(300) if strata is None else strata,
+                                 np.unique(psu, return_inverse=True)[1]])
+        _, want = np.unique(pairs, axis=0, return_inverse=True)
+        assert b.psu.dtype == np.int32  # half the memory of int64 row indexes
+        assert b.psu.tolist() == want.ravel().tolist()
+        first = np.unique(want.ravel(), return_index=True)[1]
+        st_code = np.unique(pairs[:, 0], return_inverse=True)[1].ravel()
+        assert b.psu_stratum.tolist() == st_code[first].tolist()
+
+
+def test_psu_index_widens_the_key_when_int32_cannot_hold_it() -> None:
+    # common practice, no source: stratum code x PSU span beyond 2**31 needs an int64 key
+    from wstats._design import _psu_index
+
+    stratum = np.array([70_000, 0, 70_000, 3], dtype=np.int32)
+    psu = np.array([40_000, 40_000, 2, 0], dtype=np.int32)
+    index, psu_stratum = _psu_index(stratum, psu.copy())
+    assert index.tolist() == [3, 0, 2, 1]  # pairs (0,40000) (3,0) (70000,2) (70000,40000)
+    assert psu_stratum.tolist() == [0, 3, 70_000, 70_000]
+
+
+def test_unique_inverse_in_place_reuses_the_codes_memory() -> None:
+    # common practice, no source: positions among the sorted distinct values, as numpy.unique
+    from wstats._design import _unique_inverse
+
+    v = np.array([7, 3, 7, 9, 3], dtype=np.int32)
+    uniq, inv = _unique_inverse(v, in_place=True)
+    assert uniq.tolist() == [3, 7, 9]
+    assert inv.tolist() == [1, 0, 1, 2, 0]
+    assert inv is v  # written over the codes: no second column
+    w = np.array([7.0, 3.0, 7.5])
+    uniq, inv = _unique_inverse(w, in_place=True)  # not whole numbers: a sort, a new array
+    assert (uniq.tolist(), inv.tolist(), w.tolist()) == ([3.0, 7.0, 7.5], [1, 0, 2],
+                                                          [7.0, 3.0, 7.5])
+
+
 def test_no_strata_no_psu_means_one_stratum_of_unit_psus() -> None:
     b = Design("w").bind(_basic())
     assert (b.n_strata, b.n_psu, b.df) == (1, 6, 5.0)

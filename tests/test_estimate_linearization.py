@@ -279,6 +279,59 @@ def test_row_sums_and_group_sums_equal_dense_products(tile: int,
     assert np.allclose(g @ block[:, 0], m @ block[:, 0], rtol=1e-13)
 
 
+@pytest.mark.parametrize("tile", [262_144, 13, 1])
+def test_buckets_are_ranks_of_occupied_psu_cell_keys(tile: int,
+                                                     monkeypatch: pytest.MonkeyPatch) -> None:
+    # common practice, no source: a row's bucket is the rank of its (PSU, cell) key among the
+    # keys of rows inside the population domain; rows outside get one past the last bucket
+    from wstats import _column
+    from wstats._sums import _buckets, no_cell
+
+    monkeypatch.setattr(_column, "ROW_TILE", tile)
+    rng = np.random.default_rng(8)
+    n, n_psu = 400, 9
+    psu = rng.integers(0, n_psu, n).astype(np.int32)
+    for cell, n_cells in ((rng.integers(-1, 4, n), 4), (no_cell(n), 0)):
+        nd = n_cells + 1
+        for inside in (rng.random(n) < 0.8, np.ones(n, bool)):
+            keys, bucket = _buckets(psu, cell, inside, nd, n_psu)
+            key = psu.astype(np.int64) * nd + cell + 1
+            want_keys = np.unique(key[inside])
+            want = np.where(inside, np.searchsorted(want_keys, key), len(want_keys))
+            assert keys.tolist() == want_keys.tolist()
+            assert bucket.tolist() == want.tolist()
+            shared = nd == 1 and inside.all()
+            assert np.shares_memory(bucket, psu) == shared  # no by, all inside: the PSU index
+
+
+@pytest.mark.parametrize("tile", [262_144, 37, 1])
+def test_order_check_sees_a_step_down_at_a_tile_boundary(tile: int,
+                                                         monkeypatch: pytest.MonkeyPatch) -> None:
+    # common practice, no source: the segment-sum path needs rows in bucket order; the check
+    # runs in tiles that overlap by a row, so a step down between two tiles is not missed
+    from wstats import _column
+    from wstats._sums import _ascending
+
+    monkeypatch.setattr(_column, "ROW_TILE", tile)
+    a = np.repeat(np.arange(10, dtype=np.int32), 10)
+    assert _ascending(a)
+    for at in (1, 36, 37, 38, 99):
+        b = a.copy()
+        b[at] = b[at - 1] - 1
+        assert not _ascending(b)
+    assert _ascending(a[:0]) and _ascending(a[:1])
+
+
+def test_bucket_keys_do_not_overflow_int32_psu_codes() -> None:
+    # common practice, no source: PSU x domain keys past 2**31 are computed in int64
+    from wstats._sums import _buckets
+
+    psu = np.array([2**30, 5], dtype=np.int32)
+    keys, bucket = _buckets(psu, np.array([2, -1]), np.ones(2, bool), 4, 2**30 + 1)
+    assert keys.tolist() == [5 * 4, 2**30 * 4 + 3]
+    assert bucket.tolist() == [1, 0]
+
+
 def test_domain_keeps_full_design_unlike_subsetting() -> None:
     # REFERENCES 2 (NCHS tutorial; Graubard & Korn 1996): u = 0 outside the domain, all PSUs
     # kept. Subsetting drops PSUs without domain members and gives a different (smaller) SE.

@@ -190,7 +190,7 @@ def _levels(ctx: Context, col: DecodedColumn) -> tuple[list[Any], list[str], Arr
         valid = col.reasons == VALID
         values, labels = category_levels(col)
         index = level_index(col, values, valid)
-        key = sums.bucket * len(values) + index
+        key = sums.bucket.astype(np.int64) * len(values) + index
         key[index < 0] = nb * len(values)  # not valid / no level: the discard slot
         nl = len(values)
         out = np.bincount(key, weights=ctx.design.weights, minlength=nb * nl + 1)[: nb * nl]
@@ -210,7 +210,7 @@ def _levels(ctx: Context, col: DecodedColumn) -> tuple[list[Any], list[str], Arr
     table[(lv[pos] - lo).astype(np.int64)] = pos  # reversed: the first level wins
     by_key = np.zeros(nb * nl + nl + nb * nl + nl)  # slots past nb*nl: rows to discard
     for tile in row_tiles(len(col.values)):
-        key = sums.bucket[tile] * nl
+        key = sums.bucket[tile].astype(np.int64) * nl
         key += table[_codes_of(col.values[tile], lo, size)]
         by_key += np.bincount(key, weights=ctx.design.weights[tile], minlength=len(by_key))
     return values, labels, by_key[: nb * nl].reshape(nb, nl)

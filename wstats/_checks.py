@@ -14,6 +14,7 @@ from typing import TYPE_CHECKING
 
 import numpy as np
 
+from wstats._column import row_tiles
 from wstats.errors import WstatsWarning
 
 if TYPE_CHECKING:
@@ -65,11 +66,18 @@ def check_presubset(
 
 
 def check_weight_spread(weights: np.ndarray, name: str) -> list[str]:
-    """Return a warning when Kish's weighting design effect exceeds the threshold."""
-    w = weights[weights > 0]
-    if len(w) < 2:
+    """Return a warning when Kish's weighting design effect exceeds the threshold.
+
+    Over the positive weights, in row tiles (no copy of the weight column).
+    """
+    n, total, squares = 0, 0.0, 0.0
+    for tile in row_tiles(len(weights)):  # loop over row tiles, not rows
+        w = weights[tile]
+        w = w[w > 0]
+        n, total, squares = n + len(w), total + float(w.sum()), squares + float(w @ w)
+    if n < 2:
         return []
-    deff = len(w) * float(np.sum(w * w)) / float(np.sum(w)) ** 2
+    deff = n * squares / total**2
     if deff > KISH_DEFF_THRESHOLD:
         return [
             f"weight {name}: Kish weighting design effect {deff:.2f} exceeds "
@@ -110,9 +118,9 @@ def check_special_codes(columns: Mapping[str, DecodedColumn], skip: Iterable[str
     for name, col in columns.items():
         if name in described or col.kind not in ("continuous", "count"):
             continue
+        if not len(col.values) or float(np.fmax.reduce(col.values)) not in CANDIDATES:
+            continue  # the largest valid value (NaN where not valid) is no candidate code
         v = col.values[col.valid]
-        if not len(v) or float(np.max(v)) not in CANDIDATES:
-            continue
         found = _at_the_top(v, suspected_codes(v), CANDIDATES)
         if found:
             codes = ", ".join(f"{c:g} ({k} rows)" for c, k in found)

@@ -20,7 +20,7 @@ from wstats.errors import ColumnError, did_you_mean
 if TYPE_CHECKING:
     import pandas as pd
 
-__all__ = ["KINDS", "ROW_TILE", "Dataset", "DecodedColumn", "row_tiles"]
+__all__ = ["KINDS", "ROW_TILE", "Dataset", "DecodedColumn", "code_type", "row_tiles"]
 
 KINDS = ("continuous", "count", "categorical", "binary", "text")
 
@@ -32,6 +32,15 @@ ROW_TILE = 262_144
 def row_tiles(n: int) -> list[slice]:
     """Return slices of :data:`ROW_TILE` rows covering rows 0..n-1, in order."""
     return [slice(b, min(b + ROW_TILE, n)) for b in range(0, n, ROW_TILE)]
+
+
+def code_type(n_codes: int) -> type[np.signedinteger[Any]]:
+    """Return the integer type for per-row codes 0..n_codes-1: int32 when it holds them.
+
+    Per-row codes (PSU index, bucket) are as long as the file; int32 halves them. Arithmetic
+    on them that can pass 2**31 (keys crossing codes) casts to int64 first.
+    """
+    return np.int32 if n_codes <= np.iinfo(np.int32).max else np.int64
 
 
 @dataclass(frozen=True, eq=False)

@@ -18,13 +18,13 @@ Conventions (each changes numbers):
 
 from __future__ import annotations
 
-from collections.abc import Sequence
+from collections.abc import Callable, Sequence
 from dataclasses import dataclass, field
 from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
-from wstats._column import row_tiles
+from wstats._column import code_type, row_tiles
 from wstats._reasons import VALID
 from wstats._replicates import (
     jackknife_strata_factors,
@@ -41,6 +41,8 @@ if TYPE_CHECKING:
 
     Array = npt.NDArray[np.float64]
     Index = npt.NDArray[np.int64]
+    #: per-row codes (strata, PSUs): int32 unless there are 2**31 or more distinct values
+    Codes = npt.NDArray[np.signedinteger[Any]]
 
 __all__ = ["REPLICATE_METHODS", "SINGLETON_TREATMENTS", "BoundDesign", "Design"]
 
@@ -192,7 +194,8 @@ class BoundDesign:
     design : the declared :class:`Design`.
     rows : indices of the data rows used (None = all rows; set when rows were dropped).
     weights : float64 full-sample weights of the rows used.
-    psu : global PSU index 0..P-1 of each row; PSUs are numbered stratum by stratum.
+    psu : global PSU index 0..P-1 of each row (int32 below 2**31 PSUs); PSUs are numbered
+        stratum by stratum.
     psu_stratum : variance stratum 0..H-1 of each PSU (after any collapsing).
     n_h : number of PSUs per variance stratum.
     f_h : first-stage sampling fraction per variance stratum (0 without FPC).
@@ -209,7 +212,7 @@ class BoundDesign:
     design: Design
     rows: Index | None
     weights: Array
-    psu: Index
+    psu: Codes
     psu_stratum: Index
     n_h: Index
     f_h: Array
@@ -296,11 +299,11 @@ def _bind(design: Design, data: Dataset) -> BoundDesign:
     src = data.source or "the data"
     cols = _design_columns(design, data, src)
     keep = _complete_rows(design, cols, data.n_rows)
-    rows = None if keep.all() else np.flatnonzero(keep)
+    rows = None if keep is None else np.flatnonzero(keep)
     w = _check_weights(_take(cols["weight"].values, rows), design.weight, rows)
     stratum, labels = _codes(cols.get("strata"), rows, len(w))
-    psu_codes, _ = _codes(cols.get("psu"), rows, len(w))
-    psu, psu_stratum = _psu_index(stratum, psu_codes if design.psu else None)
+    psu_codes = _codes(cols["psu"], rows, len(w))[0] if design.psu else None
+    psu, psu_stratum = _psu_index(stratum, psu_codes)
     n_h = np.bincount(psu_stratum, minlength=len(labels)).astype(np.int64)
     f_h = _fpc(cols.get("fpc"), design.fpc, rows, stratum, n_h, labels)
     singles = int((n_h == 1).sum())
@@ -323,7 +326,8 @@ def _bind(design: Design, data: Dataset) -> BoundDesign:
         replicate_weights=None if reps is None else reps[0],
         replicate_columns=() if reps is None else reps[1],
         scale=1.0 if reps is None else reps[2], factors=None if reps is None else reps[3],
-        df=df, dropped_rows=int((~keep).sum()), zero_weights=int((w == 0).sum()),
+        df=df, dropped_rows=0 if rows is None else data.n_rows - len(rows),
+        zero_weights=_count(w, lambda part: part == 0),
     )
 
 
@@ -368,25 +372,45 @@ def _design_columns(design: Design, data: Dataset, src: str) -> dict[str, Decode
     return out
 
 
-def _complete_rows(design: Design, cols: dict[str, DecodedColumn], n: int) -> npt.NDArray[Any]:
-    """Return the mask of rows with every design value present; raise unless dropping."""
-    keep = np.ones(n, dtype=bool)
+def _count(a: npt.NDArray[Any], test: Callable[[npt.NDArray[Any]], npt.NDArray[np.bool_]]
+           ) -> int:
+    """Return how many elements of *a* pass *test*, in row tiles (no mask the size of *a*)."""
+    return sum(int(np.count_nonzero(test(a[tile]))) for tile in row_tiles(len(a)))
+
+
+def _missing(col: DecodedColumn, rows: slice) -> npt.NDArray[np.bool_]:
+    """Return the mask of *rows* of *col* without a value (a reason, or NaN)."""
+    bad: npt.NDArray[np.bool_] = col.reasons[rows] != VALID
+    if col.values.dtype.kind == "f":
+        bad |= np.isnan(col.values[rows])
+    return bad
+
+
+def _complete_rows(design: Design, cols: dict[str, DecodedColumn], n: int
+                   ) -> npt.NDArray[np.bool_] | None:
+    """Return the mask of rows with every design value present (None: every row has them).
+
+    Raise unless dropping. Columns are checked in row tiles; a mask the size of the file is
+    built only when rows are missing.
+    """
+    keep: npt.NDArray[np.bool_] | None = None
+    everything = slice(None)
     for role, col in cols.items():
-        bad = col.reasons != VALID
-        if col.values.dtype.kind == "f":
-            bad |= np.isnan(col.values)
-        count = int(bad.sum())
-        if count and role == "weight":
+        count = sum(int(np.count_nonzero(_missing(col, tile))) for tile in row_tiles(n))
+        if not count:
+            continue
+        bad = _missing(col, everything)
+        if role == "weight":
             _weight_not_finite(col, bad)
-        if count and not design.drop_incomplete:
+        if not design.drop_incomplete:
             error = WeightError if role == "weight" else DesignError
             raise error(
                 f"{role} column '{col.name}' is missing in {count} rows (first: row "
                 f"{int(np.argmax(bad)) + 1}); fix the data or drop such rows "
                 "(--drop-incomplete, drop_incomplete=True)"
             )
-        keep &= ~bad
-    if not keep.any():
+        keep = ~bad if keep is None else keep & ~bad
+    if keep is not None and not keep.any():
         raise DesignError("no row has a complete weight/stratum/PSU; check the design columns")
     return keep
 
@@ -407,13 +431,16 @@ def _weight_not_finite(col: DecodedColumn, bad: npt.NDArray[np.bool_]) -> None:
 def _check_weights(w: npt.NDArray[Any], name: str, rows: Index | None) -> Array:
     """Return weights as float64 after checking they are finite, >= 0 and not all zero."""
     w = np.asarray(w, dtype=np.float64)
-    for bad, what in ((~np.isfinite(w), "infinite"), (w < 0, "negative")):
-        if bad.any():
+    tests: list[tuple[Callable[[Array], npt.NDArray[np.bool_]], str]] = [
+        (lambda part: ~np.isfinite(part), "infinite"), (lambda part: part < 0, "negative")]
+    for test, what in tests:
+        count = _count(w, test)
+        if count:
             raise WeightError(
-                f"weight column '{name}' has {int(bad.sum())} {what} values (first: row "
-                f"{_row_no(rows, int(np.argmax(bad)))}); weights must be finite and >= 0"
+                f"weight column '{name}' has {count} {what} values (first: row "
+                f"{_row_no(rows, int(np.argmax(test(w))))}); weights must be finite and >= 0"
             )
-    if not (w > 0).any():
+    if not _count(w, lambda part: part > 0):
         raise WeightError(f"weight column '{name}' is 0 in every row; name the analysis weight")
     return w
 
@@ -427,10 +454,13 @@ def _label(col: DecodedColumn, value: Any) -> str:
     return str(value)
 
 
-def _codes(col: DecodedColumn | None, rows: Index | None, n: int) -> tuple[Index, list[str]]:
-    """Return codes 0..K-1 in sorted value order and the labels of the K values."""
+def _codes(col: DecodedColumn | None, rows: Index | None, n: int) -> tuple[Codes, list[str]]:
+    """Return codes 0..K-1 in sorted value order and the labels of the K values.
+
+    Without a column every row has code 0: a read-only view of one value, no memory per row.
+    """
     if col is None:
-        return np.zeros(n, dtype=np.int64), ["all"]
+        return np.broadcast_to(np.int32(0), (n,)), ["all"]
     values = _take(col.values, rows)
     if values.dtype.kind not in "fiub":
         values = values.astype(str)
@@ -438,11 +468,14 @@ def _codes(col: DecodedColumn | None, rows: Index | None, n: int) -> tuple[Index
     return inverse, [_label(col, v) for v in uniq.tolist()]
 
 
-def _unique_inverse(values: npt.NDArray[Any]) -> tuple[npt.NDArray[Any], Index]:
+def _unique_inverse(values: npt.NDArray[Any], *, in_place: bool = False
+                    ) -> tuple[npt.NDArray[Any], Codes]:
     """Return the sorted distinct values and each value's position among them.
 
-    Whole numbers of a small span (strata, PSU numbers) take a lookup table instead of a
-    sort, in row tiles (temporaries the size of a tile).
+    Positions are int32 unless there are 2**31 or more distinct values. Whole numbers of a
+    small span (strata, PSU numbers) take a lookup table instead of a sort, in row tiles
+    (temporaries the size of a tile). ``in_place=True`` writes the positions over *values*
+    on that path when *values* has the positions' integer type, and returns it.
     """
     if values.dtype.kind in "fiu" and len(values):
         lo, hi = values.min(), values.max()
@@ -458,28 +491,41 @@ def _unique_inverse(values: npt.NDArray[Any]) -> tuple[npt.NDArray[Any], Index]:
                     break
                 seen[codes] = True
             if whole:
-                position = np.cumsum(seen) - 1
-                inverse = np.empty(len(values), dtype=np.int64)
+                kept = np.flatnonzero(seen)
+                kind = code_type(len(kept))
+                position = (np.cumsum(seen) - 1).astype(kind)
+                uniq = (kept + lo).astype(values.dtype)
+                own = in_place and values.dtype == kind
+                inverse = values if own else np.empty(len(values), dtype=kind)
                 for tile in tiles:
                     inverse[tile] = position[(values[tile] - lo).astype(np.int64)]
-                return (np.flatnonzero(seen) + lo).astype(values.dtype), inverse
+                return uniq, inverse
     uniq, inverse = np.unique(values, return_inverse=True)
-    return uniq, inverse.astype(np.int64).ravel()
+    return uniq, inverse.astype(code_type(len(uniq))).ravel()
 
 
-def _psu_index(stratum: Index, psu: Index | None) -> tuple[Index, Index]:
-    """Return the global PSU index of each row (nested in strata) and the stratum per PSU."""
+def _psu_index(stratum: Codes, psu: Codes | None) -> tuple[Codes, Index]:
+    """Return the global PSU index of each row (nested in strata) and the stratum per PSU.
+
+    *psu* (codes 0..K-1, owned by the caller) is overwritten: the (stratum, PSU) key and
+    then the index are built in its memory, tile by tile, so binding holds no extra column.
+    """
     if psu is None:
         order = np.argsort(stratum, kind="stable")
-        index = np.empty(len(stratum), dtype=np.int64)
+        index = np.empty(len(stratum), dtype=code_type(len(stratum)))
         index[order] = np.arange(len(stratum))
-        return index, stratum[order]
-    key = stratum * (int(psu.max(initial=0)) + 1) + psu
-    uniq, inverse = _unique_inverse(key)
-    return inverse, (uniq // (int(psu.max(initial=0)) + 1)).astype(np.int64)
+        return index, stratum[order].astype(np.int64)
+    span = int(psu.max(initial=0)) + 1
+    if (int(stratum.max(initial=0)) + 1) * span > np.iinfo(psu.dtype).max:
+        psu = psu.astype(np.int64)  # the (stratum, PSU) key needs the wider type
+    for tile in row_tiles(len(psu)):  # key = stratum * span + psu, in place
+        part = psu[tile]
+        part += stratum[tile].astype(psu.dtype) * span
+    uniq, inverse = _unique_inverse(psu, in_place=True)
+    return inverse, (uniq // span).astype(np.int64)
 
 
-def _fpc(col: DecodedColumn | None, name: str | None, rows: Index | None, stratum: Index,
+def _fpc(col: DecodedColumn | None, name: str | None, rows: Index | None, stratum: Codes,
          n_h: Index, labels: list[str]) -> Array:
     """Return the first-stage sampling fraction per stratum from the FPC column."""
     if col is None:
@@ -542,7 +588,7 @@ def _collapse_groups(single: npt.NDArray[np.bool_]) -> Index:
     return group.astype(np.int64)
 
 
-def _replicates(design: Design, data: Dataset, rows: Index | None, w: Array, stratum: Index,
+def _replicates(design: Design, data: Dataset, rows: Index | None, w: Array, stratum: Codes,
                 n_h: Index, src: str) -> tuple[Array, tuple[str, ...], float, Array] | None:
     """Return (matrix, columns, scale, factors) of a replicate design, or None."""
     if design.replicates is None:
@@ -567,7 +613,7 @@ def _replicates(design: Design, data: Dataset, rows: Index | None, w: Array, str
     return rep, tuple(names), scale, factors
 
 
-def _replicate_factors(design: Design, rep: Array, w: Array, stratum: Index,
+def _replicate_factors(design: Design, rep: Array, w: Array, stratum: Codes,
                        n_h: Index) -> Array:
     """Return the per-replicate factors: given, derived (jackknife-strata) or ones."""
     n_rep = rep.shape[1]

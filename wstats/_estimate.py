@@ -41,6 +41,7 @@ if TYPE_CHECKING:
     from wstats._results import EstimateTable
 
     Index = npt.NDArray[np.int64]
+    Bool = npt.NDArray[np.bool_]
 
 __all__ = ["estimate"]
 
@@ -220,7 +221,7 @@ def _one(ctx: Context, name: str, stat: str, ci: str) -> Piece:
 def _domains(data: Dataset, bound: BoundDesign, by: list[str], where: str | None
              ) -> tuple[Domains, list[tuple[list[Any], list[Any]]]]:
     """Return the domain membership and, per by-variable, its (values, display values)."""
-    inside = np.ones(bound.n_rows, dtype=bool)
+    inside: Bool = np.broadcast_to(np.True_, (bound.n_rows,))  # read-only, no memory per row
     if where is not None:
         from wstats._expr import parse_expression
 

@@ -29,7 +29,7 @@ from __future__ import annotations
 
 import fnmatch
 from collections.abc import Sequence
-from typing import TYPE_CHECKING
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
@@ -109,7 +109,8 @@ def replicate_df(method: str, n_rep: int, design_df: float | None) -> float:
 
 
 def jackknife_strata_factors(
-    rep: Array, weights: Array, row_stratum: npt.NDArray[np.int64], n_h: npt.NDArray[np.int64]
+    rep: Array, weights: Array, row_stratum: npt.NDArray[np.signedinteger[Any]],
+    n_h: npt.NDArray[np.int64],
 ) -> Array:
     """Return (n_h - 1)/n_h per replicate, n_h of the stratum whose PSU the replicate drops.
 

@@ -23,7 +23,7 @@ from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
-from wstats._column import row_tiles
+from wstats._column import code_type, row_tiles
 
 if TYPE_CHECKING:
     import numpy.typing as npt
@@ -33,9 +33,12 @@ if TYPE_CHECKING:
 
     Array = npt.NDArray[np.float64]
     Index = npt.NDArray[np.int64]
+    #: per-row codes (PSU index, bucket): int32 unless 2**31 or more distinct values
+    Codes = npt.NDArray[np.signedinteger[Any]]
     Bool = npt.NDArray[np.bool_]
-    #: makes the value columns of a tile of rows (a slice or row numbers)
-    Parts = Callable[[slice | Index], Sequence[npt.NDArray[Any]]]
+    #: makes the value columns of a tile of rows (a slice or row numbers); a number stands
+    #: for a constant column
+    Parts = Callable[[slice | Index], Sequence[npt.NDArray[Any] | float]]
 
 __all__ = ["Domains", "GroupSum", "WeightedSums", "domain_quantiles", "no_cell"]
 
@@ -97,8 +100,8 @@ class WeightedSums:
         self.design = design
         self.domains = domains
         self.n_domains = nd
-        key = design.psu * nd + (domains.cell + 1)  # cell -1 (no cell) -> slot 0
-        bucket_key, self.bucket = _compact(key, domains.inside, design.n_psu * nd)
+        bucket_key, self.bucket = _buckets(design.psu, domains.cell, domains.inside, nd,
+                                             design.n_psu)
         #: number of occupied buckets; ``bucket`` holds each row's (n_buckets: outside)
         nb = self.n_buckets = len(bucket_key)
         self._rows = _RowSums(self.bucket, design.weights, nb, n)
@@ -153,25 +156,37 @@ class WeightedSums:
     @cached_property
     def _all_weight(self) -> Array:
         """Pair sums of the weights (x = 1), reused for variables valid in every row."""
-        return self.pair_sums(np.ones(self.n_rows))
+        return self.to_pairs(self.bucket_sums_of(lambda rows: [1.0], 1))
 
     @cached_property
     def _all_counts(self) -> Array:
         """Domain counts, sums of w and of w^2 over all rows, as (D, 3)."""
         w = self.design.weights
-        return self.counts([np.ones(self.n_rows), w, w * w])
+
+        def parts(rows: slice | Index) -> list[Any]:
+            wr = w[rows]
+            return [1.0, wr, wr * wr]
+
+        return self.bucket_domains(self._rows.unweighted_parts(parts, 3))
 
     def valid_pair_sums(self, valid: Bool) -> Array:
         """Return pair sums of w over valid rows: shape (pairs, 1)."""
-        return self._all_weight if valid.all() else self.pair_sums(valid.astype(np.float64))
+        if valid.all():
+            return self._all_weight
+        return self.to_pairs(self.bucket_sums_of(lambda rows: [valid[rows]], 1))
 
     def valid_counts(self, valid: Bool) -> Array:
         """Return per domain: valid rows, their sum of w and of w^2: shape (D, 3)."""
         if valid.all():
             return self._all_counts
-        v = valid.astype(np.float64)
         w = self.design.weights
-        return self.counts([v, w * v, w * w * v])
+
+        def parts(rows: slice | Index) -> list[Any]:
+            ok, wr = valid[rows], w[rows]
+            wv = np.where(ok, wr, 0.0)
+            return [ok, wv, wv * wr]
+
+        return self.bucket_domains(self._rows.unweighted_parts(parts, 3))
 
     def invalid_counts(self, reasons: npt.NDArray[np.int8], n_reasons: int,
                        valid: Bool | None = None) -> tuple[Index, Array]:
@@ -187,7 +202,7 @@ class WeightedSums:
         for tile in row_tiles(len(reasons)):  # row tiles: bounded temporaries
             rows = (np.flatnonzero(reasons[tile] if valid is None else ~valid[tile])
                     + tile.start)
-            b = self.bucket[rows]
+            b = self.bucket[rows].astype(np.int64)
             key = b * n_reasons + reasons[rows].astype(np.int64)
             cnt += np.bincount(key, minlength=len(cnt))
             w = self.design.weights[rows]
@@ -201,7 +216,12 @@ class WeightedSums:
     def domain_rows(self) -> Array:
         """Rows per domain and their sums of w^2 (Kish's weighting effect): shape (D, 2)."""
         w = self.design.weights
-        return self.counts([np.ones(self.n_rows), w * w])
+
+        def parts(rows: slice | Index) -> list[Any]:
+            wr = w[rows]
+            return [1.0, wr * wr]
+
+        return self.bucket_domains(self._rows.unweighted_parts(parts, 2))
 
     def domain_totals(self, pair: Array) -> Array:
         """Return pair sums added up by domain: shape (D, V)."""
@@ -210,11 +230,7 @@ class WeightedSums:
     def _bucket_counts(self, x: Array | Sequence[Array]) -> Array:
         """Return unweighted sums of x by bucket: shape (buckets, V)."""
         cols = _columns(x)
-        out = np.empty((self.n_buckets, len(cols)))
-        for j, col in enumerate(cols):  # loop over value columns only
-            out[:, j] = np.bincount(self.bucket, weights=col,
-                                    minlength=self.n_buckets + 1)[: self.n_buckets]
-        return out
+        return self._rows.unweighted_parts(lambda rows: [c[rows] for c in cols], len(cols))
 
     def counts(self, x: Array | Sequence[Array]) -> Array:
         """Return unweighted sums of x by domain: shape (D, V) (x = a validity mask: counts)."""
@@ -262,21 +278,44 @@ class WeightedSums:
         return self.invalid_counts(reasons, n_reasons)[0]
 
 
-def _compact(key: Index, inside: Bool, size: int) -> tuple[Index, Index]:
-    """Return the occupied keys (sorted) and each row's position among them (outside: last+1).
+def _buckets(psu: Codes, cell: Index, inside: Bool, nd: int, n_psu: int
+             ) -> tuple[Index, Codes]:
+    """Return the occupied bucket keys (sorted) and each row's bucket (outside: last+1).
 
-    A bincount finds the occupied keys when the key space is small; a sort otherwise.
+    A row's key is ``psu * nd + cell + 1`` (PSUs 0..n_psu-1). When the key space is small
+    the occupied keys are marked and looked up in row tiles (no temporary the size of the
+    file); a sort serves otherwise. Buckets are int32 below 2**31 of them. Without by-cells
+    and with every row inside, the buckets are the PSUs themselves and the PSU index is
+    returned as the bucket column (shared, not copied).
     """
-    k = key[inside]
-    if size <= 8 * max(len(key), 1):
-        seen = np.bincount(k, minlength=size) > 0
-        keys = np.flatnonzero(seen)
-        ids = (np.cumsum(seen) - 1)[k]
-    else:
-        keys, ids = np.unique(k, return_inverse=True)
-    bucket = np.full(len(key), len(keys), dtype=np.int64)
-    bucket[inside] = ids.ravel()
-    return keys.astype(np.int64), bucket
+    n, size = len(psu), n_psu * nd
+    everyone = bool(inside.all())
+
+    def key(rows: slice) -> Index:
+        return psu[rows].astype(np.int64) * nd + (cell[rows] + 1)  # no cell (-1) -> slot 0
+
+    if size > 8 * max(n, 1):
+        keys, ids = np.unique(key(slice(None))[inside], return_inverse=True)
+        bucket = np.full(n, len(keys), dtype=code_type(len(keys) + 1))
+        bucket[inside] = ids.ravel()
+        return keys.astype(np.int64), bucket
+    seen = np.zeros(size, dtype=bool)
+    tiles = row_tiles(n)
+    for tile in tiles:  # loop over row tiles, not rows
+        k = key(tile)
+        seen[k if everyone else k[inside[tile]]] = True
+    keys = np.flatnonzero(seen).astype(np.int64)
+    if nd == 1 and everyone and len(keys) == size:
+        return keys, psu
+    kind = code_type(len(keys) + 1)
+    position = (np.cumsum(seen) - 1).astype(kind)
+    bucket = np.empty(n, dtype=kind)
+    for tile in tiles:
+        b = position[key(tile)]
+        if not everyone:
+            b[~inside[tile]] = len(keys)
+        bucket[tile] = b
+    return keys, bucket
 
 
 def _columns(x: Array | Sequence[Array]) -> list[Array]:
@@ -315,14 +354,15 @@ class _RowSums:
     pass over the rows per value column, in numpy alone.
     """
 
-    def __init__(self, bucket: Index, weights: Array, n_buckets: int, n_rows: int) -> None:
-        inside = bucket < n_buckets
-        self.rows: Index | None = None if inside.all() else np.flatnonzero(inside)
+    def __init__(self, bucket: Codes, weights: Array, n_buckets: int, n_rows: int) -> None:
+        tiles = row_tiles(len(bucket))
+        everyone = all(bool((bucket[t] < n_buckets).all()) for t in tiles)
+        self.rows: Index | None = None if everyone else np.flatnonzero(bucket < n_buckets)
         self.bucket = bucket if self.rows is None else bucket[self.rows]
         self.weights = np.asarray(weights if self.rows is None else weights[self.rows],
                                   dtype=np.float64)
         self.n_buckets = n_buckets
-        in_order = bool(np.all(self.bucket[1:] >= self.bucket[:-1])) and n_rows > 0
+        in_order = n_rows > 0 and _ascending(self.bucket)
         # every bucket holds rows (they are the occupied keys), so no segment is empty
         self.starts = (np.searchsorted(self.bucket, np.arange(n_buckets)) if in_order
                        else None)
@@ -336,8 +376,17 @@ class _RowSums:
 
         Rows are taken in tiles (:func:`wstats._column.row_tiles`): ``parts(rows)`` gets a
         tile's rows (a slice or row numbers into the full columns) and returns its value
-        columns, so the temporaries stay the size of a tile whatever the file's length.
+        columns (or scalars, standing for a constant column), so the temporaries stay the
+        size of a tile whatever the file's length.
         """
+        return self._sum_parts(parts, width, weighted=True)
+
+    def unweighted_parts(self, parts: Parts, width: int) -> Array:
+        """Return sums of v by bucket, as :meth:`weighted_parts` without the weights."""
+        return self._sum_parts(parts, width, weighted=False)
+
+    def _sum_parts(self, parts: Parts, width: int, *, weighted: bool) -> Array:
+        """Sum the columns *parts* makes by bucket, tile by tile, times w if *weighted*."""
         out = np.zeros((self.n_buckets, width))
         if self.n_buckets == 0:  # no row inside the population domain
             return out
@@ -348,7 +397,8 @@ class _RowSums:
             w = self.weights[begin:end]
             bucket = self.bucket[begin:end]
             for j, part in enumerate(parts(rows)):
-                values = w * np.asarray(part, dtype=np.float64)
+                values = np.asarray(part, dtype=np.float64)
+                values = w * values if weighted else np.broadcast_to(values, w.shape)
                 if self.starts is None:
                     out[:, j] += np.bincount(bucket, weights=values, minlength=self.n_buckets)
                     continue
@@ -357,6 +407,15 @@ class _RowSums:
                 local[0] = 0  # ... except the first, which may have begun in the tile before
                 out[first : last + 1, j] += np.add.reduceat(values, local)
         return out
+
+
+def _ascending(a: Codes) -> bool:
+    """Return whether *a* never decreases, checked in row tiles (no mask the size of *a*)."""
+    for tile in row_tiles(len(a)):  # loop over row tiles, not rows
+        part = a[tile.start : tile.stop + 1]  # one row of overlap links the tiles
+        if not bool((part[1:] >= part[:-1]).all()):
+            return False
+    return True
 
 
 def domain_quantiles(
