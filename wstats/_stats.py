@@ -351,13 +351,12 @@ def category_levels(col: DecodedColumn, observed: npt.NDArray[Any] | None = None
     value as text (integers without a decimal point). *observed*: the distinct valid values
     of a numeric column when the caller has them already.
     """
-    valid = col.reasons == VALID
     if col.values.dtype.kind != "f":
-        seen = np.unique(col.values[valid].astype(str)).tolist()
+        seen = np.unique(col.values[col.reasons == VALID].astype(str)).tolist()
         return list(seen), [str(s) for s in seen]
     labelled = list(col.value_labels)
     if observed is None:
-        observed = distinct_values(col.values[valid])
+        observed = distinct_values(col.values[col.reasons == VALID])
     extra = [float(v) for v in observed if v not in col.value_labels]
     values = [*labelled, *extra]
     if len(values) > MAX_LEVELS:

@@ -364,8 +364,9 @@ class _RowSums:
         self.n_buckets = n_buckets
         in_order = n_rows > 0 and _ascending(self.bucket)
         # every bucket holds rows (they are the occupied keys), so no segment is empty
-        self.starts = (np.searchsorted(self.bucket, np.arange(n_buckets)) if in_order
-                       else None)
+        # bucket numbers in the bucket column's own type: a mixed-type search would copy it
+        numbers = np.arange(n_buckets, dtype=bucket.dtype)
+        self.starts = np.searchsorted(self.bucket, numbers) if in_order else None
 
     def weighted(self, x: Array) -> Array:
         """Return sum of w * x by bucket: shape (buckets,)."""
