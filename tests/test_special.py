@@ -47,6 +47,26 @@ def test_t_quantiles_equal_scipy(q: float) -> None:
     assert _rel(t_ppf(q, df), special.stdtrit(df, q)) < 2e-13
 
 
+def test_remembered_t_quantiles_equal_solved_ones(monkeypatch: pytest.MonkeyPatch) -> None:
+    # scipy.special.stdtrit: a df met again (both tails, mixed with new ones) gives the value
+    # solved the first time; the memo starts afresh past its size
+    from wstats import _special
+
+    monkeypatch.setattr(_special, "_T_SOLVED", {})
+    monkeypatch.setattr(_special, "_T_SOLVED_MAX", 5)
+    df = np.array([3.0, 30.0, 7.5, 30.0, 2999.0, 1e5])
+    first = t_ppf(0.975, df)
+    assert len(_special._T_SOLVED) == 4  # distinct df below the Fisher switch
+    again = t_ppf(0.975, np.array([30.0, 12.0, 3.0]))
+    assert again.tolist() == [first[1], t_ppf(0.975, [12.0])[0], first[0]]
+    lower = t_ppf(0.025, df)  # the lower tail shares the memo (Fisher's df: not memoised)
+    assert lower[:5].tolist() == (-first[:5]).tolist()
+    assert lower[5] == pytest.approx(-first[5], rel=1e-15)
+    assert _rel(again, special.stdtrit([30.0, 12.0, 3.0], 0.975)) < 2e-13
+    t_ppf(0.9, np.arange(1.0, 9.0))  # past the size: cleared, then filled again
+    assert len(_special._T_SOLVED) <= 5 + 8
+
+
 def test_t_quantile_edges() -> None:
     # common practice, no source: df = inf is the normal quantile; bad df give NaN
     out = t_ppf(0.975, [math.inf, 0.0, -1.0, math.nan])

@@ -54,6 +54,10 @@ _STIRLING_FROM = 8.0  # log-gamma by Stirling's series at and above this argumen
 _CF_ITERATIONS = 20_000  # the fraction converges in O(sqrt(max(a, b))) steps at worst
 _ROOT_ITERATIONS = 100  # Halley converges in a handful; bisection may need ~60 more
 _FISHER_FROM = 3e3  # t quantiles from this many df on by Fisher's expansion
+#: t quantiles solved by the beta relation, by (upper probability, df): a run asks for the same
+#: design df and record counts several times (intervals, then reliability rules)
+_T_SOLVED: dict[tuple[float, float], float] = {}
+_T_SOLVED_MAX = 65_536  # entries kept before the memo starts afresh
 
 _lgamma = np.vectorize(math.lgamma, otypes=[np.float64])
 
@@ -388,14 +392,23 @@ def t_ppf(q: float, df: npt.ArrayLike) -> Array:
         zu = abs(z)
         many = nu >= _FISHER_FROM
         t[many] = _fisher_t(zu, nu[many])
+        known = [_T_SOLVED.get((upper, v)) for v in nu.tolist()]
+        memo = np.array([k is not None for k in known], dtype=bool) & ~many
+        t[memo] = [k for k, m in zip(known, memo.tolist(), strict=True) if m]
+        solve = ~many & ~memo
         guess = z * z / (nu + z * z)  # y = t^2 / (nu + t^2) for a normal T
-        near0 = (guess < 0.5) & ~many
+        near0 = (guess < 0.5) & solve
         if near0.any():  # y small: solve for y
             y = beta_ppf(inside, 0.5, nu[near0] / 2.0)
             t[near0] = np.sqrt(nu[near0] * y / (1.0 - y))
-        near1 = ~near0 & ~many
+        near1 = ~near0 & solve
         if near1.any():  # y near 1: solve for 1 - y ~ Beta(nu/2, 1/2)
             y1 = beta_ppf(outside, nu[near1] / 2.0, 0.5)
             t[near1] = np.sqrt(nu[near1] * (1.0 - y1) / y1)
+        if solve.any():
+            if len(_T_SOLVED) > _T_SOLVED_MAX:
+                _T_SOLVED.clear()
+            _T_SOLVED.update(zip(((upper, v) for v in nu[solve].tolist()),
+                                 t[solve].tolist(), strict=True))
         out[np.flatnonzero(finite)] = (t if q >= 0.5 else -t)[back.ravel()]
     return out.reshape(shape)
