@@ -6,6 +6,7 @@ import re
 import subprocess
 import sys
 from pathlib import Path
+from typing import Any
 
 import pytest
 
@@ -95,3 +96,25 @@ def test_help_imports_nothing_heavy() -> None:
     proc = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True)
     assert proc.returncode == 0, proc.stderr
     assert proc.stdout.strip().splitlines()[-1] == "HEAVY:"
+
+
+def test_estimate_holds_only_named_columns_not_derived_inputs(
+        survey_files: dict[str, Path], codebook_file: Path,
+        monkeypatch: pytest.MonkeyPatch, capsys: pytest.CaptureFixture[str]) -> None:
+    # common practice, no source: a derived variable's inputs are read to make it and then
+    # let go; the estimation sees the variables, the condition's and the design's columns only
+    import wstats._estimate
+
+    seen: dict[str, list[str]] = {}
+    real = wstats._estimate.estimate
+
+    def spy(data: Any, *args: Any, **kwargs: Any) -> Any:
+        seen["columns"] = list(data.columns)
+        return real(data, *args, **kwargs)
+
+    monkeypatch.setattr(wstats._estimate, "estimate", spy)
+    code = main(["--quiet", "estimate", str(survey_files["csv"]), "SLEEP_MIN",
+                 "--codebook", str(codebook_file), "--where", "AGE > 30", "--format", "json"])
+    assert code == 0
+    assert seen["columns"] == ["SLEEP_MIN", "AGE", "WT", "STRAT", "PSU"]  # not SLEEP
+    assert '"SLEEP_MIN"' in capsys.readouterr().out

@@ -161,16 +161,18 @@ def ratio_pair(text: str) -> tuple[str, str]:
     return num.strip(), den.strip()
 
 
-def needed_columns(codebook: Any, names: Sequence[str], design: Any, where: str | None,
-            data: str) -> list[str]:
-    """Return the raw columns to read: variables (derived inputs expanded), design, condition."""
+def needed_columns(names: Sequence[str], design: Any, where: str | None, data: str
+                   ) -> list[str]:
+    """Return the variables to read: those named, the condition's, the design's.
+
+    Derived variables stay as names: ``read`` reads their inputs and drops them once the
+    variables are made, so inputs nobody named take no memory during estimation.
+    """
     cols = list(names)
     if where:
         from wstats._expr import expression_names
 
         cols.extend(expression_names(where))
-    if codebook is not None:
-        cols = [*cols, *codebook.raw_columns_for(cols)]  # derived names kept: read() makes them
     available = None
     if design.replicates is not None:
         from wstats._readers import file_columns

@@ -164,8 +164,8 @@ def _run_estimate(args: argparse.Namespace) -> int:
     design = design_from(args, codebook)
     ratios = [ratio_pair(r) for r in args.ratio]
     variables = list(args.variables)
-    needed = needed_columns(codebook, [*variables, *[x for r in ratios for x in r], *args.by],
-                     design, args.where, args.data)
+    needed = needed_columns([*variables, *[x for r in ratios for x in r], *args.by],
+                            design, args.where, args.data)
     data = _read(args, codebook, needed)
     table = estimate(
         data, design, variables, statistics=split_list([args.stats]) or None, by=args.by,
@@ -197,7 +197,7 @@ def _run_nonresponse(args: argparse.Namespace) -> int:
 
     codebook = _load_codebook(args.codebook)
     design = design_from(args, codebook)
-    needed = needed_columns(codebook, [*args.variables, *args.by], design, args.where, args.data)
+    needed = needed_columns([*args.variables, *args.by], design, args.where, args.data)
     data = _read(args, codebook, needed)
     table = nonresponse(data, design, args.variables, by=args.by, where=args.where,
                         level=args.level, count_invalid=not args.exclude_invalid,
@@ -217,8 +217,8 @@ def _run_bounds(args: argparse.Namespace) -> int:
 
     codebook = _load_codebook(args.codebook)
     design = design_from(args, codebook)
-    data = _read(args, codebook, needed_columns(codebook, [*args.variables, *args.by], design,
-                                         args.where, args.data))
+    data = _read(args, codebook, needed_columns([*args.variables, *args.by], design,
+                                                args.where, args.data))
     frame = bounds(data, design, args.variables, by=args.by, where=args.where,
                    level=args.level, reasons=tuple(split_list([args.unknown])))
     frame.attrs.setdefault("design", design.bind(data).summary())
