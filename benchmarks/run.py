@@ -186,10 +186,10 @@ def report(res: dict[str, dict[str, Any]], items: list[str], raw_a: list[str]) -
     sel_d = (len(items) + 3 + 1) * ROWS * 8 / 2**20  # items, design, domain as float64
     limit_d = 1.5 * sel_d + 200
     sel_a = len(raw_a) * ROWS * 8 / 2**20
-    # what A keeps per row: each raw column's value (8 bytes) and reason code (1 byte), each
-    # derived variable's value and reason (9), the design's PSU index (int32, 4)
+    # the columns as A holds them at its peak (decoding done): each raw column's value (8
+    # bytes) and reason code (1 byte), each derived variable's value and reason (9 bytes)
     derived = len([v for v in TEN if v not in raw_a])
-    held_a = (9 * len(raw_a) + 9 * derived + 4) * ROWS / 2**20
+    held_a = (9 * len(raw_a) + 9 * derived) * ROWS / 2**20
     a, d, a2 = res["A"]["rss_mb"], res["D"]["rss_mb"], res["A2"]["rss_mb"]
     print("memory (peak RSS):")
     print(f"  A  {a:6.0f} MB (target <= 400): {'met' if a <= 400 else 'MISSED'}")
@@ -202,7 +202,7 @@ def report(res: dict[str, dict[str, Any]], items: list[str], raw_a: list[str]) -
 
     print(f"  A on 1x rows {a:.0f} MB, on 2x rows {a2:.0f} MB: grew {grew:.0f} MB; its "
           f"{len(raw_a)} raw columns grow by {sel_a:.0f} MB ({within(sel_a)}), the columns as "
-          f"held (values, reason codes, {derived} derived, PSU index) by {held_a:.0f} MB "
+          f"held (values and reason codes, {derived} derived) by {held_a:.0f} MB "
           f"({within(held_a)})")
     h = res["H"]["median"]
     print(f"start-up: wstats --help {h:.3f} s (target < 0.3): {'met' if h < 0.3 else 'MISSED'}")
