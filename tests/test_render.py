@@ -19,6 +19,7 @@ import os
 import re
 import shutil
 import subprocess
+import sys
 from pathlib import Path
 from typing import Any
 
@@ -268,3 +269,23 @@ def test_missing_provenance_falls_back_to_a_minimal_record() -> None:
     assert doc["provenance"]["design"]["weight"] == "FINALWT"
     assert doc["provenance"]["created_utc"] is None
     assert not math.isnan(doc["results"][0]["estimate"])
+
+
+def test_every_registered_renderer_resolves_and_json_imports_no_other() -> None:
+    # common practice, no source: the registries import a renderer's module on first use;
+    # every entry names a function that exists, and writing JSON loads no terminal/html code
+    from wstats.render import BOUNDS_RENDERERS
+
+    for registry in (ESTIMATE_RENDERERS, NONRESPONSE_RENDERERS, TABLE_RENDERERS,
+                     BOUNDS_RENDERERS):
+        for fmt in registry:
+            assert callable(registry[fmt]), fmt
+    assert tuple(FORMATS[:6]) == ("terminal", "markdown", "latex", "html", "csv", "json")
+    code = ("import sys\nfrom wstats.render import ESTIMATE_RENDERERS\n"
+            "ESTIMATE_RENDERERS['json']\n"
+            "print(sorted(m for m in sys.modules if m.startswith('wstats.render.') "
+            "or m == 'rich'))")
+    proc = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True)
+    assert proc.returncode == 0, proc.stderr
+    assert proc.stdout.strip() == ("['wstats.render._csv', 'wstats.render._grid', "
+                                   "'wstats.render._json']")

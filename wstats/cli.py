@@ -9,7 +9,7 @@ from __future__ import annotations
 
 import argparse
 import sys
-from collections.abc import Callable, Sequence
+from collections.abc import Callable, Mapping, Sequence
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
@@ -80,7 +80,7 @@ def _emit(obj: Any, kind: str, args: argparse.Namespace, inputs: Sequence[str],
     from wstats import render
 
     fmt = format_for(args)
-    registry: dict[str, Callable[..., Any]] = getattr(render, f"{kind.upper()}_RENDERERS")
+    registry: Mapping[str, Callable[..., Any]] = getattr(render, f"{kind.upper()}_RENDERERS")
     key = "terminal" if fmt == "table" else fmt
     if key not in registry:
         raise UsageError(f"format '{fmt}' is not available for {kind}; choose one of "

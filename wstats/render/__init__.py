@@ -14,13 +14,13 @@ installed. Nothing here prints; the command line does.
 
 from __future__ import annotations
 
+import importlib
 import importlib.util
-from collections.abc import Callable
+from collections.abc import Callable, Iterator, Mapping, MutableMapping
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
 from wstats.errors import OutputError
-from wstats.render import _bounds, _csv, _html, _json, _latex, _markdown, _terminal
 
 if TYPE_CHECKING:
     from wstats._pubtable import PublicationTable
@@ -36,45 +36,63 @@ __all__ = [
 ]
 
 Renderer = Callable[..., Any]
-render_check = _terminal.render_check
 
-ESTIMATE_RENDERERS: dict[str, Renderer] = {
-    "terminal": _terminal.estimate_terminal,
-    "markdown": _markdown.estimate_markdown,
-    "latex": _latex.estimate_latex,
-    "html": _html.estimate_html,
-    "csv": _csv.estimate_csv,
-    "json": _json.estimate_json,
-}
-NONRESPONSE_RENDERERS: dict[str, Renderer] = {
-    "terminal": _terminal.nonresponse_terminal,
-    "markdown": _markdown.nonresponse_markdown,
-    "latex": _latex.nonresponse_latex,
-    "html": _html.nonresponse_html,
-    "csv": _csv.nonresponse_csv,
-    "json": _json.nonresponse_json,
-}
-BOUNDS_RENDERERS: dict[str, Renderer] = {
-    "terminal": _bounds.bounds_terminal,
-    "markdown": _bounds.bounds_markdown,
-    "csv": _bounds.bounds_csv,
-    "json": _bounds.bounds_json,
-}
-TABLE_RENDERERS: dict[str, Renderer] = {
-    "terminal": _terminal.table_terminal,
-    "markdown": _markdown.table_markdown,
-    "latex": _latex.table_latex,
-    "html": _html.table_html,
-    "csv": _csv.table_csv,
-    "json": _json.table_json,
-}
 
-if importlib.util.find_spec("openpyxl") is not None:
-    from wstats.render import _xlsx
+class _Registry(MutableMapping[str, Renderer]):
+    """Format name -> renderer, importing a renderer's module the first time it is asked for.
 
-    ESTIMATE_RENDERERS["xlsx"] = _xlsx.estimate_xlsx
-    NONRESPONSE_RENDERERS["xlsx"] = _xlsx.nonresponse_xlsx
-    TABLE_RENDERERS["xlsx"] = _xlsx.table_xlsx
+    A run writes one format: importing every renderer (rich, html, latex, ...) would cost
+    more start-up time than the rendering itself. A renderer may also be set directly (a
+    format of one's own, or a stand-in in a test).
+    """
+
+    def __init__(self, where: Mapping[str, tuple[str, str]]) -> None:
+        self._where: dict[str, tuple[str, str] | Renderer] = dict(where)
+
+    def __getitem__(self, fmt: str) -> Renderer:
+        entry = self._where[fmt]
+        if not isinstance(entry, tuple):
+            return entry
+        module, name = entry  # a module in wstats.render, and its function
+        renderer: Renderer = getattr(importlib.import_module(f"wstats.render.{module}"), name)
+        return renderer
+
+    def __setitem__(self, fmt: str, renderer: Renderer) -> None:
+        self._where[fmt] = renderer
+
+    def __delitem__(self, fmt: str) -> None:
+        del self._where[fmt]
+
+    def __iter__(self) -> Iterator[str]:
+        return iter(self._where)
+
+    def __len__(self) -> int:
+        return len(self._where)
+
+
+_TEXT = ("terminal", "markdown", "latex", "html", "csv", "json")
+#: formats of the three table registries: xlsx only when openpyxl is installed
+_FORMATS = (*_TEXT, "xlsx") if importlib.util.find_spec("openpyxl") is not None else _TEXT
+
+
+def _each_module(kind: str) -> _Registry:
+    """Return the registry of ``<kind>_<format>`` functions, one module per format."""
+    return _Registry({fmt: (f"_{fmt}", f"{kind}_{fmt}") for fmt in _FORMATS})
+
+
+ESTIMATE_RENDERERS: MutableMapping[str, Renderer] = _each_module("estimate")
+NONRESPONSE_RENDERERS: MutableMapping[str, Renderer] = _each_module("nonresponse")
+TABLE_RENDERERS: MutableMapping[str, Renderer] = _each_module("table")
+BOUNDS_RENDERERS: MutableMapping[str, Renderer] = _Registry(
+    {fmt: ("_bounds", f"bounds_{fmt}") for fmt in ("terminal", "markdown", "csv", "json")})
+
+
+def render_check(report: Any) -> Any:
+    """Return the terminal renderable of a ``wstats check`` report (see _terminal)."""
+    from wstats.render._terminal import render_check as draw
+
+    return draw(report)
+
 
 #: Every format name some registry offers, in a stable order.
 FORMATS: tuple[str, ...] = tuple(TABLE_RENDERERS)
