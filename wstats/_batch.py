@@ -247,11 +247,11 @@ def _proportion(ctx: Context, name: str, ci: str) -> _Job:
     """Queue the proportion of every level of *name*, per domain."""
     col = ctx.columns[name]
     sums = ctx.sums
-    reasons = col.reasons
     values, labels, buckets = _levels(ctx, col)
     nl = len(values)
-    valid_b = (sums.bucket_sums_of(lambda rows: [reasons[rows] == VALID], 1) if nl
-               else np.zeros((sums.n_buckets, 1)))
+    # every valid value is one of the levels, so the level sums add up to the valid rows'
+    # weights (no second pass over the rows)
+    valid_b = buckets.sum(axis=1, keepdims=True) if nl else np.zeros((sums.n_buckets, 1))
     by_level = sums.to_pairs(buckets)
     den_pair = sums.to_pairs(valid_b)[:, 0]
     den = sums.bucket_domains(valid_b)[:, 0]
