@@ -203,3 +203,41 @@ def test_proportions_in_row_tiles_equal_one_pass(monkeypatch: pytest.MonkeyPatch
     props = whole[whole.statistic == "proportion"]
     sums = props.groupby(props["g"].astype(str))["estimate"].sum()
     np.testing.assert_allclose(sums.to_numpy(float), 1.0, rtol=1e-12)
+
+
+@pytest.mark.parametrize("tile", [262_144, 7])
+def test_level_sums_agree_on_every_path(tile: int, monkeypatch: pytest.MonkeyPatch) -> None:
+    # common practice, no source: a categorical variable's weighted sums by (bucket, level)
+    # come from one pass over (bucket, code) cells, from a code -> level lookup table, or
+    # from level indexes over the whole column; all three give the same table (labelled
+    # levels first, one unobserved and one outside the codes' span, then unlabelled codes)
+    from wstats import _batch, _column
+
+    monkeypatch.setattr(_column, "ROW_TILE", tile)
+    rng = np.random.default_rng(21)
+    n = 400
+    y = rng.integers(3, 9, n).astype(float)
+    y[rng.random(n) < 0.2] = np.nan
+    ds = _with(_ds(y=y, w=rng.uniform(0.5, 3, n), st=rng.integers(0, 3, n).astype(float),
+                   psu=rng.integers(0, 5, n).astype(float),
+                   g=rng.integers(1, 4, n).astype(float), x=rng.normal(size=n)),
+               "y", kind="categorical",
+               value_labels={5.0: "five", 3.0: "three", 4.5: "odd", 20.0: "far"})
+    design = Design("w", strata="st", psu="psu")
+
+    def run() -> Any:
+        return estimate(ds, design, ["y"], by=["g"], where="x > -1.2").frame
+
+    one_pass = run()
+    monkeypatch.setattr(_batch, "_DENSE", 0)  # too many cells: the lookup table
+    looked_up = run()
+    monkeypatch.setattr(_batch, "_SPAN", -1)  # no span is small: level indexes
+    indexed = run()
+    assert one_pass.level.tolist()[:7] == ["five", "three", "odd", "far", "4", "6", "7"]
+    for other in (looked_up, indexed):
+        assert other.level.tolist() == one_pass.level.tolist()
+        for col in ("estimate", "se", "n", "weighted_n", "deff"):
+            np.testing.assert_allclose(other[col].to_numpy(float),
+                                       one_pass[col].to_numpy(float), rtol=1e-12, atol=1e-15)
+    empty = one_pass[one_pass.level.isin(["odd", "far"])]
+    assert (empty.estimate == 0).all()

@@ -47,6 +47,7 @@ _Job = tuple["Array", Callable[["Array"], Piece]]
 BATCHED = ("mean", "total", "proportion")
 _TILE = 4_000_000  # pair x column cells of linearized totals held before their variances
 _THREADS = 2  # the machines this is tuned for have 2 cores
+_DENSE = 1 << 19  # (bucket, code) cells summed in one pass (4 MiB); more take a lookup table
 
 
 class _Variances:
@@ -178,33 +179,105 @@ def _weighted_s2(ctx: Context, col: DecodedColumn, centre: Array, m: _Moments) -
 def _levels(ctx: Context, col: DecodedColumn) -> tuple[list[Any], list[str], Array]:
     """Return the levels, their labels and the weighted sums by bucket and level (nb, L).
 
-    Small whole-number codes (the usual case) take row tiles: one pass checks them, one finds
-    the codes observed, one the weighted counts by bucket and level through a lookup table
-    (NaN, a row without a valid value, goes to a discard slot); the temporaries are a tile's.
-    Other categories are indexed over the whole column.
+    Small whole-number codes (the usual case) take row tiles. When buckets x codes are few,
+    one pass checks the codes, marks those observed and sums the weights by (bucket, code);
+    otherwise one pass checks and marks, and a second sums by (bucket, level) through a lookup
+    table. NaN, a row without a valid value, goes to a discard slot; the temporaries are a
+    tile's. Other categories are indexed over the whole column.
     """
+    span = _span(col)
+    if span is not None:
+        lo, hi = span
+        if (ctx.sums.n_buckets + 1) * (int(hi - lo) + 2) <= _DENSE:
+            found = _code_sums(ctx, col, lo, int(hi - lo) + 1)
+            if found is not None:
+                return _level_columns(col, lo, *found)
+        elif _whole(col, lo):
+            return _looked_up(ctx, col, lo, int(hi - lo) + 1)
+    return _indexed(ctx, col)
+
+
+def _span(col: DecodedColumn) -> tuple[float, float] | None:
+    """Return (min, max) of the valid values if the column is numeric, finite, of small span.
+
+    A non-valid row holds NaN, which ``fmin``/``fmax`` skip.
+    """
+    if col.values.dtype.kind != "f" or not len(col.values):
+        return None
+    lo, hi = float(np.fmin.reduce(col.values)), float(np.fmax.reduce(col.values))
+    if not (np.isfinite(lo) and np.isfinite(hi)) or hi - lo > _SPAN:
+        return None
+    return lo, hi
+
+
+def _tile_codes(col: DecodedColumn, rows: slice, lo: float, size: int
+                ) -> npt.NDArray[np.int64] | None:
+    """Return the codes v - lo of a tile (*size* where not valid), or None if one is not whole.
+
+    The tiled passes take NaN for "not valid", so a valid row holding NaN sends the column
+    the general way too.
+    """
+    shifted = col.values[rows] - lo
+    blank = np.isnan(shifted)
+    if not bool(np.all((shifted == np.floor(shifted)) | blank)) or bool(
+            np.any(blank & (col.reasons[rows] == VALID))):
+        return None
+    np.copyto(shifted, size, where=blank)
+    return shifted.astype(np.int64)
+
+
+def _whole(col: DecodedColumn, lo: float) -> bool:
+    """Return whether every tile's codes are whole numbers (see :func:`_tile_codes`)."""
+    return all(_tile_codes(col, tile, lo, 0) is not None for tile in row_tiles(len(col.values)))
+
+
+def _code_sums(ctx: Context, col: DecodedColumn, lo: float, size: int
+               ) -> tuple[npt.NDArray[np.bool_], Array] | None:
+    """One pass: the codes observed and the weights by (bucket, code), (nb, size + 1).
+
+    None when a code is not whole (then the column takes the general way).
+    """
+    nb, width = ctx.sums.n_buckets, size + 1  # code `size`: rows without a valid value
+    seen = np.zeros(width, dtype=bool)
+    by_code = np.zeros((nb + 1) * width)  # bucket nb: rows outside the population domain
+    bucket, weights = ctx.sums.bucket, ctx.design.weights
+    for tile in row_tiles(len(col.values)):  # loop over row tiles, not rows
+        codes = _tile_codes(col, tile, lo, size)
+        if codes is None:
+            return None
+        seen[codes] = True
+        key = bucket[tile].astype(np.int64) * width + codes
+        by_code += np.bincount(key, weights=weights[tile], minlength=len(by_code))
+    return seen[:size], by_code.reshape(nb + 1, width)[:nb, :size]
+
+
+def _level_columns(col: DecodedColumn, lo: float, seen: npt.NDArray[np.bool_],
+                   by_code: Array) -> tuple[list[Any], list[str], Array]:
+    """Return the levels of the observed codes and their columns of the (bucket, code) sums."""
+    values, labels = category_levels(col, np.flatnonzero(seen) + lo)
+    out = np.zeros((by_code.shape[0], len(values)))
+    taken = set()
+    for j, v in enumerate(values):  # loop over levels only; the first level of a code wins
+        code = float(v) - lo
+        if 0 <= code < by_code.shape[1] and code == int(code) and int(code) not in taken:
+            taken.add(int(code))
+            out[:, j] = by_code[:, int(code)]
+    return values, labels, out
+
+
+def _looked_up(ctx: Context, col: DecodedColumn, lo: float, size: int
+               ) -> tuple[list[Any], list[str], Array]:
+    """Two passes: the codes observed, then the weights by (bucket, level) via a table."""
     sums = ctx.sums
     nb = sums.n_buckets
-    span = _whole_span(col)
-    if span is None:
-        valid = col.reasons == VALID
-        values, labels = category_levels(col)
-        index = level_index(col, values, valid)
-        key = sums.bucket.astype(np.int64) * len(values) + index
-        key[index < 0] = nb * len(values)  # not valid / no level: the discard slot
-        nl = len(values)
-        out = np.bincount(key, weights=ctx.design.weights, minlength=nb * nl + 1)[: nb * nl]
-        return values, labels, out.reshape(nb, nl).astype(np.float64, copy=False)
-    lo, hi = span
-    size = int(hi - lo) + 1
     seen = np.zeros(size + 1, dtype=bool)  # slot `size`: rows without a valid value
     for tile in row_tiles(len(col.values)):  # loop over row tiles, not rows
         seen[_codes_of(col.values[tile], lo, size)] = True
     observed = np.flatnonzero(seen[:size]) + lo
     values, labels = category_levels(col, observed)
-    # every valid value is an observed whole number in [lo, hi] and one of the levels
+    # every valid value is an observed whole number in [lo, lo + size) and one of the levels
     lv = np.asarray(values, dtype=np.float64)
-    pos = np.flatnonzero((lv >= lo) & (lv <= hi) & (lv == np.floor(lv)))[::-1]
+    pos = np.flatnonzero((lv >= lo) & (lv < lo + size) & (lv == np.floor(lv)))[::-1]
     nl = len(values)
     table = np.full(size + 1, nb * nl, dtype=np.int64)  # not valid: past every bucket
     table[(lv[pos] - lo).astype(np.int64)] = pos  # reversed: the first level wins
@@ -216,31 +289,24 @@ def _levels(ctx: Context, col: DecodedColumn) -> tuple[list[Any], list[str], Arr
     return values, labels, by_key[: nb * nl].reshape(nb, nl)
 
 
+def _indexed(ctx: Context, col: DecodedColumn) -> tuple[list[Any], list[str], Array]:
+    """Any categories (text, fractions, wide spans): level indexes over the whole column."""
+    nb = ctx.sums.n_buckets
+    valid = col.reasons == VALID
+    values, labels = category_levels(col)
+    index = level_index(col, values, valid)
+    key = ctx.sums.bucket.astype(np.int64) * len(values) + index
+    key[index < 0] = nb * len(values)  # not valid / no level: the discard slot
+    nl = len(values)
+    out = np.bincount(key, weights=ctx.design.weights, minlength=nb * nl + 1)[: nb * nl]
+    return values, labels, out.reshape(nb, nl).astype(np.float64, copy=False)
+
+
 def _codes_of(v: Array, lo: float, size: int) -> npt.NDArray[np.int64]:
     """Return v - lo as integer codes, *size* where v is NaN (a row without a valid value)."""
     shifted = v - lo
     np.copyto(shifted, size, where=np.isnan(shifted))
     return shifted.astype(np.int64)
-
-
-def _whole_span(col: DecodedColumn) -> tuple[float, float] | None:
-    """Return (min, max) of the valid values when they are whole numbers of a small span.
-
-    A non-valid row holds NaN, which ``fmin``/``fmax`` skip; the tiled passes then take NaN
-    for "not valid", so a valid row holding NaN sends the column the other way.
-    """
-    if col.values.dtype.kind != "f" or not len(col.values):
-        return None
-    lo, hi = float(np.fmin.reduce(col.values)), float(np.fmax.reduce(col.values))
-    if not (np.isfinite(lo) and np.isfinite(hi)) or hi - lo > _SPAN:
-        return None
-    for tile in row_tiles(len(col.values)):  # loop over row tiles, not rows
-        v = col.values[tile]
-        blank = np.isnan(v)
-        if not bool(np.all((v == np.floor(v)) | blank)) or bool(
-                np.any(blank & (col.reasons[tile] == VALID))):
-            return None
-    return lo, hi
 
 
 def _proportion(ctx: Context, name: str, ci: str) -> _Job:
