@@ -70,7 +70,7 @@ def test_psu_index_equals_pairs_numbered_in_sorted_order(tile: int,
 
 def test_psu_index_widens_the_key_when_int32_cannot_hold_it() -> None:
     # common practice, no source: stratum code x PSU span beyond 2**31 needs an int64 key
-    from wstats._design import _psu_index
+    from wstats._binding import _psu_index
 
     stratum = np.array([70_000, 0, 70_000, 3], dtype=np.int32)
     psu = np.array([40_000, 40_000, 2, 0], dtype=np.int32)
@@ -81,7 +81,7 @@ def test_psu_index_widens_the_key_when_int32_cannot_hold_it() -> None:
 
 def test_unique_inverse_in_place_reuses_the_codes_memory() -> None:
     # common practice, no source: positions among the sorted distinct values, as numpy.unique
-    from wstats._design import _unique_inverse
+    from wstats._binding import _unique_inverse
 
     v = np.array([7, 3, 7, 9, 3], dtype=np.int32)
     uniq, inv = _unique_inverse(v, in_place=True)
