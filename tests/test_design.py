@@ -6,6 +6,8 @@ from dataclasses import replace
 
 import numpy as np
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 
 from wstats._column import Dataset
 from wstats._design import Design
@@ -77,6 +79,23 @@ def test_psu_index_widens_the_key_when_int32_cannot_hold_it() -> None:
     index, psu_stratum = _psu_index(stratum, psu.copy())
     assert index.tolist() == [3, 0, 2, 1]  # pairs (0,40000) (3,0) (70000,2) (70000,40000)
     assert psu_stratum.tolist() == [0, 3, 70_000, 70_000]
+
+
+@settings(max_examples=60, deadline=None)
+@given(pairs=st.lists(st.tuples(st.integers(0, 70_000), st.integers(0, 40_000)),
+                      min_size=1, max_size=40))
+def test_psu_index_is_the_rank_of_each_pair(pairs: list[tuple[int, int]]) -> None:
+    # common practice, no source: whatever the codes (keys past 2**31 included), a row's PSU
+    # index is the rank of its (stratum, PSU) pair among the distinct pairs, and each PSU's
+    # stratum is the stratum of its pair
+    from wstats._binding import _psu_index
+
+    stratum = np.array([h for h, _ in pairs], dtype=np.int32)
+    psu = np.array([c for _, c in pairs], dtype=np.int32)
+    distinct = sorted(set(pairs))
+    index, psu_stratum = _psu_index(stratum, psu.copy())
+    assert index.tolist() == [distinct.index(p) for p in pairs]
+    assert psu_stratum.tolist() == [h for h, _ in distinct]
 
 
 def test_unique_inverse_in_place_reuses_the_codes_memory() -> None:
