@@ -348,3 +348,41 @@ def test_assess_is_row_wise_and_consistent(rows: list[dict[str, Any]], seed: int
     flags2, suppress2 = assess(f.iloc[order].reset_index(drop=True))
     assert flags2 == [flags[i] for i in order]
     assert suppress2.tolist() == suppress[order].tolist()
+
+
+@pytest.mark.parametrize("level", [0.95, 0.90])
+def test_estimate_reuses_its_own_kg_interval_only_when_it_is_the_rules_one(
+        level: float, monkeypatch: pytest.MonkeyPatch) -> None:
+    # common practice, no source: a table whose proportion intervals are Korn-Graubard at the
+    # standard's 95% hands them to the width rules; the flags equal those of rules that solve
+    # the interval again from p, se, n and df (at 90% the table's own cannot serve)
+    from wstats._column import Dataset
+    from wstats._design import Design
+    from wstats._estimate import estimate
+    from wstats._reliability import assess
+
+    rng = np.random.default_rng(17)
+    n = 900
+    rare = (rng.random(n) < 0.04).astype(float)
+    ds = Dataset.from_arrays({"y": rare, "w": rng.uniform(1, 5, n),
+                              "st": rng.integers(0, 6, n).astype(float),
+                              "psu": rng.integers(0, 3, n).astype(float),
+                              "g": rng.integers(0, 12, n).astype(float)})
+    from wstats import _reliability
+
+    solved: list[int] = []
+
+    def counting(*args: Any) -> Any:
+        solved.append(len(args[0]))
+        return korn_graubard_ci(*args)
+
+    monkeypatch.setattr(_reliability, "korn_graubard_ci", counting)
+    table = estimate(ds, Design("w", strata="st", psu="psu"), ["y"], categorical=["y"],
+                     by=["g"], level=level)
+    assert len(solved) == (0 if level == 0.95 else 1)  # solved again only at another level
+    frame = table.frame
+    again, suppress = assess(frame, DEFAULT_STANDARD, level)
+    assert list(frame["flags"]) == again
+    assert frame["suppress"].tolist() == suppress.tolist()
+    fired = {rule for flags in again for rule in flags}
+    assert {"kg-relwidth>130%", "neff<30"} <= fired  # the width rules had work to do

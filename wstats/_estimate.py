@@ -113,7 +113,9 @@ def estimate(
     rows = _columns(pieces, list(by), by_levels, data.vocabulary.names, level)
     _warn(data, bound, variables, domains, by_levels)
     standard = reliability or DEFAULT_STANDARD
-    flags, suppress = assess(rows, standard, level)
+    same_kg = proportion_ci == "korn-graubard" and level == standard.kg_level
+    flags, suppress = assess(rows, standard, level,
+                             (rows["ci_low"], rows["ci_high"]) if same_kg else None)
     rows["flags"] = object_column(flags)
     rows["suppress"] = suppress
     settings = {"proportion_ci": proportion_ci, "mean_ci": "wald-t", "quantile_ci": "woodruff",

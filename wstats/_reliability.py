@@ -10,8 +10,10 @@ Interpretations where the published rules are silent (see ``docs/reliability.md`
   applied there; such estimates are flagged ``p-at-0-or-1`` for review instead. This keeps the
   rules symmetric under p <-> 1-p.
 - The complement rule uses the same width band as the suppression rule (0.05 < W < 0.30).
-- The width rules always use a Korn-Graubard interval at ``standard.kg_level`` recomputed from
-  estimate, se, n and df, whatever interval method or level the table shows.
+- The width rules always use a Korn-Graubard interval at ``standard.kg_level`` computed from
+  estimate, se, n and df, whatever interval method or level the table shows (an estimate
+  whose own proportion intervals are exactly that one hands them over instead of solving
+  them twice).
 - n_eff is recomputed as p(1-p)/se^2 capped at n (n when p is 0 or 1 or se is 0).
 """
 
@@ -222,7 +224,8 @@ def _rse_rules(
 
 
 def evaluate(
-    frame: Rows, standard: ReliabilityStandard = DEFAULT_STANDARD
+    frame: Rows, standard: ReliabilityStandard = DEFAULT_STANDARD,
+    kg_interval: tuple[npt.NDArray[np.float64], npt.NDArray[np.float64]] | None = None,
 ) -> dict[str, Bool]:
     """Return rule id -> boolean array (one per row) of the rules that fire under *standard*.
 
@@ -231,6 +234,10 @@ def evaluate(
     frame : estimates with columns statistic, estimate, se, df, n (see ``ESTIMATE_COLUMNS``):
         a pandas frame or a mapping of column name -> 1-D array.
     standard : the reliability standard.
+    kg_interval : (low, high) per row when the caller already holds the Korn-Graubard
+        interval of every proportion row at ``standard.kg_level`` from these same columns
+        (an estimate table whose proportion intervals are Korn-Graubard at that level); the
+        width rules then use it instead of solving the same beta quantiles again.
 
     Returns
     -------
@@ -251,7 +258,9 @@ def evaluate(
     # the interval only for the rows its rules apply to (the beta quantiles cost time)
     width = np.full(len(est), np.nan)
     rows = np.flatnonzero(nchs & filled)
-    if rows.size:
+    if rows.size and kg_interval is not None:
+        width[rows] = kg_interval[1][rows] - kg_interval[0][rows]
+    elif rows.size:
         low, high = korn_graubard_ci(est[rows], se[rows], n[rows], df[rows], standard.kg_level)
         width[rows] = high - low
     with np.errstate(invalid="ignore"):
@@ -272,7 +281,8 @@ def _suppressing(standard: ReliabilityStandard) -> tuple[str, ...]:
 
 
 def assess(
-    frame: Rows, standard: ReliabilityStandard = DEFAULT_STANDARD, level: float = 0.95
+    frame: Rows, standard: ReliabilityStandard = DEFAULT_STANDARD, level: float = 0.95,
+    kg_interval: tuple[npt.NDArray[np.float64], npt.NDArray[np.float64]] | None = None,
 ) -> tuple[list[tuple[str, ...]], npt.NDArray[np.bool_]]:
     """Flag and suppress estimates under a reliability standard.
 
@@ -284,6 +294,9 @@ def assess(
     standard : the reliability standard (default: ``nchs-2017``).
     level : confidence level of the table's own intervals; accepted for the record, it does
         not change the outcome (see *frame*).
+    kg_interval : the table's own Korn-Graubard limits, when they are at ``standard.kg_level``
+        and were computed from these columns (see :func:`evaluate`): the same numbers, not
+        solved twice.
 
     Returns
     -------
@@ -298,7 +311,7 @@ def assess(
     >>> assess(f)
     ([('rse>30%',)], array([False]))
     """
-    fired = evaluate(frame, standard)
+    fired = evaluate(frame, standard, kg_interval)
     ids = list(fired)
     n_rows = _length(frame)
     matrix = np.column_stack([fired[r] for r in ids]) if n_rows else np.zeros((0, len(ids)))
