@@ -233,7 +233,7 @@ def _whole(col: DecodedColumn, lo: float) -> bool:
 
 def _code_sums(ctx: Context, col: DecodedColumn, lo: float, size: int
                ) -> tuple[npt.NDArray[np.bool_], Array] | None:
-    """One pass: the codes observed and the weights by (bucket, code), (nb, size + 1).
+    """One pass: the codes observed and the weights by (bucket, code), shape (nb, size).
 
     None when a code is not whole (then the column takes the general way).
     """
