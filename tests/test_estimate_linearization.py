@@ -12,6 +12,8 @@ from typing import Any
 import numpy as np
 import pandas as pd
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 from scipy import stats
 
 from wstats._column import Dataset
@@ -320,6 +322,25 @@ def test_order_check_sees_a_step_down_at_a_tile_boundary(tile: int,
         b[at] = b[at - 1] - 1
         assert not _ascending(b)
     assert _ascending(a[:0]) and _ascending(a[:1])
+
+
+@settings(max_examples=80, deadline=None)
+@given(rows=st.lists(st.tuples(st.integers(0, 5), st.integers(-1, 3), st.booleans()),
+                     min_size=1, max_size=60))
+def test_buckets_property_every_inside_row_in_the_bucket_of_its_key(
+        rows: list[tuple[int, int, bool]]) -> None:
+    # common practice, no source: rows share a bucket exactly when they share (PSU, cell);
+    # buckets are numbered in key order; rows outside the population domain are in none
+    from wstats._sums import _buckets
+
+    psu = np.array([p for p, _, _ in rows], dtype=np.int32)
+    cell = np.array([c for _, c, _ in rows])
+    inside = np.array([i for _, _, i in rows])
+    keys, bucket = _buckets(psu, cell, inside, 5, 6)
+    occupied = sorted({p * 5 + c + 1 for p, c, i in rows if i})
+    assert keys.tolist() == occupied
+    for (p, c, i), b in zip(rows, bucket.tolist(), strict=True):
+        assert b == (occupied.index(p * 5 + c + 1) if i else len(occupied))
 
 
 def test_bucket_keys_do_not_overflow_int32_psu_codes() -> None:
