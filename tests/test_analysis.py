@@ -155,8 +155,9 @@ def test_outputs_hold_what_the_library_computes(folder: Path) -> None:
     assert (folder / "m.tex").read_text().endswith("\n")
 
 
-def test_data_is_read_once_with_only_the_needed_columns(folder: Path,
-                                                        monkeypatch: pytest.MonkeyPatch) -> None:
+@pytest.fixture
+def read_calls(monkeypatch: pytest.MonkeyPatch) -> list[list[str]]:
+    """Record the columns asked of every ``wstats._load.read`` call (the read still happens)."""
     calls: list[list[str]] = []
     real = wstats._load.read
 
@@ -165,10 +166,15 @@ def test_data_is_read_once_with_only_the_needed_columns(folder: Path,
         return real(path, columns, **kw)
 
     monkeypatch.setattr(wstats._load, "read", spy)
+    return calls
+
+
+def test_data_is_read_once_with_only_the_needed_columns(folder: Path,
+                                                        read_calls: list[list[str]]) -> None:
     text = FULL.split("[[table]]")[0] + "[[plot]]\nkind = \"reasons\"\noutput = \"r.svg\"\n"
     run_analysis(_analysis(folder, text))
-    assert len(calls) == 1
-    assert sorted(calls[0]) == ["G", "P", "S", "W", "X", "Y"]
+    assert len(read_calls) == 1
+    assert sorted(read_calls[0]) == ["G", "P", "S", "W", "X", "Y"]
 
 
 @pytest.mark.parametrize(("text", "message"), [
@@ -325,24 +331,17 @@ def test_the_demo_analysis_file_runs(tmp_path: Path) -> None:
 
 
 def test_replicate_glob_is_matched_against_the_file(folder: Path,
-                                                    monkeypatch: pytest.MonkeyPatch) -> None:
+                                                    read_calls: list[list[str]]) -> None:
     # Stratum-deletion jackknife replicates built here (Wolter 2007, ch. 4, from memory):
     # the glob must read exactly RW1..RW4; a glob matching nothing names itself.
     frame = pd.read_csv(folder / "s.csv")
     for r in range(1, 5):
         frame[f"RW{r}"] = frame["W"] * np.where(frame["S"] == r, 0.0, 4 / 3)
     frame.to_csv(folder / "s.csv", index=False)
-    calls: list[list[str]] = []
-    real = wstats._load.read
-
-    def spy(path, columns=None, **kw):  # type: ignore[no-untyped-def]
-        calls.append(list(columns))
-        return real(path, columns, **kw)
-
-    monkeypatch.setattr(wstats._load, "read", spy)
     body = ('data = "s.csv"\n[design]\nweight = "W"\nreplicates = "{}"\n'
             'replicate_method = "jackknife"\n[[estimates]]\nvariables = ["X"]\noutput = "{}"\n')
     run_analysis(_analysis(folder, body.format("RW*", "e.json"), "r.toml"))
-    assert sorted(c for c in calls[0] if c.startswith("RW")) == ["RW1", "RW2", "RW3", "RW4"]
+    assert sorted(c for c in read_calls[0] if c.startswith("RW")) == ["RW1", "RW2", "RW3",
+                                                                       "RW4"]
     with pytest.raises(wstats.errors.DesignError, match=r"replicate glob 'QQ\*' matches no"):
         run_analysis(_analysis(folder, body.format("QQ*", "f.json"), "q.toml"))
