@@ -51,7 +51,8 @@ class Domains:
 
     Attributes
     ----------
-    inside : rows in the population domain (the ``where`` condition holds; all rows if none).
+    inside : rows in the population domain (the ``where`` condition holds; all rows if none:
+        then a read-only view of one ``True``, no memory per row).
     cell : crossed by-cell 0..C-1 of each row, -1 outside every cell (by value not valid,
         or outside the population domain).
     n_cells : number of crossed by-cells C (0 without ``by``).
