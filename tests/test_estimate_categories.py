@@ -241,3 +241,20 @@ def test_level_sums_agree_on_every_path(tile: int, monkeypatch: pytest.MonkeyPat
                                        one_pass[col].to_numpy(float), rtol=1e-12, atol=1e-15)
     empty = one_pass[one_pass.level.isin(["odd", "far"])]
     assert (empty.estimate == 0).all()
+
+
+@pytest.mark.parametrize("dense", [1 << 19, 0])
+def test_a_fractional_code_sends_the_column_to_level_indexes(
+        dense: int, monkeypatch: pytest.MonkeyPatch) -> None:
+    # common practice, no source: a value like 2.5 among whole codes is a level of its own;
+    # the tiled paths find it (in the last tile) and leave the column to the general way
+    from wstats import _batch, _column
+
+    monkeypatch.setattr(_column, "ROW_TILE", 4)
+    monkeypatch.setattr(_batch, "_DENSE", dense)
+    x = np.array([1.0, 2.0, 2.0, 3.0, 1.0, 2.0, 3.0, 3.0, 2.5, 1.0])
+    w = np.array([1.0, 2.0, 1.0, 1.0, 3.0, 1.0, 2.0, 1.0, 2.0, 1.0])
+    f = estimate(_ds(x=x, w=w), Design("w"), ["x"], categorical=["x"]).frame
+    assert f.level.tolist() == ["1", "2", "2.5", "3"]
+    # weighted shares by hand: weights 5, 4, 2, 4 of 15
+    assert f.estimate.tolist() == pytest.approx([5 / 15, 4 / 15, 2 / 15, 4 / 15], rel=1e-14)

@@ -187,13 +187,11 @@ def _levels(ctx: Context, col: DecodedColumn) -> tuple[list[Any], list[str], Arr
     """
     span = _span(col)
     if span is not None:
-        lo, hi = span
-        if (ctx.sums.n_buckets + 1) * (int(hi - lo) + 2) <= _DENSE:
-            found = _code_sums(ctx, col, lo, int(hi - lo) + 1)
-            if found is not None:
-                return _level_columns(col, lo, *found)
-        elif _whole(col, lo):
-            return _looked_up(ctx, col, lo, int(hi - lo) + 1)
+        lo, size = span[0], int(span[1] - span[0]) + 1
+        few = (ctx.sums.n_buckets + 1) * (size + 1) <= _DENSE
+        found = (_code_sums if few else _looked_up)(ctx, col, lo, size)
+        if found is not None:  # None: a code is not a whole number
+            return found
     return _indexed(ctx, col)
 
 
@@ -226,14 +224,9 @@ def _tile_codes(col: DecodedColumn, rows: slice, lo: float, size: int
     return shifted.astype(np.int64)
 
 
-def _whole(col: DecodedColumn, lo: float) -> bool:
-    """Return whether every tile's codes are whole numbers (see :func:`_tile_codes`)."""
-    return all(_tile_codes(col, tile, lo, 0) is not None for tile in row_tiles(len(col.values)))
-
-
 def _code_sums(ctx: Context, col: DecodedColumn, lo: float, size: int
-               ) -> tuple[npt.NDArray[np.bool_], Array] | None:
-    """One pass: the codes observed and the weights by (bucket, code), shape (nb, size).
+               ) -> tuple[list[Any], list[str], Array] | None:
+    """One pass: the codes observed and the weights by (bucket, code); then by level.
 
     None when a code is not whole (then the column takes the general way).
     """
@@ -248,7 +241,7 @@ def _code_sums(ctx: Context, col: DecodedColumn, lo: float, size: int
         seen[codes] = True
         key = bucket[tile].astype(np.int64) * width + codes
         by_code += np.bincount(key, weights=weights[tile], minlength=len(by_code))
-    return seen[:size], by_code.reshape(nb + 1, width)[:nb, :size]
+    return _level_columns(col, lo, seen[:size], by_code.reshape(nb + 1, width)[:nb, :size])
 
 
 def _level_columns(col: DecodedColumn, lo: float, seen: npt.NDArray[np.bool_],
@@ -266,13 +259,19 @@ def _level_columns(col: DecodedColumn, lo: float, seen: npt.NDArray[np.bool_],
 
 
 def _looked_up(ctx: Context, col: DecodedColumn, lo: float, size: int
-               ) -> tuple[list[Any], list[str], Array]:
-    """Two passes: the codes observed, then the weights by (bucket, level) via a table."""
+               ) -> tuple[list[Any], list[str], Array] | None:
+    """Two passes: the codes observed, then the weights by (bucket, level) via a table.
+
+    None when a code is not whole (found in the first pass).
+    """
     sums = ctx.sums
     nb = sums.n_buckets
     seen = np.zeros(size + 1, dtype=bool)  # slot `size`: rows without a valid value
     for tile in row_tiles(len(col.values)):  # loop over row tiles, not rows
-        seen[_codes_of(col.values[tile], lo, size)] = True
+        codes = _tile_codes(col, tile, lo, size)
+        if codes is None:
+            return None
+        seen[codes] = True
     observed = np.flatnonzero(seen[:size]) + lo
     values, labels = category_levels(col, observed)
     # every valid value is an observed whole number in [lo, lo + size) and one of the levels
@@ -284,7 +283,9 @@ def _looked_up(ctx: Context, col: DecodedColumn, lo: float, size: int
     by_key = np.zeros(nb * nl + nl + nb * nl + nl)  # slots past nb*nl: rows to discard
     for tile in row_tiles(len(col.values)):
         key = sums.bucket[tile].astype(np.int64) * nl
-        key += table[_codes_of(col.values[tile], lo, size)]
+        codes = _tile_codes(col, tile, lo, size)
+        assert codes is not None  # every tile passed in the first pass
+        key += table[codes]
         by_key += np.bincount(key, weights=ctx.design.weights[tile], minlength=len(by_key))
     return values, labels, by_key[: nb * nl].reshape(nb, nl)
 
@@ -300,13 +301,6 @@ def _indexed(ctx: Context, col: DecodedColumn) -> tuple[list[Any], list[str], Ar
     nl = len(values)
     out = np.bincount(key, weights=ctx.design.weights, minlength=nb * nl + 1)[: nb * nl]
     return values, labels, out.reshape(nb, nl).astype(np.float64, copy=False)
-
-
-def _codes_of(v: Array, lo: float, size: int) -> npt.NDArray[np.int64]:
-    """Return v - lo as integer codes, *size* where v is NaN (a row without a valid value)."""
-    shifted = v - lo
-    np.copyto(shifted, size, where=np.isnan(shifted))
-    return shifted.astype(np.int64)
 
 
 def _proportion(ctx: Context, name: str, ci: str) -> _Job:

@@ -233,10 +233,6 @@ class WeightedSums:
         cols = _columns(x)
         return self._rows.unweighted_parts(lambda rows: [c[rows] for c in cols], len(cols))
 
-    def counts(self, x: Array | Sequence[Array]) -> Array:
-        """Return unweighted sums of x by domain: shape (D, V) (x = a validity mask: counts)."""
-        return self.bucket_domains(self._bucket_counts(x))
-
     def pair_counts(self, x: Array) -> Array:
         """Return unweighted sums of x by (PSU, domain) pair: shape (pairs, V)."""
         return self.to_pairs(self._bucket_counts(x))
