@@ -2,8 +2,6 @@
 
 from __future__ import annotations
 
-from dataclasses import replace
-
 import numpy as np
 import pytest
 from hypothesis import given, settings
@@ -343,7 +341,7 @@ def test_labelled_strata_show_labels_in_messages() -> None:
     d = _singletons(1)
     st = d["st"]
     cols = dict(d.columns)
-    cols["st"] = replace(st, value_labels={0.0: "North", 1.0: "South"})
+    cols["st"] = st.replace(value_labels={0.0: "North", 1.0: "South"})
     d2 = Dataset(cols, d.vocabulary, d.n_rows, d.source)
     with pytest.raises(SingletonStratumError, match=r"\('North'\)"):
         Design("w", strata="st", psu="cl").bind(d2)

@@ -2,7 +2,6 @@
 
 from __future__ import annotations
 
-from dataclasses import replace
 from typing import Any
 
 import numpy as np
@@ -23,7 +22,7 @@ def _ds(**cols: Any) -> Dataset:
 
 def _with(ds: Dataset, name: str, **changes: Any) -> Dataset:
     cols = dict(ds.columns)
-    cols[name] = replace(cols[name], **changes)
+    cols[name] = cols[name].replace(**changes)
     return Dataset(cols, ds.vocabulary, ds.n_rows, ds.source)
 
 

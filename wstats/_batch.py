@@ -19,7 +19,6 @@ import numpy as np
 
 from wstats._column import row_tiles
 from wstats._intervals import effective_n
-from wstats._reasons import VALID
 from wstats._stats import (
     _SPAN,
     Context,
@@ -112,7 +111,7 @@ def _prepare(ctx: Context, job: tuple[str, str], ci: str) -> _Job:
 def _moments(ctx: Context, col: DecodedColumn, weighted_n: Array) -> _Moments:
     """Return n, weighted n, Kish deff_w, df and reason counts, from the non-valid rows."""
     sums = ctx.sums
-    counts, w2_bad = sums.invalid_counts(col.reasons, len(ctx.vocabulary))
+    counts, w2_bad = sums.invalid_counts(col, len(ctx.vocabulary))
     rows = sums.domain_rows
     n = rows[:, 0] - counts.sum(1)
     w2 = rows[:, 1] - w2_bad
@@ -120,7 +119,7 @@ def _moments(ctx: Context, col: DecodedColumn, weighted_n: Array) -> _Moments:
         kish = np.where(weighted_n > 0, n * w2 / (weighted_n * weighted_n), np.nan)
     df = np.full(len(n), ctx.design.df)
     if ctx.per_domain_df:
-        valid = (col.reasons == VALID).astype(np.float64)
+        valid = col.valid.astype(np.float64)
         df = domain_df(sums.pair_counts(valid), sums)[:, 0]
     return _Moments(n, weighted_n, kish, df, counts)
 
@@ -129,11 +128,12 @@ def _mean_or_total(ctx: Context, name: str, stat: str) -> _Job:
     """Queue the domain mean or total of *name* (Wald-t; intervals are added later)."""
     col = ctx.numeric(name, stat)
     sums = ctx.sums
-    values, reasons = col.values, col.reasons
+    values = col.values  # a number column: NaN exactly where not valid
 
     def parts(rows: Any) -> list[Any]:  # a tile of rows: the values (0 if not valid), validity
-        ok = reasons[rows] == VALID
-        return [np.where(ok, values[rows], 0.0), ok]
+        v = values[rows]
+        ok = ~np.isnan(v)
+        return [np.where(ok, v, 0.0), ok]
 
     buckets = sums.bucket_sums_of(parts, 2)
     pair = sums.to_pairs(buckets)
@@ -163,10 +163,11 @@ def _mean_or_total(ctx: Context, name: str, stat: str) -> _Job:
 def _weighted_s2(ctx: Context, col: DecodedColumn, centre: Array, m: _Moments) -> Array:
     """Return s^2 = n/(n-1) sum w (y - centre_d)^2 / sum w per domain (see :mod:`_stats`)."""
     c = centre[0] if np.isfinite(centre[0]) else 0.0
-    values, reasons = col.values, col.reasons
+    values = col.values  # a number column: NaN exactly where not valid
 
     def parts(rows: Any) -> list[Any]:  # a tile of rows: squared deviations of valid values
-        dev = np.where(reasons[rows] == VALID, values[rows] - c, 0.0)
+        dev = values[rows] - c
+        np.copyto(dev, 0.0, where=np.isnan(dev))
         np.multiply(dev, dev, out=dev)
         return [dev]
 
@@ -212,13 +213,11 @@ def _tile_codes(col: DecodedColumn, rows: slice, lo: float, size: int
                 ) -> npt.NDArray[np.int64] | None:
     """Return the codes v - lo of a tile (*size* where not valid), or None if one is not whole.
 
-    The tiled passes take NaN for "not valid", so a valid row holding NaN sends the column
-    the general way too.
+    A number column's value is NaN exactly where it is not valid.
     """
     shifted = col.values[rows] - lo
     blank = np.isnan(shifted)
-    if not bool(np.all((shifted == np.floor(shifted)) | blank)) or bool(
-            np.any(blank & (col.reasons[rows] == VALID))):
+    if not bool(np.all((shifted == np.floor(shifted)) | blank)):
         return None
     np.copyto(shifted, size, where=blank)
     return shifted.astype(np.int64)
@@ -293,7 +292,7 @@ def _looked_up(ctx: Context, col: DecodedColumn, lo: float, size: int
 def _indexed(ctx: Context, col: DecodedColumn) -> tuple[list[Any], list[str], Array]:
     """Any categories (text, fractions, wide spans): level indexes over the whole column."""
     nb = ctx.sums.n_buckets
-    valid = col.reasons == VALID
+    valid = col.valid
     values, labels = category_levels(col)
     index = level_index(col, values, valid)
     key = ctx.sums.bucket.astype(np.int64) * len(values) + index

@@ -137,10 +137,10 @@ def _count(a: npt.NDArray[Any], test: Callable[[npt.NDArray[Any]], npt.NDArray[n
 
 def _missing(col: DecodedColumn, rows: slice) -> npt.NDArray[np.bool_]:
     """Return the mask of *rows* of *col* without a value (a reason, or NaN)."""
-    bad: npt.NDArray[np.bool_] = col.reasons[rows] != VALID
-    if col.values.dtype.kind == "f":
-        bad |= np.isnan(col.values[rows])
-    return bad
+    if col.numeric:  # NaN exactly where not valid
+        nan: npt.NDArray[np.bool_] = np.isnan(col.values[rows])
+        return nan
+    return np.asarray(col.reasons[rows] != VALID)
 
 
 def _complete_rows(design: Design, cols: dict[str, DecodedColumn], n: int

@@ -12,7 +12,7 @@ from __future__ import annotations
 
 import fnmatch
 import re
-from collections.abc import Iterable, Mapping
+from collections.abc import Collection, Iterable, Mapping
 from dataclasses import dataclass, field
 from functools import cached_property
 from pathlib import Path
@@ -295,14 +295,16 @@ class Codebook:
             add(name)
         return list(out)
 
-    def decode(self, raw: RawTable, consume: bool = False) -> Dataset:
+    def decode(self, raw: RawTable, consume: bool = False,
+               keep: Collection[str] | None = None) -> Dataset:
         """Apply the codebook to raw columns; see :func:`decode`.
 
-        With *consume* the caller gives *raw* up: its numeric arrays are decoded in place.
+        With *consume* the caller gives *raw* up: its numeric arrays are decoded in place, and
+        a column not in *keep* (when given) may lend its memory to a derived variable.
         """
         from wstats._decode import decode_table
 
-        return decode_table(raw, self, consume)
+        return decode_table(raw, self, consume, keep)
 
 
 def _show(code: Any) -> str:

@@ -1,15 +1,16 @@
 """Decoded data: values plus a reason per row, and the Dataset that holds such columns.
 
-Invariants (checked in ``__post_init__``):
+Invariants (checked when a column is built):
 - ``values`` and ``reasons`` have the same length;
-- where ``reasons != VALID`` a numeric value is NaN (the value is not known);
+- a number value is NaN exactly where its reason is not ``valid`` (the value is not known),
+  so a number column keeps only the reasons of its NaN rows (no byte per row);
 - ``reasons`` is ``int8`` and every code is in the dataset's :class:`Reasons` vocabulary.
 """
 
 from __future__ import annotations
 
 from collections.abc import Iterator, Mapping
-from dataclasses import InitVar, dataclass, field
+from dataclasses import dataclass, field
 from typing import TYPE_CHECKING, Any
 
 import numpy as np
@@ -43,7 +44,6 @@ def code_type(n_codes: int) -> type[np.signedinteger[Any]]:
     return np.int32 if n_codes <= np.iinfo(np.int32).max else np.int64
 
 
-@dataclass(frozen=True, eq=False)
 class DecodedColumn:
     """One decoded variable.
 
@@ -51,55 +51,152 @@ class DecodedColumn:
     ----------
     name : variable name as in the file (or the codebook, for derived variables).
     values : float64 array (object array of str for ``kind == "text"``); NaN where not valid.
-    reasons : int8 array of reason codes, one per row (see :mod:`wstats._reasons`).
+    reasons : int8 array of reason codes, one per row (see :mod:`wstats._reasons`), made on
+        each access from :attr:`missing_codes` (a number column holds no byte per row for
+        its reasons: a value is NaN exactly where its reason is not ``valid``).
+    missing_codes : int8 reason codes of the rows that are not valid, in row order, for a
+        number column; for a text column, the reason of every row.
     vocabulary : the :class:`Reasons` that gives the codes their names.
     label : variable label, or None.
     kind : one of ``continuous``, ``count``, ``categorical``, ``binary``, ``text``.
     value_labels : value -> label for categorical/binary variables (may be empty).
     raw : the raw codes before decoding (float64 or object), kept for ``codebook check``.
-    check : (construction only) validate the arrays; False when they come from a column
-        already checked (e.g. moved to another vocabulary with the same names).
+
+    The constructor takes one reason per row; *check* False skips validating them (for
+    arrays that come from a column already checked). Columns are immutable: :meth:`replace`
+    returns a changed copy (the arrays are shared, not copied).
     """
 
+    __slots__ = ("name", "values", "missing_codes", "vocabulary", "label", "kind",
+                 "value_labels", "raw")
     name: str
     values: np.ndarray
-    reasons: np.ndarray
+    missing_codes: np.ndarray
     vocabulary: Reasons
-    label: str | None = None
-    kind: str = "continuous"
-    value_labels: dict[float, str] = field(default_factory=dict)
-    raw: np.ndarray | None = None
-    check: InitVar[bool] = True
+    label: str | None
+    kind: str
+    value_labels: dict[float, str]
+    raw: np.ndarray | None
 
-    def __post_init__(self, check: bool) -> None:
-        if not check:
-            return
-        if len(self.values) != len(self.reasons):
-            raise ValueError(f"{self.name}: values and reasons differ in length")
-        if self.reasons.dtype != np.int8:
-            raise ValueError(f"{self.name}: reasons must be int8")
-        if self.kind not in KINDS:
-            raise ValueError(f"{self.name}: unknown kind {self.kind!r}")
-        if len(self.reasons) and int(self.reasons.max(initial=0)) >= len(self.vocabulary):
-            raise ValueError(f"{self.name}: reason code outside the vocabulary")
-        if self.values.dtype.kind == "f":
-            bad = (self.reasons != VALID) & ~np.isnan(self.values)
-            if bad.any():
-                raise ValueError(f"{self.name}: a non-valid row holds a value")
+    def __init__(self, name: str, values: np.ndarray, reasons: np.ndarray, vocabulary: Reasons,
+                 label: str | None = None, kind: str = "continuous",
+                 value_labels: dict[float, str] | None = None, raw: np.ndarray | None = None,
+                 check: bool = True) -> None:
+        if check:
+            _check(name, values, reasons, vocabulary, kind)
+        codes = reasons[np.isnan(values)] if values.dtype.kind == "f" else reasons
+        self._set(name, values, codes, vocabulary, label, kind, value_labels or {}, raw)
+
+    def _set(self, *fields: Any) -> None:
+        for slot, value in zip(self.__slots__, fields, strict=True):
+            object.__setattr__(self, slot, value)
+
+    @classmethod
+    def of_codes(cls, name: str, values: np.ndarray, missing_codes: np.ndarray,
+                 vocabulary: Reasons, label: str | None = None, kind: str = "continuous",
+                 value_labels: dict[float, str] | None = None,
+                 raw: np.ndarray | None = None) -> DecodedColumn:
+        """Build a column from the reason codes of its not-valid rows (not checked)."""
+        col = cls.__new__(cls)
+        col._set(name, values, missing_codes, vocabulary, label, kind, value_labels or {}, raw)
+        return col
+
+    def __setattr__(self, name: str, value: Any) -> None:
+        raise AttributeError(f"DecodedColumn is immutable: use replace({name}=...)")
+
+    def __repr__(self) -> str:
+        return (f"DecodedColumn(name={self.name!r}, kind={self.kind!r}, rows={len(self)}, "
+                f"not_valid={self.n_missing})")
+
+    def replace(self, **changes: Any) -> DecodedColumn:
+        """Return a copy with the given attributes changed (``reasons`` = one code per row).
+
+        New ``values`` of a number column need new ``reasons`` too, unless their NaN rows are
+        the old ones.
+        """
+        fields = {s: getattr(self, s) for s in self.__slots__}
+        reasons = changes.pop("reasons", None)
+        unknown = set(changes) - set(fields) - {"missing_codes"}
+        if unknown:
+            raise TypeError(f"DecodedColumn has no attribute {sorted(unknown)[0]!r}")
+        fields.update(changes)
+        if reasons is not None:
+            values = fields["values"]
+            fields["missing_codes"] = (reasons[np.isnan(values)] if values.dtype.kind == "f"
+                                       else reasons)
+        col = DecodedColumn.__new__(DecodedColumn)
+        col._set(*(fields[s] for s in self.__slots__))
+        return col
 
     def __len__(self) -> int:
         return len(self.values)
 
     @property
+    def numeric(self) -> bool:
+        """True for a number column (float values, NaN exactly where not valid)."""
+        return bool(self.values.dtype.kind == "f")
+
+    @property
+    def n_missing(self) -> int:
+        """Number of rows that are not valid."""
+        if self.numeric:
+            return len(self.missing_codes)
+        return int(np.count_nonzero(self.missing_codes))
+
+    @property
+    def reasons(self) -> np.ndarray:
+        """One int8 reason code per row (made on each access for a number column)."""
+        if not self.numeric:
+            return self.missing_codes
+        out = np.zeros(len(self.values), dtype=np.int8)
+        if len(self.missing_codes):
+            out[np.isnan(self.values)] = self.missing_codes
+        return out
+
+    @property
     def valid(self) -> np.ndarray:
         """Boolean mask of rows whose reason is ``valid``."""
-        mask: np.ndarray = self.reasons == VALID
+        mask: np.ndarray = (~np.isnan(self.values) if self.numeric
+                            else self.missing_codes == VALID)
         return mask
 
     def reason_counts(self) -> dict[str, int]:
         """Return unweighted row counts per reason name (every vocabulary reason, zeros kept)."""
-        counts = np.bincount(self.reasons, minlength=len(self.vocabulary))
+        counts = np.bincount(self.missing_codes, minlength=len(self.vocabulary))
+        if self.numeric:
+            counts[VALID] += len(self) - len(self.missing_codes)
         return {name: int(counts[i]) for i, name in enumerate(self.vocabulary.names)}
+
+    def not_valid_rows(self) -> Iterator[tuple[np.ndarray, np.ndarray]]:
+        """Yield (row numbers, their reason codes) of the rows that are not valid, tile by tile.
+
+        Temporaries are a tile's; no array as long as the column is made.
+        """
+        start = 0
+        for rows in row_tiles(len(self)):
+            if self.numeric:
+                found = np.flatnonzero(np.isnan(self.values[rows]))
+                stop = start + len(found)
+                codes, start = self.missing_codes[start:stop], stop
+            else:
+                found = np.flatnonzero(self.missing_codes[rows])
+                codes = self.missing_codes[rows][found]
+            yield found + rows.start, codes
+
+    def tiles(self) -> Iterator[tuple[slice, DecodedColumn]]:
+        """Yield (rows, the column on those rows) for consecutive :data:`ROW_TILE` tiles.
+
+        The tiles share the column's values; ``raw`` is not carried.
+        """
+        start = 0  # where the tile's codes begin among the missing codes
+        for rows in row_tiles(len(self)):
+            values = self.values[rows]
+            if self.numeric:
+                stop = start + int(np.count_nonzero(np.isnan(values)))
+                codes, start = self.missing_codes[start:stop], stop
+            else:
+                codes = self.missing_codes[rows]
+            yield rows, self.replace(values=values, missing_codes=codes, raw=None)
 
     def to_pandas(self) -> pd.DataFrame:
         """Return a two-column frame: ``<name>`` values and ``<name>_reason`` (categorical)."""
@@ -109,6 +206,25 @@ class DecodedColumn:
             self.reasons.astype(np.int64), categories=pd.Index(list(self.vocabulary.names))
         )
         return pd.DataFrame({self.name: self.values, f"{self.name}_reason": reason})
+
+
+def _check(name: str, values: np.ndarray, reasons: np.ndarray, vocabulary: Reasons,
+           kind: str) -> None:
+    """Validate a column's arrays (see the module's invariants); ValueError if broken."""
+    if len(values) != len(reasons):
+        raise ValueError(f"{name}: values and reasons differ in length")
+    if reasons.dtype != np.int8:
+        raise ValueError(f"{name}: reasons must be int8")
+    if kind not in KINDS:
+        raise ValueError(f"{name}: unknown kind {kind!r}")
+    if len(reasons) and int(reasons.max(initial=0)) >= len(vocabulary):
+        raise ValueError(f"{name}: reason code outside the vocabulary")
+    if values.dtype.kind == "f":
+        blank = np.isnan(values)
+        if np.any((reasons != VALID) & ~blank):
+            raise ValueError(f"{name}: a non-valid row holds a value")
+        if np.any(blank & (reasons == VALID)):
+            raise ValueError(f"{name}: a valid row holds NaN; give it a reason")
 
 
 @dataclass(frozen=True, eq=False)

@@ -17,7 +17,7 @@ from __future__ import annotations
 import os
 import re
 from concurrent.futures import ThreadPoolExecutor
-from dataclasses import dataclass, replace
+from dataclasses import dataclass
 from typing import TYPE_CHECKING, Any
 
 import numpy as np
@@ -27,6 +27,8 @@ from wstats._reasons import INVALID, VALID, Reasons
 from wstats.errors import CodebookError, ExpressionError, did_you_mean
 
 if TYPE_CHECKING:
+    from collections.abc import Collection
+
     from wstats._codebook import Codebook, CodeMap, Rule, UnitPrefix, VariableSpec
     from wstats._expr import Expression
     from wstats._readers._types import RawColumn, RawTable
@@ -397,9 +399,15 @@ def decode_column(col: RawColumn, cb: Codebook, vocab: Reasons,
 
 
 def add_derived(cols: dict[str, DecodedColumn], raw: RawTable, cb: Codebook,
-                 vocab: Reasons) -> None:
-    """Evaluate derived variables whose inputs were read, in dependency order."""
-    for name, spec in cb.derived.items():
+                 vocab: Reasons, spare: frozenset[str] = frozenset()) -> None:
+    """Evaluate derived variables whose inputs were read, in dependency order.
+
+    *spare* names columns of *cols* the caller will not use: a derived variable writes its
+    values into the memory of one of its spare number inputs that no later derived variable
+    reads (that input leaves *cols*), so making it costs no array as long as the file.
+    """
+    specs = list(cb.derived.items())
+    for at, (name, spec) in enumerate(specs):
         expr = spec.expression
         if name in raw.file_columns:
             raise CodebookError(f"{expr.where}: derived variable {name} has the name of a "
@@ -410,28 +418,44 @@ def add_derived(cols: dict[str, DecodedColumn], raw: RawTable, cb: Codebook,
             raise unknown_input(expr, unknown[0], raw.path, [*raw.file_columns, *cb.derived])
         if absent:
             continue  # an input was not read: the caller did not ask for this variable
-        values, reasons = _evaluate_in_tiles(expr, cols, vocab, raw.n_rows)
         kind = spec.kind or ("binary" if expr.boolean else "continuous")
-        cols[name] = DecodedColumn(name, values, reasons, vocab, spec.label, kind,
-                                   dict(spec.labels or {}))
+        later = {i for _, s in specs[at + 1:] for i in s.expression.inputs}
+        donor = next((i for i in sorted(expr.inputs & spare - later) if _writable(cols[i])), None)
+        out = None if donor is None else cols[donor].values
+        values, codes = _evaluate_in_tiles(expr, cols, vocab, raw.n_rows, kind, out)
+        if donor is not None:
+            del cols[donor]  # its memory now holds the derived values
+        cols[name] = DecodedColumn.of_codes(name, values, codes, vocab, spec.label, kind,
+                                            dict(spec.labels or {}))
+
+
+def _writable(col: DecodedColumn) -> bool:
+    """Tell whether *col*'s values may take a derived variable's (float64, writable)."""
+    return bool(col.values.dtype == np.float64 and col.values.flags.writeable)
 
 
 def _evaluate_in_tiles(expr: Expression, cols: dict[str, DecodedColumn], vocab: Reasons,
-                       n_rows: int) -> tuple[np.ndarray, np.ndarray]:
-    """Evaluate a derived variable tile by tile (every operation of the language is per row).
+                       n_rows: int, kind: str, out: np.ndarray | None = None
+                       ) -> tuple[np.ndarray, np.ndarray]:
+    """Evaluate a derived variable tile by tile; return its values and not-valid codes.
 
-    The intermediate arrays of the expression are then the size of a tile, not of the file.
+    Every operation of the language is per row, so the intermediate arrays are the size of a
+    tile, not of the file. The values go into *out* when given (an input's memory: each tile
+    of it is read before it is written). Each tile is checked as a column.
     """
-    tiles = row_tiles(n_rows)
-    if len(tiles) <= 1 or not expr.inputs:
-        return expr.evaluate(cols, vocab, n_rows)
-    values, reasons = np.empty(n_rows), np.empty(n_rows, dtype=np.int8)
-    for tile in tiles:  # loop over row tiles, not rows
-        part = {name: replace(cols[name], values=cols[name].values[tile],  # checked already
-                              reasons=cols[name].reasons[tile], raw=None, check=False)
-                for name in expr.inputs}
-        values[tile], reasons[tile] = expr.evaluate(part, vocab, tile.stop - tile.start)
-    return values, reasons
+    names = sorted(expr.inputs)
+    if not names:
+        values, reasons = expr.evaluate(cols, vocab, n_rows)
+        return values, DecodedColumn(expr.text, values, reasons, vocab, kind=kind).missing_codes
+    values = np.empty(n_rows) if out is None else out
+    codes: list[np.ndarray] = []
+    for parts in zip(*(cols[i].tiles() for i in names), strict=True):  # row tiles, not rows
+        tile = parts[0][0]
+        part = {i: col for i, (_, col) in zip(names, parts, strict=True)}
+        v, r = expr.evaluate(part, vocab, tile.stop - tile.start)
+        codes.append(DecodedColumn(expr.text, v, r, vocab, kind=kind).missing_codes)
+        values[tile] = v
+    return values, np.concatenate(codes) if codes else np.zeros(0, np.int8)
 
 
 def unknown_input(expr: Expression, name: str, path: str,
@@ -446,8 +470,8 @@ def _adopt(col: DecodedColumn, vocab: Reasons) -> DecodedColumn:
     """Return *col* on the shared vocabulary, registering its new reasons there in order."""
     codes = np.array([vocab.add(name) for name in col.vocabulary.names], dtype=np.int8)
     if np.array_equal(codes, np.arange(len(codes))):  # same codes: only the vocabulary changes
-        return replace(col, vocabulary=vocab, check=False)
-    return replace(col, reasons=codes[col.reasons], vocabulary=vocab, check=False)
+        return col.replace(vocabulary=vocab)
+    return col.replace(missing_codes=codes[col.missing_codes], vocabulary=vocab)
 
 
 def new_vocabulary(cb: Codebook) -> Reasons:
@@ -455,11 +479,14 @@ def new_vocabulary(cb: Codebook) -> Reasons:
     return Reasons(list(cb.reasons))
 
 
-def decode_table(raw: RawTable, cb: Codebook, consume: bool = False) -> Dataset:
+def decode_table(raw: RawTable, cb: Codebook, consume: bool = False,
+                 keep: Collection[str] | None = None) -> Dataset:
     """Decode every column of *raw*, then the derived variables (see module docstring).
 
     With *consume* the caller gives up *raw*: numeric columns are decoded in place, so the
     dataset needs little memory beyond the raw columns (their ``raw`` codes are then not kept).
+    *keep* (with *consume*) names the variables the caller wants: another column, read only as
+    a derived variable's input, may lend the derived variable its memory and be left out.
     """
     vocab = new_vocabulary(cb)
     names = list(raw.columns)
@@ -476,7 +503,8 @@ def decode_table(raw: RawTable, cb: Codebook, consume: bool = False) -> Dataset:
     # reasons met while decoding join the shared vocabulary in column order, as if decoded
     # one after another (the order matters: it ranks the extra reasons' precedence)
     cols = {name: _adopt(col, vocab) for name, col in zip(names, decoded, strict=True)}
-    add_derived(cols, raw, cb, vocab)
+    spare = frozenset(cols) - frozenset(keep) if consume and keep is not None else frozenset()
+    add_derived(cols, raw, cb, vocab, spare)
     meta: dict[str, Any] = {"format": raw.format, "reader": raw.reader,
                             "file_label": raw.file_label, "codebook": cb.source,
                             "file_columns": list(raw.file_columns),

@@ -244,10 +244,8 @@ class BoundDesign:
         """Return *col* restricted to the rows used (itself when no row was dropped)."""
         if self.rows is None:
             return col
-        from dataclasses import replace
-
         raw = None if col.raw is None else col.raw[self.rows]
-        return replace(col, values=col.values[self.rows], reasons=col.reasons[self.rows], raw=raw)
+        return col.replace(values=col.values[self.rows], reasons=col.reasons[self.rows], raw=raw)
 
     def summary(self) -> dict[str, Any]:
         """Return a JSON-ready description of the design as used."""

@@ -175,7 +175,7 @@ def _is_categorical(col: DecodedColumn, forced: set[str]) -> bool:
         return True
     if not col.value_labels or col.values.dtype.kind != "f":
         return False
-    seen = distinct_values(col.values[col.reasons == VALID])
+    seen = distinct_values(col.values[col.valid])
     return bool(len(seen)) and all(float(v) in col.value_labels for v in seen)
 
 
@@ -238,7 +238,7 @@ def _domains(data: Dataset, bound: BoundDesign, by: list[str], where: str | None
         lv, labels = category_levels(col)
         display = [lab if v in col.value_labels else _plain(v)
                    for v, lab in zip(lv, labels, strict=True)]
-        codes.append(level_index(col, lv, col.reasons == VALID))
+        codes.append(level_index(col, lv, col.valid))
         levels.append((lv, display))
     sizes = [len(v) for v, _ in levels]
     if int(np.prod(sizes)) > MAX_CELLS:

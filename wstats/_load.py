@@ -56,7 +56,8 @@ def read(
     if cb is not None and needed is not None:
         _check_derived_inputs(cb, needed, str(path))
     raw = read_raw(str(path), needed, rows, progress, encoding=encoding)
-    data = (cb or Codebook()).decode(raw, consume=True)  # raw is ours: decode in place
+    # raw is ours: decode in place; inputs nobody asked for may hold derived values
+    data = (cb or Codebook()).decode(raw, consume=True, keep=wanted)
     if wanted is None:
         return data
     for name in wanted:

@@ -120,7 +120,7 @@ class _Moments:
     reasons: Index
 
 
-def _moments(ctx: Context, valid: npt.NDArray[np.bool_], reasons: npt.NDArray[np.int8]) -> _Moments:
+def _moments(ctx: Context, valid: npt.NDArray[np.bool_], col: DecodedColumn) -> _Moments:
     """Return n, weighted n, Kish deff_w, df and reason counts per domain."""
     c = ctx.sums.valid_counts(valid)
     n, wn, w2 = c[:, 0], c[:, 1], c[:, 2]
@@ -129,7 +129,7 @@ def _moments(ctx: Context, valid: npt.NDArray[np.bool_], reasons: npt.NDArray[np
     df = np.full(len(n), ctx.design.df)
     if ctx.per_domain_df and not ctx.design.uses_replicates:
         df = domain_df(ctx.sums.pair_counts(valid.astype(np.float64)), ctx.sums)[:, 0]
-    counts = ctx.sums.reason_counts(reasons, len(ctx.vocabulary))
+    counts = ctx.sums.reason_counts(col, len(ctx.vocabulary))
     return _Moments(n, wn, kish, df, counts)
 
 
@@ -170,8 +170,8 @@ def _prepare(ctx: Context, variable: str, stat: str
              ) -> tuple[npt.NDArray[np.bool_], Array, _Moments]:
     """Return the validity mask, the values (0 where not valid) and the domain moments."""
     col = ctx.numeric(variable, stat)
-    valid = col.reasons == VALID
-    return valid, np.where(valid, col.values, 0.0), _moments(ctx, valid, col.reasons)
+    valid = col.valid
+    return valid, np.where(valid, col.values, 0.0), _moments(ctx, valid, col)
 
 
 @dataclass(frozen=True)
@@ -218,7 +218,7 @@ class Ratio:
         both = reasons == VALID
         y, x = np.where(both, cy.values, 0.0), np.where(both, cx.values, 0.0)
         est, var, den = ratio_estimate(ctx.sums, y, x)
-        m = _moments(ctx, both, reasons)
+        m = _moments(ctx, both, cy.replace(values=np.where(both, 0.0, np.nan), reasons=reasons))
         # e = y - R_d x needs the domain's own R: population rows and cell rows separately
         r_cell = est[ctx.sums.domains.cell + 1, 0]
         zero = np.zeros(len(est))
@@ -249,12 +249,12 @@ class Proportion:
     def __call__(self, ctx: Context, variable: str) -> Piece:
         """Return, per domain, the proportion of each level of *variable*."""
         col = ctx.columns[variable]
-        valid = col.reasons == VALID
+        valid = col.valid
         values, labels = category_levels(col)
         index = level_index(col, values, valid)
         ind = (index[:, None] == np.arange(len(values))[None, :]).astype(np.float64)
         est, var, _ = ratio_estimate(ctx.sums, ind, valid)
-        m = _moments(ctx, valid, col.reasons)
+        m = _moments(ctx, valid, col)
         nd, nl = est.shape
         p, n = est.ravel(), _per_level(m.n, nl)
         empty = n == 0
@@ -291,9 +291,9 @@ class Quantile:
     def __call__(self, ctx: Context, variable: str) -> Piece:
         """Return the domain quantiles of *variable* with Woodruff intervals."""
         col = ctx.numeric(variable, "quantile")
-        valid = col.reasons == VALID
+        valid = col.valid
         y, w, doms = np.where(valid, col.values, np.nan), ctx.design.weights, ctx.sums.domains
-        m = _moments(ctx, valid, col.reasons)
+        m = _moments(ctx, valid, col)
         nd = doms.n_domains
         q = domain_quantiles(y, w, doms, valid, np.full((nd, 1), float(self.p)))[:, 0]
         below_cell = valid & (y <= q[doms.cell + 1])
@@ -352,11 +352,11 @@ def category_levels(col: DecodedColumn, observed: npt.NDArray[Any] | None = None
     of a numeric column when the caller has them already.
     """
     if col.values.dtype.kind != "f":
-        seen = np.unique(col.values[col.reasons == VALID].astype(str)).tolist()
+        seen = np.unique(col.values[col.valid].astype(str)).tolist()
         return list(seen), [str(s) for s in seen]
     labelled = list(col.value_labels)
     if observed is None:
-        observed = distinct_values(col.values[col.reasons == VALID])
+        observed = distinct_values(col.values[col.valid])
     extra = [float(v) for v in observed if v not in col.value_labels]
     values = [*labelled, *extra]
     if len(values) > MAX_LEVELS:

@@ -29,6 +29,7 @@ if TYPE_CHECKING:
     import numpy.typing as npt
     from scipy import sparse
 
+    from wstats._column import DecodedColumn
     from wstats._design import BoundDesign
 
     Array = npt.NDArray[np.float64]
@@ -189,22 +190,18 @@ class WeightedSums:
 
         return self.bucket_domains(self._rows.unweighted_parts(parts, 3))
 
-    def invalid_counts(self, reasons: npt.NDArray[np.int8], n_reasons: int,
-                       valid: Bool | None = None) -> tuple[Index, Array]:
+    def invalid_counts(self, col: DecodedColumn, n_reasons: int) -> tuple[Index, Array]:
         """Return counts per domain and reason code, and sums of w^2, of the non-valid rows.
 
-        Costs one pass over *reasons* (or the *valid* mask, when given) plus work on the
-        non-valid rows only: the valid rows' counts are the domain's rows minus these (see
-        :meth:`domain_rows`).
+        Costs one pass over the column plus work on the non-valid rows only: the valid rows'
+        counts are the domain's rows minus these (see :meth:`domain_rows`).
         """
         nb = self.n_buckets
         cnt = np.zeros((nb + 1) * n_reasons, dtype=np.int64)
         w2 = np.zeros(nb + 1)
-        for tile in row_tiles(len(reasons)):  # row tiles: bounded temporaries
-            rows = (np.flatnonzero(reasons[tile] if valid is None else ~valid[tile])
-                    + tile.start)
+        for rows, codes in col.not_valid_rows():  # row tiles: bounded temporaries
             b = self.bucket[rows].astype(np.int64)
-            key = b * n_reasons + reasons[rows].astype(np.int64)
+            key = b * n_reasons + codes.astype(np.int64)
             cnt += np.bincount(key, minlength=len(cnt))
             w = self.design.weights[rows]
             w2 += np.bincount(b, weights=w * w, minlength=nb + 1)
@@ -267,12 +264,12 @@ class WeightedSums:
             out[:, :, v] = np.asarray(self._ind @ (rep * x2[:, v : v + 1])).T
         return out
 
-    def reason_counts(self, reasons: npt.NDArray[np.int8], n_reasons: int) -> Index:
+    def reason_counts(self, col: DecodedColumn, n_reasons: int) -> Index:
         """Return row counts per non-valid reason code by domain: shape (D, n_reasons).
 
         The ``valid`` column (code 0) is left at 0: only the rows that are not valid are read.
         """
-        return self.invalid_counts(reasons, n_reasons)[0]
+        return self.invalid_counts(col, n_reasons)[0]
 
 
 def _buckets(psu: Codes, cell: Index, inside: Bool, nd: int, n_psu: int
