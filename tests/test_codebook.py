@@ -552,3 +552,31 @@ def test_read_names_the_derived_variable_whose_input_is_absent(tmp_path: Path) -
     with pytest.raises(ExpressionError, match=r"line 1, \[derived.BMI\]: expression .* reads "
                                               r"'HEIGHT', which is neither a column of"):
         read(data, columns=["BMI"], codebook=book)
+
+
+def test_derived_variable_takes_the_memory_of_an_input_nobody_wants() -> None:
+    # common practice, no source: a derived variable may be written over an input that is
+    # neither wanted nor read by a later derived variable; values and reasons are as if not
+    from wstats._decode import decode_table
+
+    def raw() -> RawTable:
+        return table(num("KG", [70, 777, 70, 999, 80]), num("CM", [175, 180, 999, 777, 0]),
+                     num("AGE", [30, 40, 50, 60, 70]))
+    book = cb({"variables": {"KG": {"codes": {"777": "dont_know", "999": "refused"}},
+                             "CM": {"codes": {"777": "dont_know", "999": "refused"}}},
+               "derived": {"BMI": {"expr": "KG / (CM / 100) ^ 2"},
+                           "KG_AGE": {"expr": "KG / AGE"}}})
+    plain = decode_table(raw(), book)
+    source = raw()
+    cm = source.columns["CM"].data
+    lent = decode_table(source, book, consume=True, keep=["BMI", "AGE"])
+    # KG is read again by KG_AGE, so CM lends its memory to BMI; KG then lends to KG_AGE
+    assert "CM" not in lent and "KG" not in lent
+    assert lent["BMI"].values is cm
+    for name in ("BMI", "KG_AGE", "AGE"):
+        np.testing.assert_array_equal(lent[name].values, plain[name].values)
+        assert reasons_of(lent, name) == reasons_of(plain, name)
+    # a wanted input is never written over
+    kept = decode_table(raw(), book, consume=True, keep=["BMI", "KG", "CM"])
+    np.testing.assert_array_equal(kept["CM"].values, plain["CM"].values)
+    np.testing.assert_array_equal(kept["KG"].values, plain["KG"].values)

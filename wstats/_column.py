@@ -259,6 +259,9 @@ class Dataset(Mapping[str, DecodedColumn]):
             hint = did_you_mean(name, self.columns)
             raise ColumnError(f"variable '{name}' is not{where}{hint}") from None
 
+    def __contains__(self, name: object) -> bool:
+        return name in self.columns  # (Mapping's own would meet ColumnError, not KeyError)
+
     def __iter__(self) -> Iterator[str]:
         return iter(self.columns)
 
