@@ -455,6 +455,7 @@ def _evaluate_in_tiles(expr: Expression, cols: dict[str, DecodedColumn], vocab: 
         v, r = expr.evaluate(part, vocab, tile.stop - tile.start)
         codes.append(DecodedColumn(expr.text, v, r, vocab, kind=kind).missing_codes)
         values[tile] = v
+        del v, r  # let the tile's arrays go before the next tile's are made
     return values, np.concatenate(codes) if codes else np.zeros(0, np.int8)
 
 
