@@ -115,3 +115,20 @@ def test_estimate_holds_only_named_columns_not_derived_inputs(
     assert code == 0
     assert seen["columns"] == ["SLEEP_MIN", "AGE", "WT", "STRAT", "PSU"]  # not SLEEP
     assert '"SLEEP_MIN"' in capsys.readouterr().out
+
+
+def test_worker_threads_share_one_malloc_arena_on_glibc(monkeypatch: pytest.MonkeyPatch) -> None:
+    # glibc's mallopt(M_ARENA_MAX = -8, 1) returns 1 when taken (malloc.h, from memory)
+    import ctypes
+    import platform
+
+    from wstats import cli
+
+    if platform.libc_ver()[0] == "glibc":
+        assert cli._one_malloc_arena() is True
+
+    def no_libc(name: str) -> None:
+        raise OSError(name)
+
+    monkeypatch.setattr(ctypes, "CDLL", no_libc)
+    assert cli._one_malloc_arena() is False  # another C library: left alone, no error

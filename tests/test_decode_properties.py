@@ -110,3 +110,32 @@ def test_decode_is_invariant_to_row_order(c: tuple[dict[str, Any], RawTable],
     for name in a:
         np.testing.assert_array_equal(a[name].reasons[order], b[name].reasons)
         np.testing.assert_array_equal(a[name].values[order], b[name].values)
+
+
+@settings(max_examples=80, deadline=None)
+@given(case(), st.integers(1, 7))
+def test_decode_in_row_tiles_equals_one_pass(c: tuple[dict[str, Any], RawTable],
+                                             tile: int) -> None:
+    # number columns are decoded tile by tile; whatever tile meets a new reason first, the
+    # vocabulary takes new reasons in the order one pass over the column meets them
+    import pytest
+
+    from wstats import _column
+    from wstats._decode import decode_column
+
+    book, raw = c
+    book_obj = Codebook.from_dict(book)
+    whole = decode(raw, book_obj)
+    whole_ruled = {n: decode_column(col, book_obj, whole.vocabulary).ruled
+                   for n, col in raw.columns.items()}
+    with pytest.MonkeyPatch.context() as mp:
+        mp.setattr(_column, "ROW_TILE", tile)
+        tiled = decode(raw, book_obj)
+        tiled_ruled = {n: decode_column(col, book_obj, tiled.vocabulary).ruled
+                       for n, col in raw.columns.items()}
+    assert tiled.vocabulary.names == whole.vocabulary.names
+    for name in whole:
+        np.testing.assert_array_equal(tiled[name].values, whole[name].values)
+        np.testing.assert_array_equal(tiled[name].reasons, whole[name].reasons)
+    for name, ruled in whole_ruled.items():
+        np.testing.assert_array_equal(tiled_ruled[name], ruled)

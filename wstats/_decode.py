@@ -23,13 +23,14 @@ from typing import TYPE_CHECKING, Any
 import numpy as np
 
 from wstats._column import Dataset, DecodedColumn, row_tiles
-from wstats._reasons import INVALID, VALID, Reasons
+from wstats._decode_tiles import Decoded, NumberPlan, run_plan
+from wstats._reasons import VALID, Reasons
 from wstats.errors import CodebookError, ExpressionError, did_you_mean
 
 if TYPE_CHECKING:
     from collections.abc import Collection
 
-    from wstats._codebook import Codebook, CodeMap, Rule, UnitPrefix, VariableSpec
+    from wstats._codebook import Codebook, CodeMap, Rule, VariableSpec
     from wstats._expr import Expression
     from wstats._readers._types import RawColumn, RawTable
 
@@ -45,8 +46,6 @@ __all__ = [
     "unknown_input",
 ]
 
-# Longer code tables are looked up with one sorted search instead of one compare per code.
-_MANY_CODES = 24
 # Label wording -> core reason. A label matching exactly one of these names the reason; a
 # label matching several ("Don't know/Refused") or none keeps a reason of its own.
 LABEL_PATTERNS: dict[str, re.Pattern[str]] = {
@@ -65,7 +64,7 @@ class ColumnResult:
     """A decoded column plus which rows a rule (code, tag, declaration, blank) explained."""
 
     column: DecodedColumn
-    ruled: np.ndarray
+    ruled: np.ndarray | None  # None when not asked for
 
 
 def _code_name(value: float) -> str:
@@ -113,166 +112,66 @@ def declared_codes(col: RawColumn) -> tuple[dict[float, Rule], list[tuple[float,
     return singles, ranges
 
 
-class _Work:
-    """Mutable per-column state while the steps run.
+@dataclass
+class _TextWork:
+    """Per-column state while a text column's rules run."""
 
-    Rules are applied to row numbers (the rows a code hits are usually few), and the values
-    are copied from the raw codes only when a step changes one (``inplace``: the raw array
-    itself is written, for callers that own it). Blank and infinite rows are found before any
-    value changes, so an in-place write never looks like a blank.
-    """
-
-    def __init__(self, x: np.ndarray, vocab: Reasons, inplace: bool = False) -> None:
-        self.x, self.vocab = x, vocab
-        self.values = x
-        self.owned = inplace
-        self.changed = False  # a value was written (in place: the raw codes are gone)
-        self.reasons = np.zeros(len(x), dtype=np.int8)
-        self.ruled = np.zeros(len(x), dtype=bool)
-
-    def writable(self) -> np.ndarray:
-        """Return the values, copied from the raw codes on the first change."""
-        if not self.owned:
-            self.values = self.x.copy()
-            self.owned = True
-        self.changed = True
-        return self.values
-
-    def apply(self, rule: Rule, mask: np.ndarray, nan_already: bool = False) -> None:
-        """Give the rows in *mask* (a boolean mask or row numbers) the meaning of *rule*."""
-        rows = np.flatnonzero(mask) if mask.dtype == np.bool_ else mask
-        if not len(rows):
-            return
-        if rule.reason is not None:
-            self.reasons[rows] = self.vocab.add(rule.reason)
-            if not nan_already:
-                self.writable()[rows] = np.nan
-        else:
-            self.reasons[rows] = VALID
-            self.writable()[rows] = np.nan if rule.value is None else rule.value
-        self.ruled[rows] = True
-
-    def undecided(self, rows: np.ndarray) -> np.ndarray:
-        """Return the row numbers among *rows* that no earlier step decided."""
-        kept: np.ndarray = rows[~self.ruled[rows]]
-        return kept
-
-    def lookup(self, table: dict[float, Rule]) -> None:
-        """Apply a code table to undecided rows: one compare per code (tables are short)."""
-        if len(table) > _MANY_CODES:
-            self.lookup_many(table)
-            return
-        for code in sorted(table):
-            hit = np.flatnonzero(self.x == code)
-            if len(hit):
-                self.apply(table[code], self.undecided(hit))
-
-    def lookup_many(self, table: dict[float, Rule]) -> None:
-        """Apply a long code table in one sorted search over the column."""
-        keys = np.array(sorted(table), dtype=np.float64)
-        rules = [table[k] for k in keys]
-        pos = np.minimum(np.searchsorted(keys, self.x), len(keys) - 1)
-        hit = (keys[pos] == self.x) & ~self.ruled
-        codes = np.array([self.vocab.add(r.reason) if r.reason else VALID for r in rules],
-                         dtype=np.int8)
-        subs = np.array([np.nan if r.reason else r.value for r in rules], dtype=np.float64)
-        if hit.any():
-            self.reasons[hit] = codes[pos[hit]]
-            self.writable()[hit] = subs[pos[hit]]
-            self.ruled |= hit
-
-    def units(self, spec: UnitPrefix) -> None:
-        """Convert unit-prefixed answers of undecided rows; bad prefixes become invalid.
-
-        Masked arithmetic on tiles of rows (no gather and scatter of the rows, and
-        temporaries the size of a tile): on a 465,000-row column a third of the time.
-        """
-        base = 10.0 ** (spec.digits - 1)
-        per_year = np.full(11, np.nan)  # slot 10: any leading value that is not a digit 1-9
-        for digit, unit in spec.units.items():
-            per_year[digit] = spec.factors[unit]
-        per_year[0] = np.nan  # below base: no unit digit
-        to = spec.factors[spec.to]
-        values = self.writable()  # (a copy of x when x is not ours; x keeps the codes)
-        for tile in row_tiles(len(self.x)):  # loop over row tiles, not rows
-            x = self.x[tile]
-            target = ~self.ruled[tile] & np.isfinite(x)
-            with np.errstate(invalid="ignore"):
-                # floor(v / base) rather than v // base: float floor-division is ~30x slower
-                first = np.floor(x / base)
-                count = x - first * base
-                # v in [base, 10 base) and whole  <=>  first in 1..9 and count whole
-                slot = np.fmax(np.fmin(first, 10.0), 0.0).astype(np.int64)  # fmin: NaN -> 10
-                rate = count * per_year[slot]
-                rate /= to
-                bad = ~(np.isfinite(rate) & (count == np.floor(count)))
-            np.copyto(rate, np.nan, where=bad)
-            np.copyto(values[tile], rate, where=target)
-            self.reasons[tile][target & bad] = INVALID
-
-    def bounds(self, low: float, high: float) -> None:
-        """Mark valid, not substituted values outside [low, high] invalid."""
-        with np.errstate(invalid="ignore"):
-            out = np.flatnonzero((self.values < low) | (self.values > high))
-        out = self.undecided(out)
-        out = out[self.reasons[out] == VALID]
-        if len(out):
-            self.reasons[out] = INVALID
-            self.writable()[out] = np.nan
+    values: np.ndarray
+    reasons: np.ndarray
+    ruled: np.ndarray
+    vocab: Reasons
 
 
 _THREADS = 2  # columns decoded at once
 
 
 def _digits(x: np.ndarray) -> int | None:
-    """Count the digits of the largest absolute finite code (None when there is none)."""
-    if not len(x) or np.isnan(x).all():
+    """Count the digits of the largest absolute finite code (None when there is none).
+
+    ``fmax``/``fmin`` skip NaN and make no temporary; infinite codes (rare) take row tiles.
+    """
+    if not len(x):
         return None
-    big = max(abs(float(np.nanmax(x))), abs(float(np.nanmin(x))))
+    hi, lo = float(np.fmax.reduce(x)), float(np.fmin.reduce(x))
+    if np.isnan(hi):  # every value NaN
+        return None
+    big = max(abs(hi), abs(lo))
     if not np.isfinite(big):
-        finite = np.abs(x[np.isfinite(x)])
-        big = float(finite.max()) if len(finite) else 0.0
+        big = 0.0
+        for rows in row_tiles(len(x)):  # loop over row tiles, not rows
+            part = np.abs(x[rows])
+            part = part[np.isfinite(part)]
+            big = max(big, float(part.max())) if len(part) else big
     return len(str(int(big))) if big >= 1 else 1
 
 
 def _numeric(col: RawColumn, cb: Codebook, spec: VariableSpec | None, vocab: Reasons,
-             pre: list[tuple[np.ndarray, Rule]], inplace: bool = False
-             ) -> tuple[_Work, set[float]]:
-    """Run the five decoding steps on a numeric column; return state and the coded codes."""
+             pre: list[tuple[np.ndarray, Rule]], inplace: bool = False, ruled: bool = True
+             ) -> tuple[Decoded, set[float]]:
+    """Run the five decoding steps on a numeric column; return it and the coded codes."""
     x = np.asarray(col.data, dtype=np.float64)
-    odd = np.flatnonzero(~np.isfinite(x))  # found before any value changes (see _Work)
-    blank, infinite = odd[np.isnan(x[odd])], odd[np.isinf(x[odd])]
-    # infinite codes keep a copy: the weight check reports them from the raw codes
-    own = inplace and x is col.data and x.flags.writeable
-    work = _Work(x, vocab, own and not len(infinite))
-    for rows, rule in pre:
-        work.apply(rule, rows & ~work.ruled)
     digits = _digits(x) if any(f.digits is not None for f in cb.families) else None
     codes = cb.codes_for(col.name, digits)
-    if col.tags is not None:
-        tags = np.asarray(col.tags)
-        for t in np.unique(tags[tags != 0]):
-            letter = chr(int(t)).lower()
-            rule = codes.tags.get(letter) or _reason_rule(tag_reason(letter))
-            work.apply(rule, (tags == t) & ~work.ruled)
+    tags = None if col.tags is None else np.asarray(col.tags)
+    tag_rules = []
+    if tags is not None:
+        seen = np.zeros(256, dtype=np.int64)
+        for rows in row_tiles(len(tags)):  # row tiles: no mask as long as the column
+            seen += np.bincount(tags[rows], minlength=256)
+        for byte in (np.flatnonzero(seen[1:]) + 1).tolist():  # in byte order, as met
+            letter = chr(byte).lower()
+            tag_rules.append((byte, codes.tags.get(letter) or _reason_rule(tag_reason(letter))))
     singles, ranges = declared_codes(col)
     table = {**singles, **codes.numeric}
-    work.lookup(table)
-    for low, high, rule in ranges:
-        work.apply(rule, ~work.ruled & (x >= low) & (x <= high))
-    if spec is not None and spec.unit_prefixed is not None:
-        work.units(spec.unit_prefixed)
-    if spec is not None and spec.range is not None:
-        work.bounds(*spec.range)
-    infinite = work.undecided(infinite)
-    work.reasons[infinite] = INVALID
-    if len(infinite):
-        work.writable()[infinite] = np.nan
-    rule = (spec.blank if spec and spec.blank else None) or cb.blank
-    work.apply(rule, work.undecided(blank), nan_already=work.values is x or not work.owned)
+    blank = (spec.blank if spec and spec.blank else None) or cb.blank
+    plan = NumberPlan(pre, tags, tag_rules, table, ranges,
+                      spec.unit_prefixed if spec is not None else None,
+                      spec.range if spec is not None else None, blank)
+    own = inplace and x is col.data and bool(x.flags.writeable)
+    decoded = run_plan(col.name, x, plan, vocab, own, ruled)
     coded = set(table) | {k for k in _label_keys(col) if any(lo <= k <= hi for lo, hi, _ in
                                                              ranges)}
-    return work, coded
+    return decoded, coded
 
 
 def _reason_rule(name: str) -> Rule:
@@ -287,15 +186,15 @@ def _label_keys(col: RawColumn) -> list[float]:
     return [float(k) for k in col.value_labels if not isinstance(k, str)]
 
 
-def _text(col: RawColumn, codes: CodeMap, blank: Rule, vocab: Reasons) -> _Work:
+def _text(col: RawColumn, codes: CodeMap, blank: Rule, vocab: Reasons) -> _TextWork:
     """Decode a character column: declared/codebook text codes, then blanks."""
     import pandas as pd
 
     s = pd.Series(np.asarray(col.data, dtype=object), dtype=object)
     empty = np.asarray(s.isna(), dtype=bool)
     text = s.where(~empty, "").astype(str).str.strip()
-    work = _Work(np.zeros(len(s)), vocab)
-    work.values = np.asarray(text, dtype=object)
+    work = _TextWork(np.asarray(text, dtype=object), np.zeros(len(s), dtype=np.int8),
+                     np.zeros(len(s), dtype=bool), vocab)
     labels = {k: v for k, v in col.value_labels.items() if isinstance(k, str)}
     table = {str(k): _reason_rule(declared_reason(str(k), labels.get(str(k))))
              for k in col.user_missing if isinstance(k, str)}
@@ -308,7 +207,7 @@ def _text(col: RawColumn, codes: CodeMap, blank: Rule, vocab: Reasons) -> _Work:
     return work
 
 
-def _apply_text(work: _Work, rule: Rule, mask: np.ndarray) -> None:
+def _apply_text(work: _TextWork, rule: Rule, mask: np.ndarray) -> None:
     """Give text rows the meaning of *rule* (a substitute is written as text)."""
     if rule.reason is not None:
         work.reasons[mask] = work.vocab.add(rule.reason)
@@ -368,34 +267,37 @@ def _refuse_text_kind(col: RawColumn, spec: VariableSpec | None) -> None:
 
 
 def decode_column(col: RawColumn, cb: Codebook, vocab: Reasons,
-                  inplace: bool = False) -> ColumnResult:
+                  inplace: bool = False, ruled: bool = True) -> ColumnResult:
     """Decode one raw column with the codebook's rules for it.
 
     With *inplace* a numeric column's values are written into its raw array (the caller
     owns the RawTable and drops it); the column's ``raw`` is then None when a value changed.
+    *ruled* False: the result's ``ruled`` is None (no mask as long as the column is made).
     """
     spec = cb.variables.get(col.name)
     _refuse_text_kind(col, spec)
     pre: list[tuple[np.ndarray, Rule]] = []
     if not col.numeric and spec is not None and _wants_number(spec):
         col, pre = _as_numeric(col, spec, cb.codes_for(col.name, None), vocab)
+    label = spec.label if spec is not None and spec.label else col.label
     if col.numeric:
-        work, coded = _numeric(col, cb, spec, vocab, pre, inplace)
+        number, coded = _numeric(col, cb, spec, vocab, pre, inplace, ruled)
         labels = {} if spec and spec.unit_prefixed else {
             float(k): v for k, v in col.value_labels.items() if not isinstance(k, str)}
         if spec is not None and spec.labels is not None:
             labels = spec.labels
         labels = {k: v for k, v in labels.items() if k not in coded}
-    else:
-        blank = (spec.blank if spec and spec.blank else None) or cb.blank
-        work = _text(col, cb.codes_for(col.name, None), blank, vocab)
-        labels = {}
-    label = spec.label if spec is not None and spec.label else col.label
-    kind = _kind(spec.kind if spec else None, col.numeric, labels)
-    raw = None if work.changed and work.values is col.data else np.asarray(col.data)
-    column = DecodedColumn(col.name, work.values, work.reasons, vocab, label, kind,
-                           dict(labels), raw)
-    return ColumnResult(column, work.ruled)
+        kind = _kind(spec.kind if spec else None, True, labels)
+        raw = None if number.changed and number.values is col.data else np.asarray(col.data)
+        column = DecodedColumn.of_codes(col.name, number.values, number.missing_codes, vocab,
+                                        label, kind, dict(labels), raw)
+        return ColumnResult(column, number.ruled)
+    blank = (spec.blank if spec and spec.blank else None) or cb.blank
+    work = _text(col, cb.codes_for(col.name, None), blank, vocab)
+    kind = _kind(spec.kind if spec else None, False, {})
+    column = DecodedColumn(col.name, work.values, work.reasons, vocab, label, kind, {},
+                           np.asarray(col.data))
+    return ColumnResult(column, work.ruled if ruled else None)
 
 
 def add_derived(cols: dict[str, DecodedColumn], raw: RawTable, cb: Codebook,
@@ -493,7 +395,8 @@ def decode_table(raw: RawTable, cb: Codebook, consume: bool = False,
     names = list(raw.columns)
 
     def one(name: str) -> DecodedColumn:  # on its own vocabulary: threads do not share one
-        return decode_column(raw.columns[name], cb, Reasons(list(vocab.extra)), consume).column
+        return decode_column(raw.columns[name], cb, Reasons(list(vocab.extra)), consume,
+                             ruled=False).column
 
     threads = min(_THREADS, os.cpu_count() or 1, len(names))
     if threads > 1:

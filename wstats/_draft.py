@@ -316,9 +316,10 @@ def check_codebook(raw: RawTable, codebook: Codebook) -> CodebookCheck:
         except CodebookError as exc:
             problems.append(str(exc))
             continue
-        cols[name] = res.column
-        explained += _explained(name, col, res.column, res.ruled)
-        bad = (res.column.reasons == INVALID) & ~res.ruled
+        cols[name], ruled = res.column, res.ruled
+        assert ruled is not None  # asked for by default
+        explained += _explained(name, col, res.column, ruled)
+        bad = (res.column.reasons == INVALID) & ~ruled
         if bad.any() and col.numeric:
             codes, counts = np.unique(np.asarray(col.data, np.float64)[bad], return_counts=True)
             odd += [(name, float(c), int(k)) for c, k in zip(codes, counts, strict=True)]
