@@ -86,3 +86,14 @@ def test_membership_of_a_dataset_is_a_plain_answer() -> None:
     ds = Dataset.from_arrays({"A": [1.0, np.nan]})
     assert "A" in ds and "B" not in ds
     assert ds["A"].reason_counts()["missing"] == 1
+
+
+def test_a_column_copies_and_pickles_whole() -> None:
+    import copy
+    import pickle
+
+    col = _column_of([VALID, REFUSED, 6, VALID])
+    for twin in (copy.copy(col), copy.deepcopy(col), pickle.loads(pickle.dumps(col))):
+        np.testing.assert_array_equal(twin.values, col.values)
+        np.testing.assert_array_equal(twin.reasons, col.reasons)
+        assert twin.vocabulary.names == col.vocabulary.names and twin.name == "X"

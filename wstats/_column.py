@@ -104,6 +104,9 @@ class DecodedColumn:
     def __setattr__(self, name: str, value: Any) -> None:
         raise AttributeError(f"DecodedColumn is immutable: use replace({name}=...)")
 
+    def __reduce__(self) -> tuple[Any, tuple[Any, ...]]:  # copy and pickle, past __setattr__
+        return DecodedColumn.of_codes, tuple(getattr(self, s) for s in self.__slots__)
+
     def __repr__(self) -> str:
         return (f"DecodedColumn(name={self.name!r}, kind={self.kind!r}, rows={len(self)}, "
                 f"not_valid={self.n_missing})")
@@ -116,7 +119,7 @@ class DecodedColumn:
         """
         fields = {s: getattr(self, s) for s in self.__slots__}
         reasons = changes.pop("reasons", None)
-        unknown = set(changes) - set(fields) - {"missing_codes"}
+        unknown = set(changes) - set(fields)
         if unknown:
             raise TypeError(f"DecodedColumn has no attribute {sorted(unknown)[0]!r}")
         fields.update(changes)
