@@ -345,3 +345,18 @@ def test_labelled_strata_show_labels_in_messages() -> None:
     d2 = Dataset(cols, d.vocabulary, d.n_rows, d.source)
     with pytest.raises(SingletonStratumError, match=r"\('North'\)"):
         Design("w", strata="st", psu="cl").bind(d2)
+
+
+@settings(max_examples=150, deadline=None)
+@given(st.lists(st.integers(-5, 60), min_size=1, max_size=30), st.integers(1, 40))
+def test_unique_inverse_equals_numpy_unique_for_any_span(values: list[int], stretch: int) -> None:
+    # checked against numpy.unique (general-purpose library): the lookup table (span at most
+    # two codes a row) and the sort (wider spans) give the same positions
+    from wstats._binding import _unique_inverse
+
+    v = np.array(values, dtype=np.float64) * stretch  # stretch widens the span past 2n
+    uniq, inv = _unique_inverse(v)
+    ref_uniq, ref_inv = np.unique(v, return_inverse=True)
+    assert uniq.tolist() == ref_uniq.tolist()
+    assert inv.tolist() == ref_inv.ravel().tolist()
+    assert inv.dtype == np.int32

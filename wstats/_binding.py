@@ -236,7 +236,7 @@ def _unique_inverse(values: npt.NDArray[Any], *, in_place: bool = False
     """
     if values.dtype.kind in "fiu" and len(values):
         lo, hi = values.min(), values.max()
-        if np.isfinite(lo) and np.isfinite(hi) and float(hi) - float(lo) <= 8 * len(values):
+        if np.isfinite(lo) and np.isfinite(hi) and float(hi) - float(lo) <= 2 * len(values):
             seen = np.zeros(int(float(hi) - float(lo)) + 1, dtype=bool)
             tiles = row_tiles(len(values))
             whole = True
@@ -250,7 +250,8 @@ def _unique_inverse(values: npt.NDArray[Any], *, in_place: bool = False
             if whole:
                 kept = np.flatnonzero(seen)
                 kind = code_type(len(kept))
-                position = (np.cumsum(seen) - 1).astype(kind)
+                position = np.cumsum(seen, dtype=kind)  # (a table at most 2 codes a row)
+                position -= 1
                 uniq = (kept + lo).astype(values.dtype)
                 own = in_place and values.dtype == kind
                 inverse = values if own else np.empty(len(values), dtype=kind)
