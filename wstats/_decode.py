@@ -125,15 +125,13 @@ class _TextWork:
 _THREADS = 2  # columns decoded at once
 
 
-def _digits(x: np.ndarray) -> int | None:
+def _digits(x: np.ndarray, lo: float, hi: float) -> int | None:
     """Count the digits of the largest absolute finite code (None when there is none).
 
-    ``fmax``/``fmin`` skip NaN and make no temporary; infinite codes (rare) take row tiles.
+    *lo* and *hi* are the column's least and greatest codes, NaN skipped (NaN: all blank).
+    Infinite codes (rare) send the search through row tiles.
     """
-    if not len(x):
-        return None
-    hi, lo = float(np.fmax.reduce(x)), float(np.fmin.reduce(x))
-    if np.isnan(hi):  # every value NaN
+    if np.isnan(hi):
         return None
     big = max(abs(hi), abs(lo))
     if not np.isfinite(big):
@@ -150,7 +148,11 @@ def _numeric(col: RawColumn, cb: Codebook, spec: VariableSpec | None, vocab: Rea
              ) -> tuple[Decoded, set[float]]:
     """Run the five decoding steps on a numeric column; return it and the coded codes."""
     x = np.asarray(col.data, dtype=np.float64)
-    digits = _digits(x) if any(f.digits is not None for f in cb.families) else None
+    # least and greatest codes, NaN skipped (fmin/fmax make no temporary)
+    least, most = ((float(np.fmin.reduce(x)), float(np.fmax.reduce(x))) if len(x)
+                   else (np.nan, np.nan))
+    digits = (_digits(x, least, most) if any(f.digits is not None for f in cb.families)
+              else None)
     codes = cb.codes_for(col.name, digits)
     tags = None if col.tags is None else np.asarray(col.tags)
     tag_rules = []
@@ -167,7 +169,9 @@ def _numeric(col: RawColumn, cb: Codebook, spec: VariableSpec | None, vocab: Rea
     plan = NumberPlan(pre, tags, tag_rules, table, ranges,
                       spec.unit_prefixed if spec is not None else None,
                       spec.range if spec is not None else None, blank)
-    own = inplace and x is col.data and bool(x.flags.writeable)
+    # infinite codes keep a copy of the raw codes: the weight check reports them from there
+    own = (inplace and x is col.data and bool(x.flags.writeable)
+           and least != -np.inf and most != np.inf)
     decoded = run_plan(col.name, x, plan, vocab, own, ruled)
     coded = set(table) | {k for k in _label_keys(col) if any(lo <= k <= hi for lo, hi, _ in
                                                              ranges)}

@@ -226,11 +226,10 @@ def run_plan(name: str, x: np.ndarray, plan: NumberPlan, vocab: Reasons, own: bo
              want_ruled: bool = True) -> Decoded:
     """Decode the number column *x* by *plan*, tile by tile.
 
-    *own*: the caller owns *x*, whose memory then takes the values. New reasons join *vocab*
+    *own*: the caller owns *x*, whose memory then takes the values (not when *x* holds an
+    infinite code: the raw codes are then kept). New reasons join *vocab*
     in step order (module docstring). *want_ruled*: also return which rows a rule decided.
     """
-    if own and any(bool(np.isinf(x[t]).any()) for t in row_tiles(len(x))):
-        own = False  # infinite codes keep a copy: the weight check reports them from x
     out = _Values(x, own)
     scratch = Reasons(list(vocab.extra))  # codes as the tiles meet them, ordered afterwards
     ranks: dict[int, Rank] = {}
