@@ -198,9 +198,11 @@ def report(res: dict[str, dict[str, Any]], items: list[str], raw_a: list[str]) -
     beyond = grew - sel_a
     verdict = ("within" if beyond <= 0 else
                f"MORE by {beyond:.1f} MB, {100 * beyond / sel_a:.0f}% of the columns")
+    spread = max(max(res[k]["rss_runs_mb"]) - min(res[k]["rss_runs_mb"]) for k in ("A", "A2"))
     print(f"  A on 1x rows {res['A']['rss_median_mb']:.1f} MB, on 2x rows "
-          f"{res['A2']['rss_median_mb']:.1f} MB (median peaks; largest {a:.0f} and {a2:.0f}): "
-          f"grew {grew:.1f} MB; its {len(raw_a)} raw columns grow by {sel_a:.1f} MB: {verdict}")
+          f"{res['A2']['rss_median_mb']:.1f} MB (median peaks; largest {a:.0f} and {a2:.0f}; "
+          f"a case's peaks spread over up to {spread:.1f} MB): grew {grew:.1f} MB; its "
+          f"{len(raw_a)} raw columns grow by {sel_a:.1f} MB: {verdict}")
     h = res["H"]["median"]
     print(f"start-up: wstats --help {h:.3f} s (target < 0.3): {'met' if h < 0.3 else 'MISSED'}")
     return {"ratios": ratio, "selected_mb_d": sel_d, "limit_mb_d": limit_d,
