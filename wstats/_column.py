@@ -170,35 +170,35 @@ class DecodedColumn:
             counts[VALID] += len(self) - len(self.missing_codes)
         return {name: int(counts[i]) for i, name in enumerate(self.vocabulary.names)}
 
+    def _spans(self) -> Iterator[tuple[slice, np.ndarray, np.ndarray, np.ndarray]]:
+        """Yield (rows, their values, positions of the not-valid rows among them, their
+        reason codes) for consecutive :data:`ROW_TILE` tiles; temporaries are a tile's."""
+        start = 0  # where the tile's codes begin among the missing codes
+        for rows in row_tiles(len(self)):
+            values = self.values[rows]
+            if self.numeric:
+                found = np.flatnonzero(np.isnan(values))
+                stop = start + len(found)
+                codes, start = self.missing_codes[start:stop], stop
+            else:
+                codes = self.missing_codes[rows]
+                found = np.flatnonzero(codes)
+            yield rows, values, found, codes
+
     def not_valid_rows(self) -> Iterator[tuple[np.ndarray, np.ndarray]]:
         """Yield (row numbers, their reason codes) of the rows that are not valid, tile by tile.
 
         Temporaries are a tile's; no array as long as the column is made.
         """
-        start = 0
-        for rows in row_tiles(len(self)):
-            if self.numeric:
-                found = np.flatnonzero(np.isnan(self.values[rows]))
-                stop = start + len(found)
-                codes, start = self.missing_codes[start:stop], stop
-            else:
-                found = np.flatnonzero(self.missing_codes[rows])
-                codes = self.missing_codes[rows][found]
-            yield found + rows.start, codes
+        for rows, _, found, codes in self._spans():
+            yield found + rows.start, codes if self.numeric else codes[found]
 
     def tiles(self) -> Iterator[tuple[slice, DecodedColumn]]:
         """Yield (rows, the column on those rows) for consecutive :data:`ROW_TILE` tiles.
 
         The tiles share the column's values; ``raw`` is not carried.
         """
-        start = 0  # where the tile's codes begin among the missing codes
-        for rows in row_tiles(len(self)):
-            values = self.values[rows]
-            if self.numeric:
-                stop = start + int(np.count_nonzero(np.isnan(values)))
-                codes, start = self.missing_codes[start:stop], stop
-            else:
-                codes = self.missing_codes[rows]
+        for rows, values, _, codes in self._spans():
             yield rows, self.replace(values=values, missing_codes=codes, raw=None)
 
     def to_pandas(self) -> pd.DataFrame:
