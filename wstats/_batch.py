@@ -240,6 +240,7 @@ def _code_sums(ctx: Context, col: DecodedColumn, lo: float, size: int
         seen[codes] = True
         key = bucket[tile].astype(np.int64) * width + codes
         by_code += np.bincount(key, weights=weights[tile], minlength=len(by_code))
+        del codes, key  # freed before the next tile makes its own
     return _level_columns(col, lo, seen[:size], by_code.reshape(nb + 1, width)[:nb, :size])
 
 
@@ -271,6 +272,7 @@ def _looked_up(ctx: Context, col: DecodedColumn, lo: float, size: int
         if codes is None:
             return None
         seen[codes] = True
+        del codes  # freed before the next tile makes its own
     observed = np.flatnonzero(seen[:size]) + lo
     values, labels = category_levels(col, observed)
     # every valid value is an observed whole number in [lo, lo + size) and one of the levels
@@ -286,6 +288,7 @@ def _looked_up(ctx: Context, col: DecodedColumn, lo: float, size: int
         assert codes is not None  # every tile passed in the first pass
         key += table[codes]
         by_key += np.bincount(key, weights=ctx.design.weights[tile], minlength=len(by_key))
+        del key, codes
     return values, labels, by_key[: nb * nl].reshape(nb, nl)
 
 

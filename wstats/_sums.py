@@ -205,6 +205,7 @@ class WeightedSums:
             cnt += np.bincount(key, minlength=len(cnt))
             w = self.design.weights[rows]
             w2 += np.bincount(b, weights=w * w, minlength=nb + 1)
+            del rows, codes, b, key, w  # freed before the next tile makes its own
         by_domain = self.bucket_domains(
             cnt[: nb * n_reasons].reshape(nb, n_reasons).astype(np.float64))
         w2 = w2[:nb]
