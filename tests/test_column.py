@@ -13,7 +13,7 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 
 from wstats import _column
-from wstats._column import Dataset, DecodedColumn
+from wstats._column import Dataset, DecodedColumn, row_tiles
 from wstats._reasons import INVALID, MISSING, REFUSED, SKIPPED, VALID, Reasons
 
 VOCAB = Reasons(["not_eligible"])  # codes 0-5 core, 6 added
@@ -97,3 +97,18 @@ def test_a_column_copies_and_pickles_whole() -> None:
         np.testing.assert_array_equal(twin.values, col.values)
         np.testing.assert_array_equal(twin.reasons, col.reasons)
         assert twin.vocabulary.names == col.vocabulary.names and twin.name == "X"
+
+
+@settings(max_examples=300, deadline=None)
+@given(n=st.integers(0, 5000), tile=st.integers(1, 700))
+def test_row_tiles_are_few_equal_and_cover_the_rows_in_order(n: int, tile: int) -> None:
+    # common practice, no source: ceil(n / tile) tiles whose sizes differ by at most a row
+    with pytest.MonkeyPatch.context() as mp:
+        mp.setattr(_column, "ROW_TILE", tile)
+        tiles = row_tiles(n)
+    assert len(tiles) == -(-n // tile)
+    assert [t.start for t in tiles[1:]] == [t.stop for t in tiles[:-1]]
+    assert (tiles[0].start, tiles[-1].stop) == (0, n) if n else tiles == []
+    sizes = [t.stop - t.start for t in tiles]
+    assert all(0 < size <= tile for size in sizes)
+    assert max(sizes, default=0) - min(sizes, default=0) <= 1

@@ -31,8 +31,15 @@ ROW_TILE = 262_144
 
 
 def row_tiles(n: int) -> list[slice]:
-    """Return slices of :data:`ROW_TILE` rows covering rows 0..n-1, in order."""
-    return [slice(b, min(b + ROW_TILE, n)) for b in range(0, n, ROW_TILE)]
+    """Return slices covering rows 0..n-1 in order, as few as tiles of :data:`ROW_TILE` rows
+    need, and of equal size (within a row).
+
+    Equal tiles keep a pass's temporaries the same on every tile: with a short last tile, a
+    file's peak would depend on how its length divides by the tile, not only on the tile.
+    """
+    count = -(-n // ROW_TILE)
+    bounds = [n * i // count for i in range(count + 1)] if count else [0]
+    return [slice(b, e) for b, e in zip(bounds[:-1], bounds[1:], strict=True)]
 
 
 def code_type(n_codes: int) -> type[np.signedinteger[Any]]:
