@@ -2,7 +2,8 @@
 
 One command (from the repository root):
 
-    .venv/bin/python benchmarks/run.py [--repeat 5] [--cache DIR] [--json OUT.json]
+    .venv/bin/python benchmarks/run.py [--repeat 5] [--repeat-memory 9] [--cache DIR]
+                                       [--json OUT.json]
 
 It builds the 464,664 x 283 demo-scenario transport file once (cached outside the repository,
 default ~/.cache/wstats-bench; several minutes the first time), its Parquet cache and a
@@ -15,7 +16,8 @@ default ~/.cache/wstats-bench; several minutes the first time), its Parquet cach
   D  wstats estimate FILE.xpt on every item variable by the 5-level AGE_GRP domain
   E  pyreadstat.read_xport(FILE) (every column; fewer runs, no warm-up: it is slow)
   F  A on the Parquet cache
-  A2 A on the 2x-rows file (memory must not grow beyond the selected columns)
+  A2 A on the 2x-rows file (memory must not grow beyond the selected columns: A and A2 run
+     --repeat-memory times, and their median peaks give the growth and its standard error)
   H  wstats --help (start-up)
 
 and prints the ratios A/B, A/C, D/E, F/B against their targets, the memory targets, and the
