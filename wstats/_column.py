@@ -91,8 +91,8 @@ class DecodedColumn:
                  check: bool = True) -> None:
         if check:
             _check(name, values, reasons, vocabulary, kind)
-        codes = reasons[np.isnan(values)] if values.dtype.kind == "f" else reasons
-        self._set(name, values, codes, vocabulary, label, kind, value_labels or {}, raw)
+        self._set(name, values, _kept_codes(values, reasons), vocabulary, label, kind,
+                  value_labels or {}, raw)
 
     def _set(self, *fields: Any) -> None:
         for slot, value in zip(self.__slots__, fields, strict=True):
@@ -131,9 +131,7 @@ class DecodedColumn:
             raise TypeError(f"DecodedColumn has no attribute {sorted(unknown)[0]!r}")
         fields.update(changes)
         if reasons is not None:
-            values = fields["values"]
-            fields["missing_codes"] = (reasons[np.isnan(values)] if values.dtype.kind == "f"
-                                       else reasons)
+            fields["missing_codes"] = _kept_codes(fields["values"], reasons)
         col = DecodedColumn.__new__(DecodedColumn)
         col._set(*(fields[s] for s in self.__slots__))
         return col
@@ -179,7 +177,7 @@ class DecodedColumn:
 
     def _spans(self) -> Iterator[tuple[slice, np.ndarray, np.ndarray, np.ndarray]]:
         """Yield (rows, their values, positions of the not-valid rows among them, their
-        reason codes) for consecutive :data:`ROW_TILE` tiles; temporaries are a tile's."""
+        reason codes) for the tiles of :func:`row_tiles`; temporaries are a tile's."""
         start = 0  # where the tile's codes begin among the missing codes
         for rows in row_tiles(len(self)):
             values = self.values[rows]
@@ -201,7 +199,7 @@ class DecodedColumn:
             yield found + rows.start, codes if self.numeric else codes[found]
 
     def tiles(self) -> Iterator[tuple[slice, DecodedColumn]]:
-        """Yield (rows, the column on those rows) for consecutive :data:`ROW_TILE` tiles.
+        """Yield (rows, the column on those rows) for the tiles of :func:`row_tiles`.
 
         The tiles share the column's values; ``raw`` is not carried.
         """
@@ -216,6 +214,11 @@ class DecodedColumn:
             self.reasons.astype(np.int64), categories=pd.Index(list(self.vocabulary.names))
         )
         return pd.DataFrame({self.name: self.values, f"{self.name}_reason": reason})
+
+
+def _kept_codes(values: np.ndarray, reasons: np.ndarray) -> np.ndarray:
+    """Return the reason codes a column keeps: its NaN rows' for numbers, every row's else."""
+    return reasons[np.isnan(values)] if values.dtype.kind == "f" else reasons
 
 
 def _check(name: str, values: np.ndarray, reasons: np.ndarray, vocabulary: Reasons,
