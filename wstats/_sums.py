@@ -110,7 +110,7 @@ class WeightedSums:
         b_psu, b_slot = bucket_key // nd, bucket_key % nd
         in_cell = np.flatnonzero(b_slot > 0)
         pair_key = np.sort(np.concatenate([b_psu * nd, bucket_key[in_cell]]))
-        pair_key = pair_key[np.r_[True, pair_key[1:] != pair_key[:-1]]]  # distinct
+        pair_key = pair_key[np.r_[True, pair_key[1:] != pair_key[:-1]][: len(pair_key)]]  # distinct
         #: PSU and domain of every stored (PSU, domain) pair
         self.pair_psu: Index = (pair_key // nd).astype(np.int64)
         self.pair_domain: Index = (pair_key % nd).astype(np.int64)
