@@ -6,6 +6,7 @@ Parsing only: nothing here reads data or prints. :mod:`wstats.cli` registers the
 from __future__ import annotations
 
 import argparse
+import re
 from collections.abc import Sequence
 from pathlib import Path
 from typing import Any
@@ -80,13 +81,20 @@ def parse_rows(text: str | None) -> tuple[int, int | None] | None:
     if not text:
         return None
     start, sep, stop = text.partition(":")
+    how = ("rows count from 0 and STOP is not read: --rows 0:1000 reads the first 1000 rows, "
+           "--rows 1000: the rest; a STOP past the last row means to the end")
     try:
-        a = int(start) if start else 0
-        b = int(stop) if stop else None
+        a = int(start) if start.strip() else 0
+        b = int(stop) if stop.strip() else None
     except ValueError:
-        raise UsageError(f"--rows '{text}' is not START:STOP (e.g. --rows 0:1000)") from None
-    if not sep or a < 0 or (b is not None and b <= a):
-        raise UsageError(f"--rows '{text}' is not START:STOP with 0 <= START < STOP")
+        raise UsageError(f"--rows '{text}' is not START:STOP with whole numbers; {how}") from None
+    if not sep:
+        raise UsageError(f"--rows '{text}' has no ':'; give START:STOP ({how})")
+    if a < 0 or (b is not None and b < 0):
+        raise UsageError(f"--rows '{text}' counts backwards from the end, which wstats does not "
+                         f"do; {how}")
+    if b is not None and b <= a:
+        raise UsageError(f"--rows '{text}' is not START:STOP with 0 <= START < STOP; {how}")
     return a, b
 
 
@@ -266,6 +274,12 @@ def add_demo_args(p: argparse.ArgumentParser) -> None:
 
 class Parser(argparse.ArgumentParser):
     """An argument parser whose mistakes are one-line UsageErrors, not usage dumps."""
+
+    def __init__(self, *args: Any, **kwargs: Any) -> None:
+        super().__init__(*args, **kwargs)
+        # A row range such as '-5:10' is a (wrong) value of --rows, not an unknown option:
+        # taken as a value, it gets the message that explains the range syntax.
+        self._negative_number_matcher = re.compile(r"^-\d+(:-?\d*)?$|^-\d*\.\d+$")
 
     def error(self, message: str) -> Any:
         raise UsageError(f"{self.prog}: {message} (see '{self.prog} --help')")

@@ -15,6 +15,7 @@ from __future__ import annotations
 
 import codecs
 import os
+import stat
 import sys
 from collections import Counter
 from collections.abc import Callable, Iterator, Sequence
@@ -24,7 +25,9 @@ from pathlib import Path
 from wstats._readers._types import RawColumn, RawTable
 from wstats.errors import ColumnError, ReadError, did_you_mean
 
-__all__ = ["FORMATS", "RawColumn", "RawTable", "file_columns", "format_of", "read_raw"]
+__all__ = [
+    "FORMATS", "RawColumn", "RawTable", "check_encoding", "file_columns", "format_of", "read_raw",
+]
 
 #: File extension (lower case, with the dot) -> format name. Longest match wins.
 FORMATS: dict[str, str] = {
@@ -85,8 +88,8 @@ def read_raw(
     """
     source = Path(path)
     fmt = check_file(source)
-    _check_encoding(encoding)
-    _check_rows(source, rows)
+    check_encoding(encoding, source, fmt)
+    rows = _check_rows(source, rows, fmt)
     if fmt == "xpt":
         table = _read_xpt(source, columns, rows, progress, encoding)
     elif fmt in ("csv", "tsv"):
@@ -129,7 +132,7 @@ def file_columns(path: str | os.PathLike[str], encoding: str = "utf-8") -> list[
     """
     source = Path(path)
     fmt = check_file(source)
-    _check_encoding(encoding)
+    check_encoding(encoding, source, fmt)
     if fmt == "xpt":
         names = _xpt_columns(source, encoding)
     elif fmt in ("csv", "tsv"):
@@ -159,11 +162,23 @@ def format_of(path: str | os.PathLike[str]) -> str:
 
 
 def check_file(path: Path) -> str:
-    """Check that *path* is a readable, non-empty file of a known type; return its format."""
-    if not path.exists():
-        raise ReadError(f"data file '{path}' does not exist; check the path")
-    if path.is_dir():
+    """Check that *path* is a readable, non-empty file of a known type; return its format.
+
+    Only regular files (or links to them) are accepted, and that is decided from ``stat``
+    before anything is opened: opening a FIFO blocks until a writer comes, and a device such
+    as ``/dev/zero`` has no size and no end.
+    """
+    try:
+        mode = path.stat().st_mode
+    except FileNotFoundError:
+        raise ReadError(f"data file '{path}' does not exist; check the path") from None
+    except OSError as exc:
+        raise ReadError(f"data file '{path}' cannot be opened: {exc.strerror}") from exc
+    if stat.S_ISDIR(mode):
         raise ReadError(f"'{path}' is a folder, not a data file; give the file inside it")
+    if not stat.S_ISREG(mode):
+        raise ReadError(f"'{path}' is {_kind_of(mode)}, not a regular file; save the data to "
+                        "a file first and give that file's path")
     fmt = format_of(path)
     try:
         fd = os.open(path, os.O_RDONLY)
@@ -235,24 +250,68 @@ def is_utf8(encoding: str) -> bool:
     return codecs.lookup(encoding).name == "utf-8"
 
 
-def _check_encoding(encoding: str) -> None:
-    """Raise ReadError when *encoding* is not a codec Python knows."""
+def _kind_of(mode: int) -> str:
+    """Name the kind of a non-regular, non-folder file for a message."""
+    kinds = [(stat.S_ISFIFO, "a named pipe (FIFO)"), (stat.S_ISCHR, "a character device"),
+             (stat.S_ISBLK, "a block device"), (stat.S_ISSOCK, "a socket")]
+    return next((name for test, name in kinds if test(mode)), "a special file")
+
+
+def check_encoding(encoding: str, path: Path | None = None, fmt: str = "csv") -> None:
+    """Raise ReadError when *encoding* cannot decode the text of a data file.
+
+    The name must be a text codec Python knows (not a bytes-to-bytes codec such as
+    ``base64``); for the binary formats, whose names and labels sit among ASCII structure, it
+    must also read ASCII as ASCII (``utf-16`` does not).
+    """
+    where = f" for '{path}'" if path is not None else ""
     try:
-        codecs.lookup(encoding)
+        info = codecs.lookup(encoding)
     except LookupError as exc:
-        raise ReadError(f"unknown encoding '{encoding}'; use e.g. 'utf-8' or 'latin-1'") from exc
+        raise ReadError(f"unknown encoding '{encoding}'{where}; use e.g. 'utf-8', 'latin-1' "
+                        "or 'cp1252'") from exc
+    if not getattr(info, "_is_text_encoding", True):
+        raise ReadError(f"'{encoding}' is not a text encoding{where}; use e.g. 'utf-8', "
+                        "'latin-1' or 'cp1252'")
+    if fmt not in ("csv", "tsv") and not _ascii_compatible(info):
+        raise ReadError(f"encoding '{encoding}'{where} does not keep ASCII bytes as they are, "
+                        "which the file's structure needs; use e.g. 'latin-1' or 'cp1252'")
 
 
-def _check_rows(path: Path, rows: Rows | None) -> None:
-    """Raise ReadError when a row subset is not ``(start >= 0, stop >= start or None)``."""
+def _ascii_compatible(info: codecs.CodecInfo) -> bool:
+    """Tell whether a codec reads ASCII bytes as the same characters."""
+    probe = "AZaz09_ "
+    try:
+        return info.encode(probe)[0] == probe.encode("ascii")
+    except (UnicodeError, ValueError, TypeError):
+        return False
+
+
+#: Largest row number the pyreadstat formats take (a C int); past it means "to the end".
+_INT_ROWS = 2**31 - 1
+#: Largest row number any reader takes (a signed 64-bit offset).
+_ANY_ROWS = 2**62
+
+
+def _check_rows(path: Path, rows: Rows | None, fmt: str = "parquet") -> Rows | None:
+    """Return a row subset with any end past what a format can hold read as "to the end".
+
+    No file of the format can have a row there, so the range goes on to the last row; a
+    start there leaves no rows. Raises ReadError when the subset is not
+    ``(start >= 0, stop >= start or None)``.
+    """
     if rows is None:
-        return
+        return None
     start, stop = rows
     if start < 0 or (stop is not None and stop < start):
         raise ReadError(
             f"row subset {rows} for '{path}' is not valid; give (start, stop) with "
             "0 <= start <= stop, or stop None for the rest of the file"
         )
+    cap = _ANY_ROWS if fmt in ("csv", "tsv", "parquet") else _INT_ROWS
+    if start >= cap:
+        raise ReadError(f"'{path}' has no rows in the row subset {rows}; rows count from 0")
+    return start, None if stop is None or stop > cap else stop
 
 
 def _check_not_empty(path: Path, table: RawTable, rows: Rows | None) -> None:
