@@ -11,7 +11,7 @@ from __future__ import annotations
 import math
 import string
 from collections.abc import Iterable, Mapping, Sequence
-from decimal import ROUND_HALF_UP, Decimal
+from decimal import ROUND_HALF_UP, Context, Decimal
 from typing import Any
 
 __all__ = [
@@ -60,7 +60,11 @@ def fmt_number(x: Any, decimals: int, *, grouping: bool = False) -> str:
         return ""
     if math.isinf(v):
         return "inf" if v > 0 else "-inf"
-    q = Decimal(repr(v)).quantize(Decimal(1).scaleb(-decimals), rounding=ROUND_HALF_UP)
+    # Enough digits for any double (up to 309 before the point): the default context's 28
+    # would refuse to round a value such as 1e300 to whole units.
+    digits = Context(prec=max(28, 330 + max(decimals, 0)))
+    q = Decimal(repr(v)).quantize(Decimal(1).scaleb(-decimals), rounding=ROUND_HALF_UP,
+                                  context=digits)
     if q.is_zero():
         q = abs(q)
     return format(q, ",f" if grouping else "f")

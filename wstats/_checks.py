@@ -68,12 +68,18 @@ def check_presubset(
 def check_weight_spread(weights: np.ndarray, name: str) -> list[str]:
     """Return a warning when Kish's weighting design effect exceeds the threshold.
 
-    Over the positive weights, in row tiles (no copy of the weight column).
+    Over the positive weights, in row tiles (no copy of the weight column). The weights are
+    divided by the largest one first, so that weights near the ends of the float range
+    (1e200 or 1e-200) neither overflow when squared nor vanish: the ratio does not change.
     """
+    top = max((float(weights[t].max(initial=0.0)) for t in row_tiles(len(weights))),
+              default=0.0)
+    if not top > 0 or not np.isfinite(top):
+        return []
     n, total, squares = 0, 0.0, 0.0
     for tile in row_tiles(len(weights)):  # loop over row tiles, not rows
         w = weights[tile]
-        w = w[w > 0]
+        w = w[w > 0] / top
         n, total, squares = n + len(w), total + float(w.sum()), squares + float(w @ w)
     if n < 2:
         return []

@@ -29,6 +29,7 @@ from wstats._stats import (
     distinct_values,
     level_index,
 )
+from wstats._scaling import scale_dataset, scales_for, unscale
 from wstats._sums import Domains, WeightedSums, no_cell
 from wstats.errors import EstimationError, did_you_mean
 
@@ -104,14 +105,17 @@ def estimate(
 
     stats = _check_options(statistics, level, proportion_ci, quantiles)
     _check_names(data, [*variables, *by, *categorical, *(v for r in ratios for v in r)])
-    bound = design.bind(data)
+    scales = _scales(data, design, variables, set(categorical), ratios)
+    scaled = scale_dataset(data, scales)
+    bound = design.bind(scaled)
     domains, by_levels = _domains(data, bound, list(by), where)
-    columns = {name: bound.column(col) for name, col in data.columns.items()}
+    columns = {name: bound.column(col) for name, col in scaled.columns.items()}
     ctx = Context(WeightedSums(bound, domains), columns, data.vocabulary, level,
                   per_domain_df=design.domain_df == "domain")
     pieces = _run(ctx, variables, stats, set(categorical), ratios, quantiles, proportion_ci)
+    pieces = unscale(pieces, scales, design.weight)
     rows = _columns(pieces, list(by), by_levels, data.vocabulary.names, level)
-    _warn(data, bound, variables, domains, by_levels)
+    _warn(data, bound, variables, domains, by_levels, scales.get(design.weight, 1.0))
     standard = reliability or DEFAULT_STANDARD
     same_kg = proportion_ci == "korn-graubard" and level == standard.kg_level
     flags, suppress = assess(rows, standard, level,
@@ -125,8 +129,27 @@ def estimate(
     return EstimateTable(rows, tuple(by), level, bound.summary(), settings)
 
 
+def _scales(data: Dataset, design: Design, variables: Sequence[str], forced: set[str],
+            ratios: Sequence[tuple[str, str]]) -> dict[str, float]:
+    """Return the power-of-two scales of the weights and number variables that need one.
+
+    Replicate weights share the weight's scale; categorical variables keep their codes.
+    """
+    from wstats._replicates import resolve_replicate_columns
+
+    numbers = [v for v in variables if v in data.columns
+               and not _is_categorical(data.columns[v], forced)]
+    names = [design.weight, *numbers, *(v for r in ratios for v in r)]
+    scales = scales_for(data, names)
+    if design.weight in scales and design.replicates is not None:
+        src = data.source or "the data"
+        for rep in resolve_replicate_columns(design.replicates, list(data.columns), src):
+            scales[rep] = scales[design.weight]
+    return scales
+
+
 def _warn(data: Dataset, bound: BoundDesign, variables: Sequence[str], domains: Domains,
-          by_levels: list[tuple[list[Any], list[Any]]]) -> None:
+          by_levels: list[tuple[list[Any], list[Any]]], weight_scale: float = 1.0) -> None:
     """Issue the data-sanity warnings of :mod:`wstats._checks` (each once)."""
     from wstats._checks import DesignFacts, estimation_warnings, warn_all
 
@@ -136,7 +159,8 @@ def _warn(data: Dataset, bound: BoundDesign, variables: Sequence[str], domains: 
         names = [" x ".join(str(x) for x in combo)
                  for combo in itertools.product(*(d for _, d in by_levels))]
         groups = (names, counts)
-    facts = DesignFacts(np.asarray(bound.n_h), bound.weights, bound.design.weight)
+    weights = bound.weights if weight_scale == 1.0 else bound.weights * weight_scale
+    facts = DesignFacts(np.asarray(bound.n_h), weights, bound.design.weight)
     warn_all(estimation_warnings(data, facts, variables, groups))
 
 
