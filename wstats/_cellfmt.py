@@ -49,6 +49,8 @@ _REASON_WORDS: dict[str, str] = {
 #: Placeholders a cell template may use.
 CELL_FIELDS: tuple[str, ...] = ("est", "se", "lo", "hi", "pct", "n", "cv", "deff")
 _DASH = "–"
+#: From this magnitude on a number is shown in exponent notation.
+_HUGE = 1e15
 
 
 def fmt_number(x: Any, decimals: int, *, grouping: bool = False) -> str:
@@ -60,6 +62,8 @@ def fmt_number(x: Any, decimals: int, *, grouping: bool = False) -> str:
         return ""
     if math.isinf(v):
         return "inf" if v > 0 else "-inf"
+    if abs(v) >= _HUGE:  # 300 digits help no reader; machine formats keep the full value
+        return format(v, ".6e")
     # Enough digits for any double (up to 309 before the point): the default context's 28
     # would refuse to round a value such as 1e300 to whole units.
     digits = Context(prec=max(28, 330 + max(decimals, 0)))

@@ -89,6 +89,11 @@ RULES: dict[str, tuple[str, str]] = {
         "common practice, no source",
     ),
     "se-missing": ("standard error cannot be estimated", "common practice, no source"),
+    "no-estimate": (
+        "the estimate is not defined in this domain: its denominator (the weighted count, "
+        "or the total of a ratio's denominator) is 0",
+        "common practice, no source",
+    ),
 }
 
 _PROPORTION_RULES = ("proportion-nchs", "rse", "none")
@@ -269,14 +274,16 @@ def evaluate(
     out.update({r: b & rse & filled for r, b in _rse_rules(est, se, n, standard).items()})
     edge = is_prop & ((est == 0) | (est == 1))
     out["se-zero"] = filled & (se == 0) & ~edge & standard.flag_zero_se
-    out["se-missing"] = filled & np.isnan(se) & standard.flag_missing_se
+    undefined = filled & np.isnan(est)
+    out["se-missing"] = filled & np.isnan(se) & ~undefined & standard.flag_missing_se
+    out["no-estimate"] = undefined
     out["empty"] = ~filled & standard.suppress_empty
     return {rule: np.asarray(out[rule], dtype=bool) for rule in RULES}
 
 
 def _suppressing(standard: ReliabilityStandard) -> tuple[str, ...]:
     """Return the ids of the rules that suppress (the others only flag) under *standard*."""
-    rules = ["empty", "neff<30", "kg-width>=0.30", "kg-relwidth>130%"]
+    rules = ["empty", "no-estimate", "neff<30", "kg-width>=0.30", "kg-relwidth>130%"]
     return tuple(rules + (["n<30", "rse>30%"] if standard.rse_suppress else []))
 
 

@@ -228,7 +228,12 @@ class Ratio:
         with np.errstate(divide="ignore", invalid="ignore"):
             xbar = den[:, 0] / m.weighted_n
             v_srs = s2 / (m.n * xbar * xbar)
-        return _piece(f"{numerator}/{denominator}", self.name, ctx, m, est[:, 0], var[:, 0], v_srs)
+        # A denominator total of 0 leaves the ratio undefined (not infinite): no estimate,
+        # which the reliability rule 'no-estimate' names, in every output format alike.
+        undefined = den[:, 0] == 0
+        ratio = np.where(undefined, np.nan, est[:, 0])
+        var_r = np.where(undefined, np.nan, var[:, 0])
+        return _piece(f"{numerator}/{denominator}", self.name, ctx, m, ratio, var_r, v_srs)
 
 
 @dataclass(frozen=True)
