@@ -214,6 +214,8 @@ def _run(ctx: Context, variables: Sequence[str], stats: list[str] | None, forced
 
     fast = not ctx.design.uses_replicates
     slots: list[list[Piece] | tuple[str, str]] = []
+    if stats and "proportion" in stats:
+        _check_proportions(ctx, variables, forced)
     for name in variables:
         col = ctx.columns[name]
         wanted = stats or (["proportion"] if _is_categorical(col, forced) else ["mean"])
@@ -233,6 +235,26 @@ def _run(ctx: Context, variables: Sequence[str], stats: list[str] | None, forced
     for num, den in ratios:
         pieces.append(Ratio()(ctx, num, den))
     return pieces
+
+
+def _check_proportions(ctx: Context, variables: Sequence[str], forced: set[str]) -> None:
+    """Raise EstimationError for a proportion of a variable that has no categories.
+
+    Categories come from the codebook (kind categorical, binary or text), from value labels
+    for every value, from ``categorical=``, or from values that are all 0 or 1 (an
+    indicator); anything else would give one proportion per distinct number.
+    """
+    for name in variables:
+        col = ctx.columns[name]
+        if _is_categorical(col, forced):
+            continue
+        seen = distinct_values(col.values[col.valid])
+        if len(seen) and set(np.asarray(seen, dtype=np.float64).tolist()) <= {0.0, 1.0}:
+            continue
+        raise EstimationError(
+            f"variable '{name}' is {col.kind} ({len(seen)} distinct values), so it has no "
+            f"categories to take proportions of; estimate its mean, or pass --categorical "
+            f"{name} (categorical=['{name}'] in Python) to count each value as a category")
 
 
 def _one(ctx: Context, name: str, stat: str, ci: str) -> Piece:
