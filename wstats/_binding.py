@@ -18,12 +18,18 @@ from wstats._column import code_type, row_tiles
 from wstats._design import BoundDesign
 from wstats._reasons import VALID
 from wstats._replicates import (
+    check_replicate_columns,
     jackknife_strata_factors,
     replicate_df,
     replicate_scale,
     resolve_replicate_columns,
 )
-from wstats.errors import DesignError, SingletonStratumError, WeightError, did_you_mean
+from wstats.errors import (
+    DesignError,
+    SingletonStratumError,
+    WeightError,
+    did_you_mean,
+)
 
 if TYPE_CHECKING:
     import numpy.typing as npt
@@ -365,6 +371,7 @@ def _replicates(design: Design, data: Dataset, rows: Index | None, w: Array, str
             f"replicate-weight column '{names[c]}' has a missing, infinite or negative value "
             f"(row {_row_no(rows, int(r))}); replicate weights must be finite and >= 0"
         )
+    check_replicate_columns(rep, names, src)
     factors = _replicate_factors(design, rep, w, stratum, n_h)
     method = design.replicate_method or ""
     scale = replicate_scale(method, len(names), design.fay_rho, design.replicate_scale)

@@ -16,6 +16,7 @@ from typing import TYPE_CHECKING, Any
 import numpy as np
 
 from wstats._reasons import VALID
+from wstats._scaling import scale_dataset, scales_for, unscale
 from wstats._stats import (
     Context,
     Mean,
@@ -29,7 +30,6 @@ from wstats._stats import (
     distinct_values,
     level_index,
 )
-from wstats._scaling import scale_dataset, scales_for, unscale
 from wstats._sums import Domains, WeightedSums, no_cell
 from wstats.errors import EstimationError, did_you_mean
 

@@ -28,12 +28,15 @@ others.
 from __future__ import annotations
 
 import fnmatch
+import hashlib
+import warnings
+from collections import Counter
 from collections.abc import Sequence
 from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
-from wstats.errors import DesignError, did_you_mean
+from wstats.errors import DesignError, WeightError, WstatsWarning, did_you_mean
 
 if TYPE_CHECKING:
     import numpy.typing as npt
@@ -42,6 +45,7 @@ if TYPE_CHECKING:
 
 __all__ = [
     "REPLICATE_SCALES",
+    "check_replicate_columns",
     "jackknife_strata_factors",
     "replicate_df",
     "replicate_scale",
@@ -77,6 +81,10 @@ def resolve_replicate_columns(
     names = list(spec)
     if not names:
         raise DesignError("the replicate-weight column list is empty; name at least 2 columns")
+    twice = [n for n, k in Counter(names).items() if k > 1]
+    if twice:
+        raise DesignError(f"replicate-weight column '{twice[0]}' is named more than once in the "
+                          "replicate list; name each replicate column once")
     for name in names:
         if name not in available:
             raise DesignError(
@@ -84,6 +92,26 @@ def resolve_replicate_columns(
                 f"{did_you_mean(name, available)}"
             )
     return names
+
+
+def check_replicate_columns(rep: Array, names: list[str], src: str) -> None:
+    """Refuse a replicate column of zeros; warn about two columns with the same values."""
+    zero = np.flatnonzero(~rep.any(axis=0))
+    if zero.size:
+        raise WeightError(
+            f"replicate-weight column '{names[int(zero[0])]}' in {src} is 0 in every row, so "
+            "no estimate can be made from it and every standard error would be blank; check "
+            "the column, or leave it out of the replicate list")
+    seen: dict[bytes, str] = {}
+    for j, name in enumerate(names):  # loop over replicate columns, not rows
+        key = hashlib.sha256(np.ascontiguousarray(rep[:, j]).tobytes()).digest()
+        if key in seen and np.array_equal(rep[:, j], rep[:, names.index(seen[key])]):
+            warnings.warn(
+                f"replicate-weight columns '{seen[key]}' and '{name}' in {src} hold the same "
+                "values, which counts one replicate twice in the variance; check the list of "
+                "replicate columns", WstatsWarning, stacklevel=2)
+            return
+        seen.setdefault(key, name)
 
 
 def replicate_scale(method: str, n_rep: int, rho: float, given: float | None) -> float:
