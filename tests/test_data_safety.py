@@ -189,9 +189,9 @@ def _failing(error: BaseException) -> Callable[..., Any]:
 @pytest.mark.parametrize(
     ("target", "error", "code"),
     [("fsync", OSError(errno.ENOSPC, "No space left on device"), 3),
-     ("replace", OSError(errno.EIO, "Input/output error"), 3),
-     ("replace", KeyboardInterrupt(), 130)],
-    ids=["disk-full-before-rename", "io-error-at-rename", "interrupted-at-rename"],
+     ("link", OSError(errno.EIO, "Input/output error"), 3),
+     ("link", KeyboardInterrupt(), 130)],
+    ids=["disk-full-before-naming", "io-error-at-naming", "interrupted-at-naming"],
 )
 @pytest.mark.parametrize(
     "argv",
@@ -227,7 +227,8 @@ def test_failed_write_leaves_nothing(in_project: Path, monkeypatch: pytest.Monke
 
 def test_failed_run_removes_what_it_wrote(in_project: Path,
                                           monkeypatch: pytest.MonkeyPatch) -> None:
-    real = os.replace
+    # A new output gets its name by a hard link (which never replaces an existing file).
+    real = os.link
     done: list[str] = []
 
     def third_fails(src: Any, dst: Any, *args: Any, **kwargs: Any) -> Any:
@@ -236,7 +237,7 @@ def test_failed_run_removes_what_it_wrote(in_project: Path,
         done.append(str(dst))
         return real(src, dst, *args, **kwargs)
 
-    monkeypatch.setattr(os, "replace", third_fails)
+    monkeypatch.setattr(os, "link", third_fails)
     assert main(["run", "analysis.toml"]) == 3
     assert len(done) == 2  # two outputs were complete before the failure ...
     assert list((in_project / "out").iterdir()) == []  # ... and were removed again

@@ -354,19 +354,9 @@ def _json(data: Mapping[str, Any]) -> str:
 
 def _write_all(rendered: Sequence[tuple[Output, bytes]], overwrite: bool) -> list[Path]:
     """Write every output atomically; on failure remove the files this run created."""
-    from wstats._io import atomic_write
+    from wstats._io import atomic_write, removing_created
 
-    created: list[Path] = []
-    written: list[Path] = []
-    try:
+    with removing_created():
         for out, data in rendered:
-            existed = out.path.exists()
             atomic_write(out.path, data, overwrite)
-            if not existed:
-                created.append(out.path)
-            written.append(out.path)
-    except BaseException:
-        for p in created:
-            p.unlink(missing_ok=True)
-        raise
-    return written
+    return [out.path for out, _ in rendered]

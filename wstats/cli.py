@@ -378,22 +378,55 @@ def main(argv: Sequence[str] | None = None) -> int:
     debug = "--debug" in argv
     _show_warnings_as_lines(debug)
     argv = [a for a in argv if a != "--debug"]
+    from wstats._io import removing_created
+
+    previous = _terminate_like_interrupt()
     try:
-        args = build_parser().parse_args(argv)
-        if not getattr(args, "_run", None):
-            build_parser().print_help()
-            return 2
-        return int(args._run(args))
+        with removing_created():
+            args = build_parser().parse_args(argv)
+            if not getattr(args, "_run", None):
+                build_parser().print_help()
+                return 2
+            return int(args._run(args))
     except WstatsError as exc:
         if debug:
             raise
         print(f"wstats: error: {one_line(str(exc))}", file=sys.stderr)
         return exc.exit_code
-    except KeyboardInterrupt:
-        print("wstats: interrupted", file=sys.stderr)
-        return 130
+    except KeyboardInterrupt as exc:
+        print("wstats: interrupted" + (" (SIGTERM)" if isinstance(exc, Terminated) else ""),
+              file=sys.stderr)
+        return 143 if isinstance(exc, Terminated) else 130
     except BrokenPipeError:
         return 0
+    finally:
+        _restore_terminate(previous)
+
+
+class Terminated(KeyboardInterrupt):
+    """SIGTERM arrived: unwound like Ctrl-C, so outputs already made are removed again."""
+
+
+def _terminate_like_interrupt() -> Any:
+    """Make SIGTERM raise :class:`Terminated` in the main thread; return the old handler."""
+    import signal
+    import threading
+
+    if threading.current_thread() is not threading.main_thread():
+        return None
+
+    def stop(signum: int, frame: Any) -> None:
+        raise Terminated()
+
+    return signal.signal(signal.SIGTERM, stop)
+
+
+def _restore_terminate(previous: Any) -> None:
+    """Put back the SIGTERM handler that was there before :func:`main`."""
+    import signal
+
+    if previous is not None:
+        signal.signal(signal.SIGTERM, previous)
 
 
 def _one_malloc_arena() -> bool:
