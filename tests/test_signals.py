@@ -46,7 +46,8 @@ OUTPUTS = ["est.json", "est.md", "est.csv", "nr.csv"]
 #: itself and pauses, then runs the command line as ``python -m wstats`` would.
 CHILD = r"""
 import os, sys, time
-step, nth, pause, ready, go = sys.argv[1], int(sys.argv[2]), float(sys.argv[3]), sys.argv[4], sys.argv[5]
+step, nth, pause = sys.argv[1], int(sys.argv[2]), float(sys.argv[3])
+ready, go = sys.argv[4], sys.argv[5]
 real = getattr(os, step)
 calls = []
 
