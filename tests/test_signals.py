@@ -63,7 +63,7 @@ def wrapped(*args, **kwargs):
     return result if step == "link" else real(*args, **kwargs)
 
 setattr(os, step, wrapped)
-from wstats.cli import main
+from wstats.cli.main import main
 sys.exit(main(sys.argv[6:]))
 """
 

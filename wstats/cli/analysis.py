@@ -353,7 +353,8 @@ def _json(data: Mapping[str, Any]) -> str:
 
 def _write_all(rendered: Sequence[tuple[Output, bytes]], overwrite: bool) -> list[Path]:
     """Write every output atomically; on failure remove the files this run created."""
-    from wstats.readers.output import atomic_write, removing_created
+    from wstats.readers.output import atomic_write
+    from wstats.readers.undo import removing_created
 
     with removing_created():
         for out, data in rendered:

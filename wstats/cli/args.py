@@ -180,7 +180,7 @@ def needed_columns(names: Sequence[str], design: Any, where: str | None, data: s
     if where:
         from wstats.decoding.expressions import expression_names
 
-        cols.extend(expression_names(where))
+        cols.extend(_not_reasons(expression_names(where), where, data))
     available = None
     if design.replicates is not None:
         from wstats.readers.dispatch import file_columns
@@ -188,6 +188,27 @@ def needed_columns(names: Sequence[str], design: Any, where: str | None, data: s
         available = file_columns(data)
     cols.extend(design.columns(available, source=data))
     return list(dict.fromkeys(cols))
+
+
+def _not_reasons(names: list[str], where: str, data: str) -> list[str]:
+    """Return *names*; refuse a reason name used as a value ('q == dont_know')."""
+    from wstats.decoding.reasons import CORE_REASONS
+
+    reasons = [n for n in names if n in CORE_REASONS]
+    if not reasons:
+        return names
+    from wstats.readers.dispatch import file_columns
+
+    present = set(file_columns(data))
+    wrong = [n for n in reasons if n not in present]
+    if wrong:
+        from wstats.errors import ExpressionError
+
+        var = next((n for n in names if n not in CORE_REASONS), "x")
+        raise ExpressionError(
+            f"--where '{where}': '{wrong[0]}' is a missing-value reason, not a variable or a "
+            f"value; select the rows missing for it with reason({var}, \"{wrong[0]}\")")
+    return names
 
 
 def add_nonresponse_args(p: argparse.ArgumentParser) -> None:

@@ -49,7 +49,7 @@ def main(argv: Sequence[str] | None = None) -> int:
     debug = "--debug" in argv
     _show_warnings_as_lines(debug)
     argv = [a for a in argv if a != "--debug"]
-    from wstats.readers.output import removing_created
+    from wstats.readers.undo import removing_created
 
     previous = _terminate_like_interrupt()
     try:

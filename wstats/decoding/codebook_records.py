@@ -228,16 +228,16 @@ class CodebookRules:
         ['AGE', 'CM', 'KG']
         """
         out: dict[str, None] = {}
-
-        def add(name: str) -> None:
-            if name in self.derived:
-                for dep in sorted(self.derived[name].expression.inputs):
-                    add(dep)
-            else:
-                out.setdefault(name)
-
+        seen: set[str] = set()
         for name in variables:
-            add(name)
+            todo = [name]  # depth first with a stack: any chain length, each derived once
+            while todo:
+                here = todo.pop()
+                if here not in self.derived:
+                    out.setdefault(here)
+                elif here not in seen:
+                    seen.add(here)
+                    todo.extend(sorted(self.derived[here].expression.inputs, reverse=True))
         return list(out)
 
 

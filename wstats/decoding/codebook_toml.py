@@ -354,23 +354,38 @@ class _Parser:
 
 
 def _topological(derived: Mapping[str, DerivedSpec], source: str) -> list[str]:
-    """Order derived variables so each comes after the derived variables it reads."""
+    """Order derived variables so each comes after the derived variables it reads.
+
+    A depth-first walk with its own stack, not recursion: a chain of thousands of derived
+    variables, each reading the one before, is as fine as a short one.
+    """
     order: list[str] = []
-    state: dict[str, int] = {}
-
-    def visit(name: str, path: tuple[str, ...]) -> None:
-        if state.get(name) == 2:
-            return
-        if state.get(name) == 1:
-            cycle = " -> ".join([*path[path.index(name):], name])
-            raise CodebookError(f"{source}: derived variables form a cycle: {cycle}; "
-                                "break it by computing one of them from raw variables")
-        state[name] = 1
-        for dep in sorted(derived[name].expression.inputs & set(derived)):
-            visit(dep, (*path, name))
-        state[name] = 2
-        order.append(name)
-
-    for name in derived:
-        visit(name, ())
+    state: dict[str, int] = {}  # 1: on the current path, 2: done
+    for root in derived:
+        if state.get(root) == 2:
+            continue
+        path: list[str] = [root]
+        todo: list[list[str]] = [_deps(derived, root)]
+        state[root] = 1
+        while todo:
+            if not todo[-1]:
+                done = path.pop()
+                todo.pop()
+                state[done] = 2
+                order.append(done)
+                continue
+            dep = todo[-1].pop()
+            if state.get(dep) == 1:
+                cycle = " -> ".join([*path[path.index(dep):], dep])
+                raise CodebookError(f"{source}: derived variables form a cycle: {cycle}; "
+                                    "break it by computing one of them from raw variables")
+            if state.get(dep) != 2:
+                state[dep] = 1
+                path.append(dep)
+                todo.append(_deps(derived, dep))
     return order
+
+
+def _deps(derived: Mapping[str, DerivedSpec], name: str) -> list[str]:
+    """Return the derived variables *name* reads, last to visit first (a stack)."""
+    return sorted(derived[name].expression.inputs & set(derived), reverse=True)

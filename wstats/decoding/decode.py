@@ -357,5 +357,21 @@ def decode_table(raw: RawTable, cb: Codebook, consume: bool = False,
                             "file_label": raw.file_label, "codebook": cb.source,
                             "file_columns": list(raw.file_columns),
                             "population": cb.population,
-                            "described": sorted(n for n in raw.columns if n in cb.variables)}
+                            "described": sorted(n for n in raw.columns if n in cb.variables),
+                            "reason_codes": _reason_codes(cb, raw.columns)}
     return Dataset(cols, vocab, raw.n_rows, raw.path, meta)
+
+
+def _reason_codes(cb: Codebook, names: Collection[str]) -> dict[str, dict[float, str]]:
+    """Return, per column, the numeric codes the codebook turns into a reason (by name).
+
+    Digit-count families are left out (they depend on the data); used only to explain a
+    ``where`` that compares a variable with such a code.
+    """
+    out: dict[str, dict[float, str]] = {}
+    for name in names:
+        codes = {code: rule.reason for code, rule in cb.codes_for(name, None).numeric.items()
+                 if rule.reason is not None}
+        if codes:
+            out[name] = codes
+    return out

@@ -16,6 +16,7 @@ from wstats.decoding.expression_syntax import (
     Arrays,
     _Binary,
     _Call,
+    _Chain,
     _constant,
     _Num,
     _Str,
@@ -23,7 +24,7 @@ from wstats.decoding.expression_syntax import (
     _Var,
 )
 from wstats.decoding.reasons import INVALID, VALID, Reasons
-from wstats.errors import ExpressionError
+from wstats.errors import ExpressionError, did_you_mean
 
 if TYPE_CHECKING:
     from wstats.decoding.columns import DecodedColumn
@@ -52,6 +53,8 @@ class Evaluator:
             return out, r
         if isinstance(node, _Binary):
             return self.binary(node)
+        if isinstance(node, _Chain):
+            return self.chain(node)
         if isinstance(node, _Call):
             return self.call(node)
         raise self.error("text is only allowed as a choice in oneof()")
@@ -75,12 +78,22 @@ class Evaluator:
 
     def binary(self, node: _Binary) -> Arrays:
         """Evaluate an operator with two operands."""
-        lv, lr = self.node(node.left)
-        rv, rr = self.node(node.right)
-        if node.op in ("and", "or"):
-            return self.kleene(node.op, lv, lr, rv, rr)
+        return self.apply(node.op, self.node(node.left), self.node(node.right))
+
+    def chain(self, node: _Chain) -> Arrays:
+        """Fold a run of one level left to right, in a loop: as long as it may be."""
+        acc = self.node(node.args[0])
+        for op, arg in zip(node.ops, node.args[1:], strict=True):
+            acc = self.apply(op, acc, self.node(arg))
+        return acc
+
+    def apply(self, op: str, left: Arrays, right: Arrays) -> Arrays:
+        """Combine two evaluated operands with *op*."""
+        (lv, lr), (rv, rr) = left, right
+        if op in ("and", "or"):
+            return self.kleene(op, lv, lr, rv, rr)
         with np.errstate(all="ignore"):
-            out = _BINARY[node.op](lv, rv)
+            out = _BINARY[op](lv, rv)
         return self.settle(out.astype(np.float64), lr, rr)
 
     def kleene(self, op: str, lv: np.ndarray, lr: np.ndarray, rv: np.ndarray,
@@ -99,6 +112,8 @@ class Evaluator:
         """Evaluate an allowed function."""
         if node.func == "oneof":
             return self.oneof(node)
+        if node.func == "reason":
+            return self.reason(node)
         if node.func == "round" and len(node.args) == 2:
             v, r = self.node(node.args[0])
             return self.settle(np.round(v, int(_constant(node.args[1]))), r)
@@ -123,6 +138,20 @@ class Evaluator:
         values = np.where(take_a, av, bv)
         reasons = np.where(cr != VALID, cr, np.where(take_a, ar, br)).astype(np.int8)
         return values, reasons
+
+    def reason(self, node: _Call) -> Arrays:
+        """Evaluate ``reason(x, "name", ...)``: 1 where x's reason is one named, else 0."""
+        first = node.args[0]
+        assert isinstance(first, _Var)  # the parser insists
+        wanted = [c.value for c in node.args[1:] if isinstance(c, _Str)]
+        unknown = [w for w in wanted if w not in self.vocab.names]
+        if unknown:
+            raise self.error(f"'{unknown[0]}' is not a reason of this data; reasons: "
+                             f"{', '.join(self.vocab.names)}"
+                             f"{did_you_mean(unknown[0], self.vocab.names)}")
+        codes = np.array([self.vocab.code(w) for w in wanted], dtype=np.int8)
+        hit = np.isin(self.data[first.name].reasons, codes)
+        return hit.astype(np.float64), np.zeros(self.n, dtype=np.int8)
 
     def oneof(self, node: _Call) -> Arrays:
         """Evaluate ``oneof(x, c1, c2, ...)`` for a numeric or a text x."""

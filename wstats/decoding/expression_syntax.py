@@ -18,7 +18,14 @@ Grammar (lowest precedence first)::
     unary   := "-" unary | power
     power   := atom ("^" unary)?                                       # right-associative
     atom    := NUMBER | NAME | NAME "(" args ")" | "(" expr ")"
-    args    := expr ("," expr)*          # strings only as oneof(x, "a", "b") choices
+    args    := expr ("," expr)*          # strings only as oneof/reason choices
+    NAME    := [A-Za-z_][A-Za-z0-9_]* | "`" any characters but "`" "`"
+
+Nesting (parentheses, calls, signs, ``not``, ``^``) is limited to ``MAX_DEPTH`` (100)
+levels; a run of one level (``a + b - c ...``, ``x or y or ...``) may be of any length.
+``reason(x, "name", ...)`` is true where x has no value for one of the named reasons (and
+false elsewhere, never missing): the way to select rows by why they are missing, since a
+code the codebook turns into a reason is no longer a value of x.
 
 Missing values: a result is valid only where every input it depends on is valid, otherwise
 its reason is ``Reasons.combine`` of the inputs' reasons; undefined arithmetic (division by
@@ -45,13 +52,14 @@ Arrays = tuple[np.ndarray, np.ndarray]
 FUNCTIONS: dict[str, tuple[int, int | None]] = {
     "if": (3, 3), "min": (2, None), "max": (2, None), "abs": (1, 1), "sqrt": (1, 1),
     "log": (1, 1), "exp": (1, 1), "round": (1, 2), "floor": (1, 1), "ceil": (1, 1),
-    "between": (3, 3), "oneof": (2, None),
+    "between": (3, 3), "oneof": (2, None), "reason": (2, None),
 }
 _KEYWORDS = frozenset({"and", "or", "not"})
 _TOKEN = re.compile(
     r"(?P<ws>\s+)"
     r"|(?P<num>(?:\d+\.?\d*|\.\d+)(?:[eE][+-]?\d+)?)"
     r"|(?P<name>[A-Za-z_][A-Za-z0-9_]*)"
+    r"|(?P<qname>`[^`]*`)"
     r"|(?P<str>\"[^\"\\]*\"|'[^'\\]*')"
     r"|(?P<op>==|!=|<=|>=|[-+*/^(),<>])"
 )
@@ -65,7 +73,9 @@ _FORBIDDEN = {
 }
 _PYTHON_WORDS = frozenset(w for w in keyword.kwlist if w.islower()) - _KEYWORDS - {"if"}
 _COMPARE = ("==", "!=", "<", "<=", ">", ">=")
-_BOOLEAN_FUNCS = ("between", "oneof")
+_BOOLEAN_FUNCS = ("between", "oneof", "reason")
+#: Functions whose arguments after the first are constant choices (numbers or quoted text).
+_CHOICE_FUNCS = ("oneof", "reason")
 
 
 @dataclass(frozen=True)
@@ -73,6 +83,7 @@ class _Tok:
     kind: str  # num, name, str, op, kw, end
     text: str
     col: int  # 1-based column
+    quoted: bool = False  # a name written between backticks
 
 
 @dataclass(frozen=True)
@@ -104,25 +115,51 @@ class _Binary:
 
 
 @dataclass(frozen=True)
+class _Chain:
+    """A run of left-associative operators of one level: args[0] ops[0] args[1] ops[1] ..."""
+
+    ops: tuple[str, ...]
+    args: tuple[_Node, ...]
+
+
+@dataclass(frozen=True)
 class _Call:
     func: str
     args: tuple[_Node, ...]
 
 
-_Node = _Num | _Str | _Var | _Unary | _Binary | _Call
+_Node = _Num | _Str | _Var | _Unary | _Binary | _Chain | _Call
+
+
+#: Deepest nesting of parentheses, calls, signs, 'not' and '^' the parser takes.
+MAX_DEPTH = 100
+#: Binding strength of the infix operators (higher binds tighter).
+_PREC = {"or": 1, "and": 2, **dict.fromkeys(_COMPARE, 4), "+": 5, "-": 5, "*": 6, "/": 6,
+         "^": 8}
+_NOT, _COMPARISON, _SIGN = 3, 4, 7
+#: Operators whose runs are kept flat (one node, folded left to right when evaluated).
+_CHAINED = frozenset({"or", "and", "+", "-", "*", "/"})
 
 
 class _Parser:
-    """Recursive-descent / precedence-climbing parser over the token list."""
+    """Precedence-climbing parser over the token list.
+
+    Each level of nesting costs three Python frames, whatever the operator, and the depth
+    is capped at :data:`MAX_DEPTH` with a one-line error; a long run of one precedence level
+    (``a + b - c + ...``, ``x or y or ...``) is read in a loop into one flat node, so its
+    length costs no depth at all.
+    """
 
     def __init__(self, text: str, where: str) -> None:
         self.text, self.where = text, where
         self.toks = _tokenize(text, self._fail)
         self.i = 0
+        self.depth = 0
 
     def _fail(self, col: int, what: str) -> ExpressionError:
         """Build the one-line error for a problem at column *col*."""
-        return ExpressionError(f"{self.where}: expression '{self.text}' column {col}: {what}")
+        shown = self.text if len(self.text) <= 80 else self.text[:77] + "..."
+        return ExpressionError(f"{self.where}: expression '{shown}' column {col}: {what}")
 
     def peek(self) -> _Tok:
         """Return the current token."""
@@ -149,72 +186,59 @@ class _Parser:
             raise self._fail(tok.col, f"unexpected '{tok.text}' after a complete expression")
         return node
 
-    def expr(self) -> _Node:
-        """Parse an ``or`` chain."""
-        node = self.conj()
-        while self.peek().text == "or" and self.peek().kind == "kw":
+    def infix(self) -> str | None:
+        """Return the infix operator at the current token, or None."""
+        tok = self.peek()
+        if (tok.kind == "kw" and tok.text in ("and", "or")) or (
+                tok.kind == "op" and tok.text in _PREC):
+            return tok.text
+        return None
+
+    def expr(self, lowest: int = 0) -> _Node:
+        """Parse operators binding at least as tight as *lowest*, one nesting level deeper."""
+        self.depth += 1
+        if self.depth > MAX_DEPTH:
+            raise self._fail(self.peek().col, f"the expression nests more than {MAX_DEPTH} "
+                             "levels deep (parentheses, calls, signs, 'not' and '^' together); "
+                             "split it into derived variables")
+        node = self.prefix(lowest)
+        while (op := self.infix()) is not None and _PREC[op] >= lowest:
+            node = self.operator(op, node)
+        self.depth -= 1
+        return node
+
+    def operator(self, op: str, left: _Node) -> _Node:
+        """Parse the right side of *op* (and, for a chained operator, the rest of its run)."""
+        col = self.take().col
+        if op == "^":  # right-associative; the exponent may carry a sign
+            return _Binary("^", left, self.expr(_SIGN))
+        if op in _COMPARE:
+            node = _Binary(op, left, self.expr(_PREC[op] + 1))
+            if self.infix() in _COMPARE:
+                raise self._fail(self.peek().col, "comparisons cannot be chained; use "
+                                 "between(x, lo, hi) or 'and'")
+            return node
+        del col
+        ops, args = [op], [left, self.expr(_PREC[op] + 1)]
+        while (nxt := self.infix()) is not None and _PREC[nxt] == _PREC[op]:
             self.take()
-            node = _Binary("or", node, self.conj())
-        return node
+            ops.append(nxt)
+            args.append(self.expr(_PREC[op] + 1))
+        if len(ops) == 1:
+            return _Binary(op, args[0], args[1])
+        return _Chain(tuple(ops), tuple(args))
 
-    def conj(self) -> _Node:
-        """Parse an ``and`` chain."""
-        node = self.negation()
-        while self.peek().text == "and" and self.peek().kind == "kw":
+    def prefix(self, lowest: int) -> _Node:
+        """Parse 'not' and sign prefixes where they may stand, else an atom."""
+        tok = self.peek()
+        if tok.kind == "kw" and tok.text == "not" and lowest <= _NOT:
             self.take()
-            node = _Binary("and", node, self.negation())
-        return node
-
-    def negation(self) -> _Node:
-        """Parse ``not`` prefixes."""
-        if self.peek().text == "not" and self.peek().kind == "kw":
+            return _Unary("not", self.expr(_NOT))
+        if tok.kind == "op" and tok.text in ("-", "+") and lowest <= _SIGN:
             self.take()
-            return _Unary("not", self.negation())
-        return self.compare()
-
-    def compare(self) -> _Node:
-        """Parse one optional comparison; chains like ``a < b < c`` are refused."""
-        node = self.sum()
-        if self.peek().kind == "op" and self.peek().text in _COMPARE:
-            op = self.take().text
-            node = _Binary(op, node, self.sum())
-            nxt = self.peek()
-            if nxt.kind == "op" and nxt.text in _COMPARE:
-                raise self._fail(nxt.col, "comparisons cannot be chained; use between(x, lo, hi)"
-                                 " or 'and'")
-        return node
-
-    def sum(self) -> _Node:
-        """Parse ``+``/``-`` chains (left-associative)."""
-        node = self.product()
-        while self.peek().kind == "op" and self.peek().text in ("+", "-"):
-            op = self.take().text
-            node = _Binary(op, node, self.product())
-        return node
-
-    def product(self) -> _Node:
-        """Parse ``*``/``/`` chains (left-associative)."""
-        node = self.unary()
-        while self.peek().kind == "op" and self.peek().text in ("*", "/"):
-            op = self.take().text
-            node = _Binary(op, node, self.unary())
-        return node
-
-    def unary(self) -> _Node:
-        """Parse unary minus (binds looser than ``^``: ``-x^2`` is ``-(x^2)``)."""
-        if self.peek().kind == "op" and self.peek().text in ("-", "+"):
-            op = self.take().text
-            arg = self.unary()
-            return _Unary("-", arg) if op == "-" else arg
-        return self.power()
-
-    def power(self) -> _Node:
-        """Parse ``^`` (right-associative)."""
-        node = self.atom()
-        if self.peek().kind == "op" and self.peek().text == "^":
-            self.take()
-            node = _Binary("^", node, self.unary())
-        return node
+            arg = self.expr(_SIGN)  # binds looser than '^': -x^2 is -(x^2)
+            return _Unary("-", arg) if tok.text == "-" else arg
+        return self.atom()
 
     def atom(self) -> _Node:
         """Parse a number, a variable, a call or a parenthesised expression."""
@@ -226,13 +250,17 @@ class _Parser:
             self.expect(")")
             return node
         if tok.kind == "name":
-            if self.peek().kind == "op" and self.peek().text == "(":
+            if self.peek().kind == "op" and self.peek().text == "(" and not tok.quoted:
                 return self.call(tok)
             return _Var(tok.text)
         if tok.kind == "str":
-            raise self._fail(tok.col, "text is only allowed as a choice in oneof(x, \"a\", ...)")
+            raise self._fail(tok.col, "text is only allowed as a choice in oneof(x, \"a\", ...) "
+                             "and reason(x, \"name\", ...)")
         if tok.kind == "end":
             raise self._fail(tok.col, "the expression ends too early")
+        if tok.kind == "kw":
+            raise self._fail(tok.col, f"'{tok.text}' cannot stand here; put the part it "
+                             "applies to in parentheses")
         raise self._fail(tok.col, f"unexpected '{tok.text}'")
 
     def call(self, name: _Tok) -> _Node:
@@ -245,7 +273,7 @@ class _Parser:
         args: list[_Node] = [self.expr()] if self.peek().text != ")" else []
         while self.peek().kind == "op" and self.peek().text == ",":
             self.take()
-            args.append(self.choice() if name.text == "oneof" else self.expr())
+            args.append(self.choice(name.text) if name.text in _CHOICE_FUNCS else self.expr())
         self.expect(")")
         low, high = FUNCTIONS[name.text]
         if len(args) < low or (high is not None and len(args) > high):
@@ -253,15 +281,20 @@ class _Parser:
             raise self._fail(name.col, f"{name.text}() takes {want} arguments, got {len(args)}")
         if name.text == "round" and len(args) == 2 and not _is_constant(args[1]):
             raise self._fail(name.col, "round(x, digits) needs a number for digits")
+        if name.text == "reason" and not isinstance(args[0], _Var):
+            raise self._fail(name.col, "reason(x, \"name\", ...) needs a variable as x")
         return _Call(name.text, tuple(args))
 
-    def choice(self) -> _Node:
-        """Parse a constant choice of oneof: a number, a negative number or a string."""
+    def choice(self, func: str) -> _Node:
+        """Parse a constant choice of oneof or reason: a (signed) number or quoted text."""
         tok = self.peek()
         if tok.kind == "str":
             self.take()
             return _Str(tok.text[1:-1])
-        node = self.unary()
+        if func == "reason":
+            raise self._fail(tok.col, "reason() names reasons in quotes, e.g. "
+                             "reason(x, \"refused\")")
+        node = self.expr(_SIGN)
         if not _is_constant(node):
             raise self._fail(tok.col, "oneof() choices must be numbers or quoted text")
         return node
@@ -288,23 +321,14 @@ def _tokenize(text: str, fail: Callable[[int, str], ExpressionError]) -> list[_T
     while pos < len(text):
         m = _TOKEN.match(text, pos)
         if m is None or (m.lastgroup == "op" and text.startswith("**", pos)):
-            ch = text[pos]
-            what = _FORBIDDEN.get(ch, f"character '{ch}' is not part of the expression language")
-            if ch in "\"'":
-                what = "unterminated or escaped text"
-            raise fail(pos + 1, what)
+            raise fail(pos + 1, _refused(text, pos))
         kind = m.lastgroup or "ws"
         word = m.group()
-        if kind == "name" and word.startswith("__"):
-            raise fail(pos + 1, f"names starting with '__' such as '{word}' are not allowed")
-        if kind == "num" and m.end() < len(text) and (text[m.end()].isalpha()
-                                                      or text[m.end()] in "._"):
-            raise fail(m.end() + 1, f"unexpected '{text[m.end()]}' after the number '{word}'")
-        if kind == "name" and word in _PYTHON_WORDS:
-            raise fail(pos + 1, f"'{word}' is not part of the expression language")
-        if kind == "name" and m.end() < len(text) and text[m.end()] in ".[":
-            raise fail(m.end() + 1, _FORBIDDEN[text[m.end()]])
-        if kind != "ws":
+        if kind == "qname":
+            toks.append(_quoted(word, pos, fail))
+        else:
+            _check_word(text, m, fail)
+        if kind not in ("ws", "qname"):
             toks.append(_Tok("kw" if kind == "name" and word in _KEYWORDS else kind, word,
                              pos + 1))
         pos = m.end()
@@ -312,21 +336,73 @@ def _tokenize(text: str, fail: Callable[[int, str], ExpressionError]) -> list[_T
     return toks
 
 
-def _names(node: _Node) -> frozenset[str]:
-    """Collect the variable names a tree refers to."""
-    if isinstance(node, _Var):
-        return frozenset({node.name})
+def _refused(text: str, pos: int) -> str:
+    """Say why the character at *pos* cannot start a token."""
+    ch = text[pos]
+    if ch in "\"'":
+        return "unterminated or escaped text"
+    if ch == "`":
+        return "a name in backticks needs a closing backtick"
+    if ch in _FORBIDDEN:
+        return _FORBIDDEN[ch]
+    if ch.isalpha() or ch.isdigit():
+        return (f"character '{ch}' cannot be part of a plain name; write a name with such "
+                "characters between backticks, e.g. `größe` > 3")
+    return f"character '{ch}' is not part of the expression language"
+
+
+def _quoted(word: str, pos: int, fail: Callable[[int, str], ExpressionError]) -> _Tok:
+    """Return the name token of a backtick-quoted name."""
+    name = word[1:-1]
+    if not name.strip():
+        raise fail(pos + 1, "a name in backticks is empty")
+    if name.startswith("__"):
+        raise fail(pos + 1, f"names starting with '__' such as '{name}' are not allowed")
+    return _Tok("name", name, pos + 1, quoted=True)
+
+
+def _check_word(text: str, m: re.Match[str], fail: Callable[[int, str], ExpressionError]
+                ) -> None:
+    """Refuse dunder names, Python words, and a number or name glued to what follows."""
+    kind, word, pos = m.lastgroup, m.group(), m.start()
+    if kind == "name" and word.startswith("__"):
+        raise fail(pos + 1, f"names starting with '__' such as '{word}' are not allowed")
+    if kind == "num" and m.end() < len(text) and (text[m.end()].isalpha()
+                                                  or text[m.end()] in "._"):
+        raise fail(m.end() + 1, f"unexpected '{text[m.end()]}' after the number '{word}'")
+    if kind == "name" and word in _PYTHON_WORDS:
+        raise fail(pos + 1, f"'{word}' is not part of the expression language")
+    if kind == "name" and m.end() < len(text) and text[m.end()] in ".[":
+        raise fail(m.end() + 1, _FORBIDDEN[text[m.end()]])
+
+
+def _children(node: _Node) -> tuple[_Node, ...]:
+    """Return the nodes directly below *node*."""
     if isinstance(node, _Unary):
-        return _names(node.arg)
+        return (node.arg,)
     if isinstance(node, _Binary):
-        return _names(node.left) | _names(node.right)
-    if isinstance(node, _Call):
-        return frozenset().union(*(_names(a) for a in node.args))
-    return frozenset()
+        return (node.left, node.right)
+    if isinstance(node, _Chain | _Call):
+        return node.args
+    return ()
+
+
+def _names(node: _Node) -> frozenset[str]:
+    """Collect the variable names a tree refers to (iteratively: any depth)."""
+    found: set[str] = set()
+    todo = [node]
+    while todo:
+        here = todo.pop()
+        if isinstance(here, _Var):
+            found.add(here.name)
+        todo.extend(_children(here))
+    return frozenset(found)
 
 
 def _is_boolean(node: _Node) -> bool:
     """Tell whether the tree yields 1/0 truth values."""
+    if isinstance(node, _Chain):
+        return node.ops[0] in ("and", "or")
     if isinstance(node, _Binary):
         return node.op in _COMPARE or node.op in ("and", "or")
     if isinstance(node, _Unary):

@@ -17,16 +17,23 @@ from wstats.decoding.columns import DecodedColumn
 from wstats.decoding.expression_eval import Evaluator
 from wstats.decoding.expression_syntax import (
     FUNCTIONS,
+    MAX_DEPTH,
+    _Binary,
+    _Call,
+    _children,
+    _constant,
     _is_boolean,
+    _is_constant,
     _names,
     _Node,
     _Parser,
     _tokenize,
+    _Var,
 )
 from wstats.decoding.reasons import VALID, Reasons
 from wstats.errors import ExpressionError, did_you_mean
 
-__all__ = ["FUNCTIONS", "Expression", "expression_names", "parse_expression"]
+__all__ = ["FUNCTIONS", "MAX_DEPTH", "Expression", "expression_names", "parse_expression"]
 
 
 @dataclass(frozen=True)
@@ -46,6 +53,29 @@ class Expression:
     inputs: frozenset[str]
     boolean: bool
     _root: _Node
+
+    def compared_codes(self) -> list[tuple[str, float]]:
+        """Return the (variable, number) pairs the expression tests for equality.
+
+        From ``x == 7``, ``7 == x`` and ``oneof(x, 7, 8)``: used to explain a condition that
+        selects no row because the number is a code the codebook turned into a reason.
+        """
+        found: list[tuple[str, float]] = []
+        todo = [self._root]
+        while todo:
+            node = todo.pop()
+            todo.extend(_children(node))
+            if isinstance(node, _Binary) and node.op == "==":
+                sides = (node.left, node.right)
+                var = next((x for x in sides if isinstance(x, _Var)), None)
+                num = next((x for x in sides if _is_constant(x)), None)
+                if var is not None and num is not None:
+                    found.append((var.name, _constant(num)))
+            elif isinstance(node, _Call) and node.func == "oneof" and isinstance(
+                    node.args[0], _Var):
+                found += [(node.args[0].name, _constant(c)) for c in node.args[1:]
+                          if _is_constant(c)]
+        return found
 
     def evaluate(
         self,
@@ -112,7 +142,12 @@ def parse_expression(text: str, known: Collection[str] | None, where: str) -> Ex
     if not isinstance(text, str) or not text.strip():
         raise ExpressionError(f"{where}: the expression is empty; write e.g. 'A / B'")
     parser = _Parser(text, where)
-    root = parser.parse()
+    try:
+        root = parser.parse()
+    except RecursionError:  # a caller already deep in its own stack: same answer as the cap
+        raise parser._fail(1, f"the expression nests too deeply for the space left (the "
+                           f"limit is {MAX_DEPTH} levels); split it into derived "
+                           "variables") from None
     inputs = _names(root)
     if known is not None:
         known_set = set(known)

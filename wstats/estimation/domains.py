@@ -14,10 +14,13 @@ import numpy as np
 if TYPE_CHECKING:
     import numpy.typing as npt
 
+    from wstats.decoding.columns import Dataset
+    from wstats.decoding.expressions import Expression
+
     Index = npt.NDArray[np.int64]
     Bool = npt.NDArray[np.bool_]
 
-__all__ = ["Domains", "no_cell"]
+__all__ = ["Domains", "empty_where_note", "no_cell"]
 
 @dataclass(frozen=True, eq=False)
 class Domains:
@@ -58,3 +61,22 @@ def no_cell(n: int) -> Index:
     A broadcast view of one value: no memory per row.
     """
     return np.broadcast_to(np.int64(-1), (n,))
+
+
+def empty_where_note(where: str, expr: Expression, data: Dataset) -> str:
+    """Explain a ``where`` condition that selects no row (a legitimate, empty answer).
+
+    When it tests a variable for a number that the codebook turns into a missing reason,
+    the number is no longer a value of the variable: say so, and how to select by reason.
+    """
+    source = f" of {data.source}" if data.source else ""
+    note = (f"where '{where}' selects no row{source}, so every estimate has n = 0 and no "
+            "value")
+    codes = data.metadata.get("reason_codes", {})
+    for name, value in expr.compared_codes():
+        reason = codes.get(name, {}).get(value)
+        if reason is not None:
+            return (f"{note}; {value:g} is a code the codebook turns into the reason "
+                    f"'{reason}' for {name}, so it is no longer a value of {name}: select "
+                    f"those rows with reason({name}, \"{reason}\")")
+    return note + "; check the condition against the values in the data"

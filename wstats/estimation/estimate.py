@@ -10,14 +10,15 @@ the full design (all strata and PSUs) is kept for its variance.
 from __future__ import annotations
 
 import itertools
+import warnings
 from collections.abc import Callable, Sequence
 from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
 from wstats.decoding.reasons import VALID
-from wstats.errors import EstimationError, did_you_mean
-from wstats.estimation.domains import Domains, no_cell
+from wstats.errors import EstimationError, WstatsWarning, did_you_mean
+from wstats.estimation.domains import Domains, empty_where_note, no_cell
 from wstats.estimation.levels import category_levels, distinct_values, level_index
 from wstats.estimation.scaling import scale_dataset, scales_for, unscale
 from wstats.estimation.statistics import (
@@ -278,6 +279,8 @@ def _domains(data: Dataset, bound: BoundDesign, by: list[str], where: str | None
         values, reasons = expr.evaluate(data.columns, data.vocabulary, data.n_rows)
         ok = (reasons == VALID) & (np.nan_to_num(values, nan=0.0) != 0)
         inside = ok if bound.rows is None else ok[bound.rows]
+        if not inside.any():
+            warnings.warn(empty_where_note(where, expr, data), WstatsWarning, stacklevel=3)
     codes: list[Index] = []
     levels: list[tuple[list[Any], list[Any]]] = []
     for name in by:

@@ -21,11 +21,9 @@ from pathlib import Path
 from typing import IO, Any, Literal, overload
 
 from wstats.errors import OutputError, ReadError
+from wstats.readers.undo import forget, record, signals_held
 
-__all__ = [
-    "atomic_output", "atomic_write", "check_output", "prefetch_sha256", "removing_created",
-    "sha256_of", "signals_held",
-]
+__all__ = ["atomic_output", "atomic_write", "check_output", "prefetch_sha256", "sha256_of"]
 
 _CHUNK = 1 << 20
 _FULL = (errno.ENOSPC, errno.EDQUOT)
@@ -138,24 +136,22 @@ def _place(tmp: Path, target: Path, overwrite: bool) -> None:
     exists, even if another process made it a moment ago: an existence check followed by a
     rename would let two concurrent runs replace each other's outputs. With *overwrite* a
     new name is linked too, and an existing one replaced by rename. Inside
-    :func:`removing_created` the creation is recorded (with the inode) before the name
-    appears, so an interruption right after it still finds the file to remove; a record
-    whose name holds another file (or none) is harmless.
+    :func:`~wstats.readers.undo.removing_created` the creation is recorded (with the
+    inode) before the name appears, so an interruption right after it still finds the file
+    to remove; a record whose name holds another file (or none) is harmless.
     """
-    record = (target, tmp.stat().st_ino)
-    if _DEPTH[0]:
-        _CREATED.append(record)
+    entry = record(target, tmp.stat().st_ino)
     try:
         os.link(tmp, target)
         return
     except FileExistsError:
-        _forget(record)
+        forget(entry)
     except OSError as exc:
         if exc.errno not in _NO_LINKS:
-            _forget(record)
+            forget(entry)
             raise
         if target.exists():  # a file system without hard links: checked, not atomic
-            _forget(record)
+            forget(entry)
         elif not os.path.lexists(target):
             os.replace(tmp, target)
             return
@@ -165,82 +161,8 @@ def _place(tmp: Path, target: Path, overwrite: bool) -> None:
     os.replace(tmp, target)
 
 
-def _forget(record: tuple[Path, int]) -> None:
-    """Drop a creation record: the name turned out to be taken."""
-    if record in _CREATED:
-        _CREATED.remove(record)
-
-
-#: Outputs created inside :func:`removing_created` blocks: (path, inode), in order.
-_CREATED: list[tuple[Path, int]] = []
-#: How many :func:`removing_created` blocks are open (a list, to change it in place).
-_DEPTH = [0]
 #: errno values of a file system that cannot make hard links.
 _NO_LINKS = (errno.EPERM, errno.ENOTSUP, errno.EOPNOTSUPP, errno.EXDEV, errno.EMLINK)
-
-
-@contextmanager
-def removing_created() -> Iterator[list[Path]]:
-    """Remove, when the block fails or is interrupted, every output it created.
-
-    Yields the list of paths created so far (filled as outputs are written). Only a file
-    still holding the inode this process wrote is removed: a path that another process has
-    since taken over, or one that existed before (replaced with ``overwrite``), is left
-    alone. Signals wait while the files are removed.
-
-    Examples
-    --------
-    >>> with removing_created():  # doctest: +SKIP
-    ...     atomic_write("a.csv", "x\n")
-    ...     atomic_write("b.csv", "y\n")  # if this fails, a.csv is removed again
-    """
-    start = len(_CREATED)
-    created: list[Path] = []
-    _DEPTH[0] += 1
-    try:
-        yield created
-    except BaseException:
-        with signals_held():
-            for path, ino in reversed(_CREATED[start:]):
-                _remove_if_ours(path, ino)
-            del _CREATED[start:]
-        raise
-    finally:
-        _DEPTH[0] -= 1
-        created.extend(p for p, _ in _CREATED[start:])
-        if _DEPTH[0] == 0:  # nobody left to undo them: forget the records
-            del _CREATED[start:]
-
-
-def _remove_if_ours(path: Path, ino: int) -> None:
-    """Unlink *path* if it is still the file with inode *ino*."""
-    try:
-        if os.lstat(path).st_ino == ino:
-            os.unlink(path)
-    except OSError:
-        pass
-
-
-@contextmanager
-def signals_held() -> Iterator[None]:
-    """Let SIGINT and SIGTERM wait until the block is done (main thread, POSIX only).
-
-    Used around the steps that must not be cut in half: creating and naming an output,
-    recording it, and removing files after a failure. A signal that arrives meanwhile is
-    delivered as soon as the block ends.
-    """
-    import signal
-
-    if not hasattr(signal, "pthread_sigmask") or threading.current_thread() is not \
-            threading.main_thread():
-        yield
-        return
-    wanted = {signal.SIGINT, signal.SIGTERM}
-    old = signal.pthread_sigmask(signal.SIG_BLOCK, wanted)
-    try:
-        yield
-    finally:
-        signal.pthread_sigmask(signal.SIG_SETMASK, old)
 
 
 def atomic_write(path: str | os.PathLike[str], data: str | bytes, overwrite: bool = False) -> None:
