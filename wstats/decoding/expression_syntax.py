@@ -37,13 +37,11 @@ reason of the branch it selects (or of ``c`` when ``c`` is not valid).
 
 from __future__ import annotations
 
-import keyword
-import re
-from collections.abc import Callable
 from dataclasses import dataclass
 
 import numpy as np
 
+from wstats.decoding.expression_tokens import Tok, tokenize
 from wstats.errors import ExpressionError, did_you_mean
 
 Arrays = tuple[np.ndarray, np.ndarray]
@@ -54,36 +52,10 @@ FUNCTIONS: dict[str, tuple[int, int | None]] = {
     "log": (1, 1), "exp": (1, 1), "round": (1, 2), "floor": (1, 1), "ceil": (1, 1),
     "between": (3, 3), "oneof": (2, None), "reason": (2, None),
 }
-_KEYWORDS = frozenset({"and", "or", "not"})
-_TOKEN = re.compile(
-    r"(?P<ws>\s+)"
-    r"|(?P<num>(?:\d+\.?\d*|\.\d+)(?:[eE][+-]?\d+)?)"
-    r"|(?P<name>[A-Za-z_][A-Za-z0-9_]*)"
-    r"|(?P<qname>`[^`]*`)"
-    r"|(?P<str>\"[^\"\\]*\"|'[^'\\]*')"
-    r"|(?P<op>==|!=|<=|>=|[-+*/^(),<>])"
-)
-_FORBIDDEN = {
-    ".": "attribute access is not allowed", "[": "indexing is not allowed",
-    "]": "indexing is not allowed", "=": "assignment is not allowed (compare with ==)",
-    "%": "'%' is not an operator here", "*": "'**' is not an operator (use ^)",
-    "&": "use 'and'", "|": "use 'or'", "!": "use 'not' or '!='", ":": "':' is not allowed",
-    "{": "braces are not allowed", "}": "braces are not allowed", "@": "'@' is not allowed",
-    "#": "comments are not allowed", ";": "';' is not allowed", "\\": "'\\' is not allowed",
-}
-_PYTHON_WORDS = frozenset(w for w in keyword.kwlist if w.islower()) - _KEYWORDS - {"if"}
 _COMPARE = ("==", "!=", "<", "<=", ">", ">=")
 _BOOLEAN_FUNCS = ("between", "oneof", "reason")
 #: Functions whose arguments after the first are constant choices (numbers or quoted text).
 _CHOICE_FUNCS = ("oneof", "reason")
-
-
-@dataclass(frozen=True)
-class _Tok:
-    kind: str  # num, name, str, op, kw, end
-    text: str
-    col: int  # 1-based column
-    quoted: bool = False  # a name written between backticks
 
 
 @dataclass(frozen=True)
@@ -152,7 +124,7 @@ class _Parser:
 
     def __init__(self, text: str, where: str) -> None:
         self.text, self.where = text, where
-        self.toks = _tokenize(text, self._fail)
+        self.toks = tokenize(text, self._fail)
         self.i = 0
         self.depth = 0
 
@@ -161,11 +133,11 @@ class _Parser:
         shown = self.text if len(self.text) <= 80 else self.text[:77] + "..."
         return ExpressionError(f"{self.where}: expression '{shown}' column {col}: {what}")
 
-    def peek(self) -> _Tok:
+    def peek(self) -> Tok:
         """Return the current token."""
         return self.toks[self.i]
 
-    def take(self) -> _Tok:
+    def take(self) -> Tok:
         """Consume and return the current token."""
         tok = self.toks[self.i]
         self.i += 1
@@ -263,7 +235,7 @@ class _Parser:
                              "applies to in parentheses")
         raise self._fail(tok.col, f"unexpected '{tok.text}'")
 
-    def call(self, name: _Tok) -> _Node:
+    def call(self, name: Tok) -> _Node:
         """Parse the arguments of an allowed function call."""
         if name.text not in FUNCTIONS:
             allowed = ", ".join(sorted(FUNCTIONS))
@@ -312,68 +284,6 @@ def _constant(node: _Node) -> float:
         return node.value
     assert isinstance(node, _Unary) and isinstance(node.arg, _Num)
     return -node.arg.value
-
-
-def _tokenize(text: str, fail: Callable[[int, str], ExpressionError]) -> list[_Tok]:
-    """Split *text* into tokens, rejecting any character outside the grammar."""
-    toks: list[_Tok] = []
-    pos = 0
-    while pos < len(text):
-        m = _TOKEN.match(text, pos)
-        if m is None or (m.lastgroup == "op" and text.startswith("**", pos)):
-            raise fail(pos + 1, _refused(text, pos))
-        kind = m.lastgroup or "ws"
-        word = m.group()
-        if kind == "qname":
-            toks.append(_quoted(word, pos, fail))
-        else:
-            _check_word(text, m, fail)
-        if kind not in ("ws", "qname"):
-            toks.append(_Tok("kw" if kind == "name" and word in _KEYWORDS else kind, word,
-                             pos + 1))
-        pos = m.end()
-    toks.append(_Tok("end", "", len(text) + 1))
-    return toks
-
-
-def _refused(text: str, pos: int) -> str:
-    """Say why the character at *pos* cannot start a token."""
-    ch = text[pos]
-    if ch in "\"'":
-        return "unterminated or escaped text"
-    if ch == "`":
-        return "a name in backticks needs a closing backtick"
-    if ch in _FORBIDDEN:
-        return _FORBIDDEN[ch]
-    if ch.isalpha() or ch.isdigit():
-        return (f"character '{ch}' cannot be part of a plain name; write a name with such "
-                "characters between backticks, e.g. `größe` > 3")
-    return f"character '{ch}' is not part of the expression language"
-
-
-def _quoted(word: str, pos: int, fail: Callable[[int, str], ExpressionError]) -> _Tok:
-    """Return the name token of a backtick-quoted name."""
-    name = word[1:-1]
-    if not name.strip():
-        raise fail(pos + 1, "a name in backticks is empty")
-    if name.startswith("__"):
-        raise fail(pos + 1, f"names starting with '__' such as '{name}' are not allowed")
-    return _Tok("name", name, pos + 1, quoted=True)
-
-
-def _check_word(text: str, m: re.Match[str], fail: Callable[[int, str], ExpressionError]
-                ) -> None:
-    """Refuse dunder names, Python words, and a number or name glued to what follows."""
-    kind, word, pos = m.lastgroup, m.group(), m.start()
-    if kind == "name" and word.startswith("__"):
-        raise fail(pos + 1, f"names starting with '__' such as '{word}' are not allowed")
-    if kind == "num" and m.end() < len(text) and (text[m.end()].isalpha()
-                                                  or text[m.end()] in "._"):
-        raise fail(m.end() + 1, f"unexpected '{text[m.end()]}' after the number '{word}'")
-    if kind == "name" and word in _PYTHON_WORDS:
-        raise fail(pos + 1, f"'{word}' is not part of the expression language")
-    if kind == "name" and m.end() < len(text) and text[m.end()] in ".[":
-        raise fail(m.end() + 1, _FORBIDDEN[text[m.end()]])
 
 
 def _children(node: _Node) -> tuple[_Node, ...]:

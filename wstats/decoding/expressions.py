@@ -27,9 +27,9 @@ from wstats.decoding.expression_syntax import (
     _names,
     _Node,
     _Parser,
-    _tokenize,
     _Var,
 )
+from wstats.decoding.expression_tokens import tokenize
 from wstats.decoding.reasons import VALID, Reasons
 from wstats.errors import ExpressionError, did_you_mean
 
@@ -167,5 +167,5 @@ def expression_names(text: str, where: str = "--where") -> list[str]:
     ['dm_age', 'ar_dist']
     """
     expr = parse_expression(text, None, where)
-    toks = _tokenize(text, _Parser(text, where)._fail)
+    toks = tokenize(text, _Parser(text, where)._fail)
     return list(dict.fromkeys(t.text for t in toks if t.kind == "name" and t.text in expr.inputs))
