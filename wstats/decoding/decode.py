@@ -358,7 +358,9 @@ def decode_table(raw: RawTable, cb: Codebook, consume: bool = False,
                             "file_columns": list(raw.file_columns),
                             "population": cb.population,
                             "described": sorted(n for n in raw.columns if n in cb.variables),
-                            "reason_codes": _reason_codes(cb, raw.columns)}
+                            "reason_codes": _reason_codes(cb, raw.columns),
+                            "exact_integers": [n for n, c in raw.columns.items()
+                                               if c.exact_integers]}
     return Dataset(cols, vocab, raw.n_rows, raw.path, meta)
 
 

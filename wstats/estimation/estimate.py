@@ -20,7 +20,7 @@ from wstats.decoding.reasons import VALID
 from wstats.errors import EstimationError, WstatsWarning, did_you_mean
 from wstats.estimation.domains import Domains, empty_where_note, no_cell
 from wstats.estimation.levels import category_levels, distinct_values, level_index
-from wstats.estimation.scaling import scale_dataset, scales_for, unscale
+from wstats.estimation.scaling import as_numbers, scale_dataset, scales_for, unscale
 from wstats.estimation.statistics import (
     Context,
     Mean,
@@ -106,6 +106,9 @@ def estimate(
 
     stats = _check_options(statistics, level, proportion_ci, quantiles)
     _check_names(data, [*variables, *by, *categorical, *(v for r in ratios for v in r)])
+    numbers = [v for v in [*variables, *(x for r in ratios for x in r)]
+               if v not in categorical and v not in by]
+    data = as_numbers(data, numbers)
     scales = _scales(data, design, variables, set(categorical), ratios)
     scaled = scale_dataset(data, scales)
     bound = design.bind(scaled)

@@ -15,18 +15,19 @@ ordinary data (every magnitude within the limits) are not copied at all.
 from __future__ import annotations
 
 import dataclasses
+import warnings
 from collections.abc import Iterable, Mapping, Sequence
 from typing import TYPE_CHECKING
 
 import numpy as np
 
 from wstats.decoding.columns import Dataset, row_tiles
-from wstats.errors import EstimationError
+from wstats.errors import EstimationError, WstatsWarning
 
 if TYPE_CHECKING:
     from wstats.estimation.statistics import Piece
 
-__all__ = ["LIMIT", "scale_dataset", "scales_for", "unscale"]
+__all__ = ["LIMIT", "as_numbers", "scale_dataset", "scales_for", "unscale"]
 
 #: Magnitudes up to 2**LIMIT (about 1.3e30) and down to 2**-LIMIT are used as they are.
 LIMIT = 100
@@ -53,6 +54,32 @@ def _largest(values: np.ndarray) -> float:
         part = part[np.isfinite(part)]
         top = max(top, float(part.max(initial=0.0)))
     return top
+
+
+def as_numbers(data: Dataset, names: Iterable[str]) -> Dataset:
+    """Return *data* with its whole-number identifiers beyond 2**53 among *names* as floats.
+
+    Such a column is kept as exact decimal text (so that PSUs and strata stay distinct);
+    analysed as a number it can only be rounded to float64, which is said once.
+    """
+    exact = set(data.metadata.get("exact_integers", ())) & set(names)
+    wanted = [n for n in names if n in exact and data.columns[n].kind == "text"]
+    if not wanted:
+        return data
+    import pandas as pd
+
+    cols = dict(data.columns)
+    for name in dict.fromkeys(wanted):
+        col = cols[name]
+        values = pd.to_numeric(pd.Series(col.values, dtype=object).replace("", None),
+                               errors="coerce").to_numpy(dtype=np.float64, na_value=np.nan)
+        cols[name] = col.replace(values=values, reasons=col.reasons, kind="continuous")
+        warnings.warn(
+            f"variable {name} holds whole numbers beyond 2^53 (9,007,199,254,740,992), which "
+            "a float cannot keep exactly: its estimates use them rounded to about 16 "
+            "significant digits (as identifiers, in --strata/--psu/--by, they stay exact)",
+            WstatsWarning, stacklevel=3)
+    return dataclasses.replace(data, columns=cols)
 
 
 def scale_dataset(data: Dataset, scales: Mapping[str, float]) -> Dataset:

@@ -26,7 +26,7 @@ import numpy as np
 
 from wstats.errors import ColumnError, ReadError
 from wstats.readers.common import Rows, progress_bar, select_columns
-from wstats.readers.raw import RawColumn, RawTable
+from wstats.readers.raw import EXACT_LIMIT, RawColumn, RawTable
 
 if TYPE_CHECKING:
     import pyarrow as pa
@@ -158,7 +158,11 @@ def _cache_info(path: Path, schema: pa.Schema) -> dict[str, Any]:
 
 def _raw_column(path: Path, table: pa.Table, name: str, info: dict[str, Any]) -> RawColumn:
     """Build one RawColumn from its Parquet column and its cache description."""
-    data, numeric = _to_numpy(path, name, table.column(name))
+    exact = _beyond_float(table.column(name))
+    if exact:  # whole numbers beyond 2**53: decimal text keeps each one distinct
+        data, numeric = _decimal_text(table.column(name)), False
+    else:
+        data, numeric = _to_numpy(path, name, table.column(name))
     tag_name = TAGS_PREFIX + name
     tags = None
     if tag_name in table.column_names:
@@ -172,7 +176,34 @@ def _raw_column(path: Path, table: pa.Table, name: str, info: dict[str, Any]) ->
         user_missing=[_missing(item) for item in info.get("user_missing", [])],
         numeric=numeric,
         format=info.get("format"),
+        exact_integers=exact,
     )
+
+
+def _beyond_float(column: pa.ChunkedArray) -> bool:
+    """Tell whether an integer column holds a value float64 cannot hold exactly."""
+    import pyarrow as pa
+    import pyarrow.compute as pc
+
+    kind = column.type
+    if pa.types.is_dictionary(kind):
+        kind = kind.value_type
+    if not pa.types.is_integer(kind) or kind.bit_width < 54:
+        return False
+    bounds = pc.min_max(column if kind == column.type else column.cast(kind))
+    low, high = bounds["min"].as_py(), bounds["max"].as_py()
+    return low is not None and max(abs(low), abs(high)) > EXACT_LIMIT
+
+
+def _decimal_text(column: pa.ChunkedArray) -> np.ndarray:
+    """Return an integer column as an object array of decimal text ("" for null)."""
+    import pyarrow as pa
+
+    text = column.cast(pa.string()).combine_chunks() if not pa.types.is_dictionary(
+        column.type) else column.cast(column.type.value_type).cast(pa.string()).combine_chunks()
+    out = np.asarray(text.to_numpy(zero_copy_only=False), dtype=object)
+    out[np.asarray(text.is_null().to_numpy(zero_copy_only=False), dtype=bool)] = ""
+    return out
 
 
 def _to_numpy(path: Path, name: str, column: pa.ChunkedArray) -> tuple[np.ndarray, bool]:

@@ -6,7 +6,10 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-__all__ = ["RawColumn", "RawTable"]
+__all__ = ["EXACT_LIMIT", "RawColumn", "RawTable", "exact_integer_text"]
+
+#: Whole numbers up to this magnitude (2**53) are exact in float64; beyond it they may not be.
+EXACT_LIMIT = 2**53
 
 
 @dataclass(eq=False)
@@ -29,6 +32,9 @@ class RawColumn:
         and ``(low, high)`` ranges, inclusive. The raw codes stay in ``data``.
     numeric : True for numeric columns.
     format : the display format declared in the file (e.g. ``F8.2``), or None.
+    exact_integers : True for a column of whole numbers some of which lie beyond 2**53,
+        where float64 would round neighbours together (identifiers of PSUs, strata,
+        persons): it is kept as text, in decimal, so that every value stays distinct.
     """
 
     name: str
@@ -39,6 +45,7 @@ class RawColumn:
     user_missing: list[float | str | tuple[float, float]] = field(default_factory=list)
     numeric: bool = True
     format: str | None = None
+    exact_integers: bool = False
 
 
 @dataclass(eq=False)
@@ -64,3 +71,25 @@ class RawTable:
     columns: dict[str, RawColumn]
     file_columns: list[str]
     file_label: str | None = None
+
+
+def exact_integer_text(cells: np.ndarray, numbers: np.ndarray) -> np.ndarray | None:
+    """Return whole-number text cells in plain decimal when float64 would round them.
+
+    *cells* are the column's text (object array, "" for blank) and *numbers* their float64
+    parse. None when every value is within :data:`EXACT_LIMIT` (float64 is exact) or when a
+    cell is not a plain whole number (a decimal point, an exponent: a measurement, not an
+    identifier).
+    """
+    import pandas as pd
+
+    big = np.abs(numbers) > EXACT_LIMIT
+    if not big.any():
+        return None
+    text = pd.Series(cells, dtype=object).fillna("").astype(str).str.strip()
+    filled = text != ""
+    if not text[filled].str.fullmatch(r"[+-]?\d+").all():
+        return None
+    plain = text.str.replace(r"^\+", "", regex=True).str.replace(r"^(-?)0+(?=\d)", r"\1",
+                                                                  regex=True)
+    return np.asarray(plain.where(filled, ""), dtype=object)

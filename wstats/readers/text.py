@@ -22,7 +22,7 @@ import numpy as np
 
 from wstats.errors import ReadError
 from wstats.readers.common import Rows, encoding_error, progress_bar, select_columns
-from wstats.readers.raw import RawColumn, RawTable
+from wstats.readers.raw import RawColumn, RawTable, exact_integer_text
 
 if TYPE_CHECKING:
     import pandas as pd
@@ -307,6 +307,9 @@ def _raw_column(name: str, cells: pd.Series) -> RawColumn:
     filled = cells.notna().to_numpy()
     numbers = pd.to_numeric(cells, errors="coerce").to_numpy(dtype=np.float64, na_value=np.nan)
     if np.array_equal(filled, ~np.isnan(numbers)):
+        exact = exact_integer_text(cells.to_numpy(dtype=object, na_value=""), numbers)
+        if exact is not None:  # identifiers beyond 2**53: text keeps each one distinct
+            return RawColumn(name=name, data=exact, numeric=False, exact_integers=True)
         return RawColumn(name=name, data=numbers, numeric=True)
     return RawColumn(name=name, data=cells.to_numpy(dtype=object, na_value=""), numeric=False)
 
