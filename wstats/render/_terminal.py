@@ -8,6 +8,7 @@ instead of squeezing numbers.
 
 from __future__ import annotations
 
+import dataclasses
 from collections.abc import Iterable, Sequence
 from typing import TYPE_CHECKING, Any
 
@@ -34,6 +35,10 @@ __all__ = [
 _SHORT = 16  # label columns up to this width are kept on one line
 _WRAP_AT = 14  # a wrappable text column is given at least this width
 _PAD = 3  # what rich adds per column: one space of padding each side and the rule space
+#: Longest cell text shown; longer labels (a CSV cell of a million characters) are cut here,
+#: so that drawing takes time in proportion to the table, not to the text (machine formats
+#: such as csv and json keep the whole text).
+MAX_CELL = 200
 
 
 def estimate_terminal(table: EstimateTable, provenance: Any = None) -> RenderableType:
@@ -55,7 +60,7 @@ class GridView:
     """Draw a Grid at whatever width the console offers."""
 
     def __init__(self, grid: Grid, per_section: bool) -> None:
-        self.grid = grid
+        self.grid = _shortened(grid)
         self.per_section = per_section
 
     def __rich_console__(self, console: Console, options: ConsoleOptions) -> RenderResult:
@@ -73,6 +78,21 @@ class GridView:
         if g.methods:
             yield Text("")
             yield Text("Methods. " + g.methods)
+
+
+def _shortened(g: Grid) -> Grid:
+    """Return *g* with cells and titles longer than MAX_CELL cut, and a note saying so."""
+    rows = tuple(tuple(_cut(c) for c in row) for row in g.rows)
+    if rows == g.rows and len(g.title) <= MAX_CELL:
+        return g
+    note = (f"Text longer than {MAX_CELL} characters is cut here (ending in '…'); the csv and "
+            "json formats keep it whole.")
+    return dataclasses.replace(g, title=_cut(g.title), rows=rows, notes=(*g.notes, note))
+
+
+def _cut(text: str) -> str:
+    """Return *text* cut to MAX_CELL characters."""
+    return text if len(text) <= MAX_CELL else text[: MAX_CELL - 1] + "…"
 
 
 def _blocks(
