@@ -16,12 +16,13 @@ from typing import TYPE_CHECKING, Any
 import numpy as np
 
 from wstats.decoding.reasons import VALID, Reasons
-from wstats.errors import ColumnError, did_you_mean
+from wstats.errors import ColumnError, EstimationError, did_you_mean
 
 if TYPE_CHECKING:
     import pandas as pd
 
-__all__ = ["KINDS", "ROW_TILE", "Dataset", "DecodedColumn", "code_type", "row_tiles"]
+__all__ = ["KINDS", "ROW_TILE", "Dataset", "DecodedColumn", "code_type", "require_dataset",
+           "row_tiles"]
 
 KINDS = ("continuous", "count", "categorical", "binary", "text")
 
@@ -313,3 +314,16 @@ class Dataset(Mapping[str, DecodedColumn]):
                 )
             n = len(a)
         return cls(cols, vocab, int(n or 0), source)
+
+
+def require_dataset(data: object, caller: str) -> None:
+    """Raise EstimationError, saying how to wrap it, unless *data* is a :class:`Dataset`."""
+    if isinstance(data, Dataset):
+        return
+    kind = type(data).__name__
+    if type(data).__module__.startswith("pandas"):
+        kind = f"pandas {kind}"
+    raise EstimationError(
+        f"{caller}() takes a wstats Dataset, not a {kind}; read a file with "
+        "wstats.read(path, codebook=...), or wrap columns in memory with "
+        "wstats.Dataset.from_arrays(frame) (NaN becomes the reason 'missing')")

@@ -16,6 +16,7 @@ import numpy as np
 
 from wstats.decoding.columns import code_type, row_tiles
 from wstats.decoding.reasons import VALID
+from wstats.decoding.text_numbers import why_text
 from wstats.design.bound import BoundDesign
 from wstats.design.replicates import (
     check_replicate_columns,
@@ -127,11 +128,12 @@ def _design_columns(design: Design, data: Dataset, src: str) -> dict[str, Decode
     w = out["weight"]
     if w.kind == "text" or w.values.dtype.kind not in "fiub":
         raise WeightError(
-            f"weight column '{design.weight}' in {src} holds text, not numbers; "
-            "name the numeric final-weight column"
+            f"weight column '{design.weight}' in {src} holds text, not numbers"
+            + (why_text(w) or "; name the numeric final-weight column")
         )
     if "fpc" in out and out["fpc"].values.dtype.kind not in "fiub":
-        raise DesignError(f"fpc column '{design.fpc}' in {src} holds text; it must be numeric")
+        raise DesignError(f"fpc column '{design.fpc}' in {src} holds text; it must be numeric"
+                          f"{why_text(out['fpc'])}")
     return out
 
 
@@ -163,8 +165,7 @@ def _complete_rows(design: Design, cols: dict[str, DecodedColumn], n: int
         if not count:
             continue
         bad = _missing(col, everything)
-        if role == "weight":
-            _weight_not_finite(col, bad)
+        _not_finite(col, bad, role)
         if not design.drop_incomplete:
             error = WeightError if role == "weight" else DesignError
             raise error(
@@ -178,17 +179,23 @@ def _complete_rows(design: Design, cols: dict[str, DecodedColumn], n: int
     return keep
 
 
-def _weight_not_finite(col: DecodedColumn, bad: npt.NDArray[np.bool_]) -> None:
-    """Raise WeightError naming infinite raw weights (decoding made them invalid)."""
+def _not_finite(col: DecodedColumn, bad: npt.NDArray[np.bool_], role: str) -> None:
+    """Raise naming infinite raw design values (decoding made them invalid, not missing)."""
     raw = col.raw
     if raw is None or raw.dtype.kind != "f":
         return
     inf = bad & np.isinf(raw)
-    if inf.any():
-        raise WeightError(
-            f"weight column '{col.name}' has {int(inf.sum())} infinite values (first: row "
-            f"{int(np.argmax(inf)) + 1}); weights must be finite and >= 0"
-        )
+    if not inf.any():
+        return
+    where = (f"{role} column '{col.name}' has {int(inf.sum())} infinite values (first: row "
+             f"{int(np.argmax(inf)) + 1})")
+    if role == "weight":
+        raise WeightError(f"{where}; weights must be finite and >= 0")
+    if role == "fpc":
+        raise DesignError(f"{where}; an FPC is a PSU population count (> 1) or a sampling "
+                          "fraction (<= 1): give that number, or leave the FPC out to treat "
+                          "the first stage as sampled with replacement")
+    raise DesignError(f"{where}; give every row a finite {role} code")
 
 
 def _check_weights(w: npt.NDArray[Any], name: str, rows: Index | None) -> Array:
@@ -362,7 +369,8 @@ def _replicates(design: Design, data: Dataset, rows: Index | None, w: Array, str
         raise DesignError(f"only {len(names)} replicate-weight column found; at least 2 needed")
     for name in names:
         if data.columns[name].values.dtype.kind not in "fiub":
-            raise WeightError(f"replicate-weight column '{name}' in {src} holds text")
+            raise WeightError(f"replicate-weight column '{name}' in {src} holds text"
+                              f"{why_text(data.columns[name])}")
     rep = np.column_stack([_take(data.columns[c].values, rows) for c in names]).astype(np.float64)
     bad = ~np.isfinite(rep) | (rep < 0)
     if bad.any():

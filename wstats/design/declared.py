@@ -24,6 +24,7 @@ from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
+from wstats.decoding.columns import require_dataset
 from wstats.design.binding import bind
 from wstats.design.bound import BoundDesign
 from wstats.design.replicates import resolve_replicate_columns
@@ -176,4 +177,5 @@ class Design:
         DesignError, WeightError, SingletonStratumError
             When a column is absent or unusable, weights are bad, or strata hold one PSU.
         """
+        require_dataset(data, "Design.bind")
         return bind(self, data)

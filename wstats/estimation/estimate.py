@@ -16,7 +16,9 @@ from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
+from wstats.decoding.columns import require_dataset
 from wstats.decoding.reasons import VALID
+from wstats.decoding.text_numbers import why_text
 from wstats.errors import EstimationError, WstatsWarning, did_you_mean
 from wstats.estimation.domains import Domains, empty_where_note, no_cell
 from wstats.estimation.levels import category_levels, distinct_values, level_index
@@ -101,6 +103,7 @@ def estimate(
     >>> round(float(t.frame["estimate"][0]), 4)
     2.8333
     """
+    require_dataset(data, "estimate")
     from wstats.estimation.reliability import DEFAULT_STANDARD, assess
     from wstats.estimation.results import EstimateTable, object_column
 
@@ -224,6 +227,9 @@ def _run(ctx: Context, variables: Sequence[str], stats: list[str] | None, forced
     for name in variables:
         col = ctx.columns[name]
         wanted = stats or (["proportion"] if _is_categorical(col, forced) else ["mean"])
+        if col.kind == "text" and "proportion" in wanted and (hint := why_text(col)):
+            warnings.warn(f"variable {name} is counted as text categories{hint}",
+                          WstatsWarning, stacklevel=4)
         for stat in wanted:
             if fast and stat in BATCHED:
                 slots.append((name, stat))

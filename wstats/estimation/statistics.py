@@ -29,6 +29,7 @@ from typing import TYPE_CHECKING, Any
 import numpy as np
 
 from wstats.decoding.reasons import VALID
+from wstats.decoding.text_numbers import why_text
 from wstats.errors import EstimationError, did_you_mean
 from wstats.estimation.intervals import PROPORTION_INTERVALS, effective_n, t_quantile, wald_t
 from wstats.estimation.levels import category_levels, level_index
@@ -79,7 +80,8 @@ class Context:
         col = self.columns[name]
         if col.values.dtype.kind != "f":
             raise EstimationError(
-                f"variable '{name}' holds text; a {statistic} needs numbers (use a proportion)"
+                f"variable '{name}' holds text; a {statistic} needs numbers"
+                + (why_text(col) or " (use a proportion)")
             )
         return col
 

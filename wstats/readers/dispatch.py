@@ -177,12 +177,42 @@ def check_file(path: Path) -> str:
     fmt = format_of(path)
     try:
         fd = os.open(path, os.O_RDONLY)
-        os.close(fd)
+        try:
+            head = os.read(fd, 64)
+        finally:
+            os.close(fd)
     except OSError as exc:
         raise ReadError(f"data file '{path}' cannot be opened: {exc.strerror}") from exc
     if path.stat().st_size == 0:
         raise ReadError(f"data file '{path}' is empty (0 bytes)")
+    _check_content(path, fmt, head)
     return fmt
+
+
+#: How files of each family begin, and the extension to give them.
+_MAGIC: list[tuple[bytes, str, str, str]] = [
+    (b"PAR1", "parquet", "a Parquet file", ".parquet"),
+    (b"$FL2", "sav", "an SPSS system file", ".sav"),
+    (b"$FL3", "sav", "a compressed SPSS system file", ".zsav"),
+    (b"HEADER RECORD*******LIB", "xpt", "a SAS transport file", ".xpt"),
+    (b"<stata_dta>", "dta", "a Stata file", ".dta"),
+    (b"\x1f\x8b", "gzip", "gzip-compressed", ".csv.gz"),
+]
+_FAMILY = {"zsav": "sav", "por": "sav", "tsv": "csv"}
+
+
+def _check_content(path: Path, fmt: str, head: bytes) -> None:
+    """Refuse a file whose first bytes show another format than its extension names."""
+    family = _FAMILY.get(fmt, fmt)
+    for magic, kind, words, suffix in _MAGIC:
+        if not head.startswith(magic) or kind == family:
+            continue
+        if kind == "gzip" and path.name.lower().endswith(".gz"):
+            return
+        shown = (f"'{magic.decode('ascii')}'" if magic.isascii() and magic.decode().isprintable()
+                 else f"the bytes {magic.hex(' ')}")
+        raise ReadError(f"'{path}' is named as {fmt} but looks like {words} (it starts with "
+                        f"{shown}); wstats goes by the extension: rename it to {suffix}")
 
 
 def _kind_of(mode: int) -> str:

@@ -51,10 +51,25 @@ def text_columns(path: Path, fmt: str, encoding: str = "utf-8") -> list[str]:
             raise ReadError(f"the header line of '{path}' cannot be parsed ({exc})") from exc
     if not header or header == [""]:
         raise ReadError(f"'{path}' has no header line; the first line must name the columns")
+    _check_separator(path, fmt, header)
     for position, name in enumerate(header, start=1):
         if not name.strip():
             raise ReadError(f"column {position} of '{path}' has an empty name; name it")
     return header
+
+
+def _check_separator(path: Path, fmt: str, header: list[str]) -> None:
+    """Refuse a header of one column that another separator would split into several."""
+    if len(header) != 1:
+        return
+    names = {";": "semicolon", "|": "bar", "\t": "tab", ",": "comma"}
+    for sep, word in names.items():
+        if sep != _SEPARATORS[fmt] and len(header[0].split(sep)) > 2:
+            shown = header[0] if len(header[0]) <= 40 else header[0][:37] + "..."
+            raise ReadError(
+                f"'{path}' looks {word}-separated: its header line is one column '{shown}'; "
+                f"wstats reads .csv files separated by commas and .tsv files by tabs: save it "
+                f"with commas{' (or rename it to .tsv)' if sep == chr(9) else ''}")
 
 
 def read_text(

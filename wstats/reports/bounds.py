@@ -11,7 +11,7 @@ from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
-from wstats.decoding.columns import Dataset, DecodedColumn
+from wstats.decoding.columns import Dataset, DecodedColumn, require_dataset
 from wstats.decoding.reasons import VALID
 from wstats.estimation.results import _plain
 from wstats.reports.nonresponse import _UNKNOWN, _augmented, _check_variables, _indicator, _rows
@@ -73,6 +73,7 @@ def bounds(
     >>> [round(x, 2) for x in b.loc[0, ["estimate", "lower", "upper"]]]
     [0.67, 0.5, 0.75]
     """
+    require_dataset(data, "bounds")
     from wstats.estimation.estimate import estimate
     from wstats.estimation.reliability import STANDARDS
 

@@ -36,7 +36,7 @@ from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
-from wstats.decoding.columns import Dataset, DecodedColumn
+from wstats.decoding.columns import Dataset, DecodedColumn, require_dataset
 from wstats.decoding.reasons import VALID
 from wstats.errors import EstimationError
 from wstats.estimation.reliability import NONRESPONSE_RULES
@@ -197,6 +197,7 @@ def nonresponse(
     >>> float(t.frame["nonresponse_rate"][0])
     0.25
     """
+    require_dataset(data, "nonresponse")
     from wstats.estimation.estimate import estimate
     from wstats.estimation.reliability import STANDARDS
 
