@@ -111,12 +111,13 @@ def estimate(
     _check_names(data, [*variables, *by, *categorical, *(v for r in ratios for v in r)])
     numbers = [v for v in [*variables, *(x for r in ratios for x in r)]
                if v not in categorical and v not in by]
-    data = as_numbers(data, numbers)
-    scales = _scales(data, design, variables, set(categorical), ratios)
-    scaled = scale_dataset(data, scales)
-    bound = design.bind(scaled)
+    analysed = as_numbers(data, numbers)  # design and domains keep exact identifiers
+    scales = _scales(analysed, design, variables, set(categorical), ratios)
+    bound = design.bind(scale_dataset(data, {k: v for k, v in scales.items()
+                                             if data.columns[k].values.dtype.kind == "f"}))
     domains, by_levels = _domains(data, bound, list(by), where)
-    columns = {name: bound.column(col) for name, col in scaled.columns.items()}
+    columns = {name: bound.column(col)
+               for name, col in scale_dataset(analysed, scales).columns.items()}
     ctx = Context(WeightedSums(bound, domains), columns, data.vocabulary, level,
                   per_domain_df=design.domain_df == "domain")
     pieces = _run(ctx, variables, stats, set(categorical), ratios, quantiles, proportion_ci)

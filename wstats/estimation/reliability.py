@@ -269,7 +269,9 @@ def evaluate(
         low, high = korn_graubard_ci(est[rows], se[rows], n[rows], df[rows], standard.kg_level)
         width[rows] = high - low
     with np.errstate(invalid="ignore"):
-        fired = _proportion_rules(est, width, effective_n(est, se, n), df, standard)
+        # n_eff only means something for proportions; a mean near 1e300 would overflow p(1-p)
+        n_eff = effective_n(np.where(is_prop, est, np.nan), np.where(is_prop, se, np.nan), n)
+        fired = _proportion_rules(est, width, n_eff, df, standard)
     out = {rule: fired[rule] & nchs & filled for rule in fired}
     out.update({r: b & rse & filled for r, b in _rse_rules(est, se, n, standard).items()})
     edge = is_prop & ((est == 0) | (est == 1))

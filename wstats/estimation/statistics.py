@@ -220,9 +220,11 @@ class Ratio:
         est, var, den = ratio_estimate(ctx.sums, y, x)
         m = _moments(ctx, both, cy.replace(values=np.where(both, 0.0, np.nan), reasons=reasons))
         # e = y - R_d x needs the domain's own R: population rows and cell rows separately
-        r_cell = est[ctx.sums.domains.cell + 1, 0]
+        # (an undefined R, denominator 0, is left out: that domain gets no estimate below)
+        finite_r = np.where(np.isfinite(est[:, 0]), est[:, 0], 0.0)
+        r_cell = finite_r[ctx.sums.domains.cell + 1]
         zero = np.zeros(len(est))
-        s2_pop = _weighted_s2(ctx, y - est[0, 0] * x, both, zero, m)
+        s2_pop = _weighted_s2(ctx, y - finite_r[0] * x, both, zero, m)
         s2_cell = _weighted_s2(ctx, y - r_cell * x, both, zero, m)
         s2 = np.concatenate([s2_pop[:1], s2_cell[1:]])
         with np.errstate(divide="ignore", invalid="ignore"):
