@@ -21,11 +21,10 @@ from typing import Any
 import numpy as np
 import pytest
 
+import wstats
 from conftest import CODEBOOK_TOML, survey_frame, write_survey
 from test_cli_errors import assert_error
 from test_data_safety import fingerprint
-
-import wstats
 from wstats.errors import (
     DesignError,
     EstimationError,
