@@ -413,3 +413,91 @@ def test_fuzzed_expressions(tokens: list[str], spaced: bool) -> None:
     finally:
         signal.alarm(0)
         signal.signal(signal.SIGALRM, old)
+
+
+# ---------------------------------------------------------------- deep and long expressions
+
+#: (prefix, suffix) pairs that nest an expression one level deeper.
+_WRAPS = [("(", ")"), ("-", ""), ("not ", ""), ("abs(", ")"), ("2 ^ ", ""), ("A ^ ", ""),
+          ("if(A > 0, ", ", B)"), ("min(A, ", ")"), ("oneof(", ", 1, 2)"), ("round(", ", 1)"),
+          ("between(", ", 0, 1)"), ("reason(", ', "missing")'), ("+", "")]
+_JOINS = [" + ", " - ", " * ", " / ", " or ", " and ", " ^ ", " == ", " < ", ", "]
+_LEAVES = ["A", "B", "1", "0", "2.5", "1e308", "`A`", '"a"', "A > 0", "(A)", "-B"]
+
+
+def _nest(core: str, wraps: list[tuple[str, str]]) -> str:
+    """Wrap *core* in the given prefix/suffix pairs, innermost first."""
+    for prefix, suffix in wraps:
+        core = f"{prefix}{core}{suffix}"
+    return core
+
+
+def _parse_and_run(text: str) -> None:
+    """Parse and evaluate *text* under an alarm; only an ExpressionError may come out."""
+    data = Dataset.from_arrays({"A": [1.0, 0.0, -2.0, float("nan")],
+                                "B": [0.0, 3.0, 1e308, 2.0]})
+    old = signal.signal(signal.SIGALRM, _alarm)
+    signal.alarm(READ_SECONDS)
+    try:
+        try:
+            expr = parse_expression(text, ["A", "B"], "fuzz")
+            values, reasons = expr.evaluate(data.columns, data.vocabulary)
+        except ExpressionError as exc:
+            assert str(exc).startswith("fuzz") and "\n" not in str(exc), str(exc)
+            return
+        assert values.shape == (4,) and reasons.shape == (4,)
+    finally:
+        signal.alarm(0)
+        signal.signal(signal.SIGALRM, old)
+
+
+@FUZZ
+@given(wraps=st.lists(st.sampled_from(_WRAPS), max_size=400),
+       joins=st.lists(st.tuples(st.sampled_from(_JOINS), st.sampled_from(_LEAVES)),
+                      max_size=3000),
+       first=st.sampled_from(_LEAVES))
+def test_deep_and_long_expressions(wraps: list[tuple[str, str]],
+                                   joins: list[tuple[str, str]], first: str) -> None:
+    # Nesting up to 400 levels (the cap is 100) around runs of up to 3000 operators: either
+    # a value for every row or a one-line ExpressionError, never RecursionError or a hang.
+    _parse_and_run(_nest(first + "".join(op + leaf for op, leaf in joins), wraps))
+
+
+_TREE = st.recursive(
+    st.sampled_from(_LEAVES),
+    lambda inner: st.one_of(
+        st.tuples(inner, st.sampled_from(_JOINS), inner).map("".join),
+        st.tuples(st.sampled_from(_WRAPS), inner).map(lambda p: p[0][0] + p[1] + p[0][1]),
+        st.lists(inner, min_size=2, max_size=40).map(" + ".join),
+    ),
+    max_leaves=300,
+)
+
+
+@FUZZ
+@given(text=_TREE)
+def test_random_expression_trees(text: str) -> None:
+    _parse_and_run(text)
+
+
+@pytest.mark.parametrize("depth", [99, 100, 101, 150, 1000, 20000])
+@pytest.mark.parametrize("wrap", _WRAPS, ids=[w[0].strip() or "sign" for w in _WRAPS])
+def test_nesting_at_and_past_the_cap(depth: int, wrap: tuple[str, str]) -> None:
+    _parse_and_run(_nest("A", [wrap] * depth))
+
+
+def test_the_cap_is_where_the_docs_say() -> None:
+    # docs/codebook.md: 100 levels, the whole expression counting as the first.
+    data = Dataset.from_arrays({"A": [1.0, 2.0]})
+    inside = parse_expression("(" * 99 + "A" + ")" * 99, ["A"], "t")
+    assert inside.evaluate(data.columns, data.vocabulary)[0].tolist() == [1.0, 2.0]
+    with pytest.raises(ExpressionError, match="more than 100 levels"):
+        parse_expression("(" * 100 + "A" + ")" * 100, ["A"], "t")
+
+
+def test_round_of_a_huge_value_found_by_the_fuzzer() -> None:
+    # round(1e308, 1) overflowed inside numpy (it multiplies by 10) and became 'invalid'.
+    data = Dataset.from_arrays({"B": [1e308, 2.25]})
+    values, reasons = parse_expression("round(B, 1)", ["B"], "t").evaluate(
+        data.columns, data.vocabulary)
+    assert values.tolist() == [1e308, 2.2] and reasons.tolist() == [0, 0]

@@ -116,7 +116,10 @@ class Evaluator:
             return self.reason(node)
         if node.func == "round" and len(node.args) == 2:
             v, r = self.node(node.args[0])
-            return self.settle(np.round(v, int(_constant(node.args[1]))), r)
+            with np.errstate(all="ignore"):  # numpy scales by 10^digits: 1e308 overflows
+                out = np.round(v, int(_constant(node.args[1])))
+            # a value that big is a whole number already: rounding leaves it as it is
+            return self.settle(np.where(np.isfinite(out) | ~np.isfinite(v), out, v), r)
         pairs = [self.node(a) for a in node.args]
         vals = [p[0] for p in pairs]
         if node.func == "if":
