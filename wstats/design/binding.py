@@ -9,13 +9,12 @@ only when rows are missing.
 
 from __future__ import annotations
 
-from collections.abc import Callable, Sequence
+from collections.abc import Sequence
 from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
 from wstats.decoding.columns import code_type, row_tiles
-from wstats.decoding.reasons import VALID
 from wstats.decoding.text_numbers import why_text
 from wstats.design.bound import BoundDesign
 from wstats.design.replicates import (
@@ -25,6 +24,7 @@ from wstats.design.replicates import (
     replicate_scale,
     resolve_replicate_columns,
 )
+from wstats.design.values import check_weights, complete_rows, count_where, row_no, take
 from wstats.errors import (
     DesignError,
     SingletonStratumError,
@@ -62,9 +62,9 @@ def bind(design: Design, data: Dataset) -> BoundDesign:
     """Validate *design* against *data* and build the BoundDesign (see ``Design.bind``)."""
     src = data.source or "the data"
     cols = _design_columns(design, data, src)
-    keep = _complete_rows(design, cols, data.n_rows)
+    keep = complete_rows(design, cols, data.n_rows)
     rows = None if keep is None else np.flatnonzero(keep)
-    w = _check_weights(_take(cols["weight"].values, rows), design.weight, rows)
+    w = check_weights(take(cols["weight"].values, rows), design.weight, rows)
     stratum, labels = _codes(cols.get("strata"), rows, len(w))
     psu_codes = _codes(cols["psu"], rows, len(w))[0] if design.psu else None
     psu, psu_stratum = _psu_index(stratum, psu_codes)
@@ -91,18 +91,8 @@ def bind(design: Design, data: Dataset) -> BoundDesign:
         replicate_columns=() if reps is None else reps[1],
         scale=1.0 if reps is None else reps[2], factors=None if reps is None else reps[3],
         df=df, dropped_rows=0 if rows is None else data.n_rows - len(rows),
-        zero_weights=_count(w, lambda part: part == 0),
+        zero_weights=count_where(w, lambda part: part == 0),
     )
-
-
-def _take(a: npt.NDArray[Any], rows: Index | None) -> npt.NDArray[Any]:
-    """Return *a* restricted to *rows* (all when None)."""
-    return a if rows is None else a[rows]
-
-
-def _row_no(rows: Index | None, i: int) -> int:
-    """Return the 1-based data row number of position *i* among the rows used."""
-    return int(i if rows is None else rows[i]) + 1
 
 
 def _design_columns(design: Design, data: Dataset, src: str) -> dict[str, DecodedColumn]:
@@ -137,84 +127,6 @@ def _design_columns(design: Design, data: Dataset, src: str) -> dict[str, Decode
     return out
 
 
-def _count(a: npt.NDArray[Any], test: Callable[[npt.NDArray[Any]], npt.NDArray[np.bool_]]
-           ) -> int:
-    """Return how many elements of *a* pass *test*, in row tiles (no mask the size of *a*)."""
-    return sum(int(np.count_nonzero(test(a[tile]))) for tile in row_tiles(len(a)))
-
-
-def _missing(col: DecodedColumn, rows: slice) -> npt.NDArray[np.bool_]:
-    """Return the mask of *rows* of *col* without a value (a reason, or NaN)."""
-    if col.numeric:  # NaN exactly where not valid
-        nan: npt.NDArray[np.bool_] = np.isnan(col.values[rows])
-        return nan
-    return np.asarray(col.reasons[rows] != VALID)
-
-
-def _complete_rows(design: Design, cols: dict[str, DecodedColumn], n: int
-                   ) -> npt.NDArray[np.bool_] | None:
-    """Return the mask of rows with every design value present (None: every row has them).
-
-    Raise unless dropping. Columns are checked in row tiles; a mask the size of the file is
-    built only when rows are missing.
-    """
-    keep: npt.NDArray[np.bool_] | None = None
-    everything = slice(None)
-    for role, col in cols.items():
-        count = sum(int(np.count_nonzero(_missing(col, tile))) for tile in row_tiles(n))
-        if not count:
-            continue
-        bad = _missing(col, everything)
-        _not_finite(col, bad, role)
-        if not design.drop_incomplete:
-            error = WeightError if role == "weight" else DesignError
-            raise error(
-                f"{role} column '{col.name}' is missing in {count} rows (first: row "
-                f"{int(np.argmax(bad)) + 1}); fix the data or drop such rows "
-                "(--drop-incomplete, drop_incomplete=True)"
-            )
-        keep = ~bad if keep is None else keep & ~bad
-    if keep is not None and not keep.any():
-        raise DesignError("no row has a complete weight/stratum/PSU; check the design columns")
-    return keep
-
-
-def _not_finite(col: DecodedColumn, bad: npt.NDArray[np.bool_], role: str) -> None:
-    """Raise naming infinite raw design values (decoding made them invalid, not missing)."""
-    raw = col.raw
-    if raw is None or raw.dtype.kind != "f":
-        return
-    inf = bad & np.isinf(raw)
-    if not inf.any():
-        return
-    where = (f"{role} column '{col.name}' has {int(inf.sum())} infinite values (first: row "
-             f"{int(np.argmax(inf)) + 1})")
-    if role == "weight":
-        raise WeightError(f"{where}; weights must be finite and >= 0")
-    if role == "fpc":
-        raise DesignError(f"{where}; an FPC is a PSU population count (> 1) or a sampling "
-                          "fraction (<= 1): give that number, or leave the FPC out to treat "
-                          "the first stage as sampled with replacement")
-    raise DesignError(f"{where}; give every row a finite {role} code")
-
-
-def _check_weights(w: npt.NDArray[Any], name: str, rows: Index | None) -> Array:
-    """Return weights as float64 after checking they are finite, >= 0 and not all zero."""
-    w = np.asarray(w, dtype=np.float64)
-    tests: list[tuple[Callable[[Array], npt.NDArray[np.bool_]], str]] = [
-        (lambda part: ~np.isfinite(part), "infinite"), (lambda part: part < 0, "negative")]
-    for test, what in tests:
-        count = _count(w, test)
-        if count:
-            raise WeightError(
-                f"weight column '{name}' has {count} {what} values (first: row "
-                f"{_row_no(rows, int(np.argmax(test(w))))}); weights must be finite and >= 0"
-            )
-    if not _count(w, lambda part: part > 0):
-        raise WeightError(f"weight column '{name}' is 0 in every row; name the analysis weight")
-    return w
-
-
 def _label(col: DecodedColumn, value: Any) -> str:
     """Return the label of a stratum/PSU value: its value label, else the value as text."""
     if isinstance(value, float | np.floating):
@@ -231,7 +143,7 @@ def _codes(col: DecodedColumn | None, rows: Index | None, n: int) -> tuple[Codes
     """
     if col is None:
         return np.broadcast_to(np.int32(0), (n,)), ["all"]
-    values = _take(col.values, rows)
+    values = take(col.values, rows)
     if values.dtype.kind not in "fiub":
         values = values.astype(str)
     uniq, inverse = _unique_inverse(values)
@@ -301,12 +213,12 @@ def _fpc(col: DecodedColumn | None, name: str | None, rows: Index | None, stratu
     """Return the first-stage sampling fraction per stratum from the FPC column."""
     if col is None:
         return np.zeros(len(n_h))
-    v = np.asarray(_take(col.values, rows), dtype=np.float64)
+    v = np.asarray(take(col.values, rows), dtype=np.float64)
     if not (np.isfinite(v) & (v > 0)).all():
         bad = ~(np.isfinite(v) & (v > 0))
         raise DesignError(
             f"fpc column '{name}' has {int(bad.sum())} values that are not positive (first: row "
-            f"{_row_no(rows, int(np.argmax(bad)))}); give PSU counts (> 1) or fractions in (0, 1]"
+            f"{row_no(rows, int(np.argmax(bad)))}); give PSU counts (> 1) or fractions in (0, 1]"
         )
     if (v < 1).any() and (v > 1).any():
         raise DesignError(
@@ -371,13 +283,13 @@ def _replicates(design: Design, data: Dataset, rows: Index | None, w: Array, str
         if data.columns[name].values.dtype.kind not in "fiub":
             raise WeightError(f"replicate-weight column '{name}' in {src} holds text"
                               f"{why_text(data.columns[name])}")
-    rep = np.column_stack([_take(data.columns[c].values, rows) for c in names]).astype(np.float64)
+    rep = np.column_stack([take(data.columns[c].values, rows) for c in names]).astype(np.float64)
     bad = ~np.isfinite(rep) | (rep < 0)
     if bad.any():
         r, c = np.unravel_index(int(np.argmax(bad)), bad.shape)
         raise WeightError(
             f"replicate-weight column '{names[c]}' has a missing, infinite or negative value "
-            f"(row {_row_no(rows, int(r))}); replicate weights must be finite and >= 0"
+            f"(row {row_no(rows, int(r))}); replicate weights must be finite and >= 0"
         )
     check_replicate_columns(rep, names, src)
     factors = _replicate_factors(design, rep, w, stratum, n_h)
