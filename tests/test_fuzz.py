@@ -16,6 +16,7 @@ import signal
 import subprocess
 import sys
 from collections.abc import Iterator
+from contextlib import contextmanager
 from datetime import timedelta
 from pathlib import Path
 from typing import Any
@@ -386,16 +387,31 @@ _TOKENS = ["A", "B", "REGION", "1", "0", "2.5", "1e308", "-", "+", "*", "/", "^"
            ".", "[", "]", "__x", "'", "lambda", ":", "**", "=", "%", "@", "import", "é"]
 
 
+def _fuzz_data() -> Dataset:
+    """Return the four rows fuzzed expressions are evaluated on (a NaN, a 1e308, a zero)."""
+    return Dataset.from_arrays({"A": [1.0, 0.0, -2.0, float("nan")],
+                                "B": [0.0, 3.0, 1e308, 2.0]})
+
+
+@contextmanager
+def _under_alarm() -> Iterator[None]:
+    """Raise _Slow in the block when it takes longer than READ_SECONDS."""
+    old = signal.signal(signal.SIGALRM, _alarm)
+    signal.alarm(READ_SECONDS)
+    try:
+        yield
+    finally:
+        signal.alarm(0)
+        signal.signal(signal.SIGALRM, old)
+
+
 @FUZZ
 @given(tokens=st.lists(st.sampled_from(_TOKENS), min_size=1, max_size=14),
        spaced=st.booleans())
 def test_fuzzed_expressions(tokens: list[str], spaced: bool) -> None:
     text = (" " if spaced else "").join(tokens)
-    data = Dataset.from_arrays({"A": [1.0, 0.0, -2.0, float("nan")],
-                                "B": [0.0, 3.0, 1e308, 2.0]})
-    old = signal.signal(signal.SIGALRM, _alarm)
-    signal.alarm(READ_SECONDS)
-    try:
+    data = _fuzz_data()
+    with _under_alarm():
         try:
             expr = parse_expression(text, ["A", "B", "REGION"], "fuzz")
         except ExpressionError as exc:
@@ -410,9 +426,6 @@ def test_fuzzed_expressions(tokens: list[str], spaced: bool) -> None:
         assert values.shape == (4,) and reasons.shape == (4,)
         if expr.boolean:  # truth values are 1.0 / 0.0, NaN where an input is not valid
             assert set(np.unique(values[~np.isnan(values)])) <= {0.0, 1.0}, (text, values)
-    finally:
-        signal.alarm(0)
-        signal.signal(signal.SIGALRM, old)
 
 
 # ---------------------------------------------------------------- deep and long expressions
@@ -434,11 +447,8 @@ def _nest(core: str, wraps: list[tuple[str, str]]) -> str:
 
 def _parse_and_run(text: str) -> None:
     """Parse and evaluate *text* under an alarm; only an ExpressionError may come out."""
-    data = Dataset.from_arrays({"A": [1.0, 0.0, -2.0, float("nan")],
-                                "B": [0.0, 3.0, 1e308, 2.0]})
-    old = signal.signal(signal.SIGALRM, _alarm)
-    signal.alarm(READ_SECONDS)
-    try:
+    data = _fuzz_data()
+    with _under_alarm():
         try:
             expr = parse_expression(text, ["A", "B"], "fuzz")
             values, reasons = expr.evaluate(data.columns, data.vocabulary)
@@ -446,9 +456,6 @@ def _parse_and_run(text: str) -> None:
             assert str(exc).startswith("fuzz") and "\n" not in str(exc), str(exc)
             return
         assert values.shape == (4,) and reasons.shape == (4,)
-    finally:
-        signal.alarm(0)
-        signal.signal(signal.SIGALRM, old)
 
 
 @FUZZ
