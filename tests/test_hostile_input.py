@@ -717,3 +717,15 @@ def test_expression_errors_stay_one_line() -> None:
         with pytest.raises(ExpressionError) as info:
             parse_expression(text, ["A"], "test")
         assert "\n" not in str(info.value) and len(str(info.value)) < 500
+
+
+def test_encoding_and_rows_through_the_api(folder: Path) -> None:
+    for encoding, words in (("rot13", "not a text encoding"), ("utf-16", "ASCII"),
+                            ("no-such", "unknown encoding")):
+        with pytest.raises(ReadError, match=words):
+            wstats.read(folder / "survey.sav", encoding=encoding)
+    whole = wstats.read(folder / "survey.parquet")
+    for stop in (2**31 + 1, 2**63 + 1, 10**40):
+        part = wstats.read(folder / "survey.parquet", rows=(3, stop))
+        assert part.n_rows == whole.n_rows - 3
+        np.testing.assert_array_equal(part["AGE"].values, whole["AGE"].values[3:])
