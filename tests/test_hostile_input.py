@@ -148,6 +148,9 @@ def test_empty_domain_other_commands(run_cli: Run, folder: Path, command: str) -
     counts = [int(r["n_rows"]) for r in rows] if command == "nonresponse" else \
         [int(r["n_valid"]) for r in rows]
     assert counts and all(c == 0 for c in counts)
+    screen = run_cli(command, "survey.sav", var, "--codebook", "codebook.toml", "--where",
+                     "SLEEP > 1000", cwd=folder)
+    assert screen.returncode == 0 and "nan" not in screen.stdout.lower(), screen.stdout
 
 
 def test_empty_domain_table_and_run(run_cli: Run, folder: Path) -> None:

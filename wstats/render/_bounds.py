@@ -23,6 +23,13 @@ def _pct(x: float) -> str:
     return f"{100 * x:.1f}%" if x == x else "–"
 
 
+def _interval(low: float, high: float) -> str:
+    """Format an interval in percent, or a dash when there is none (an empty domain)."""
+    if low != low or high != high:
+        return "–"
+    return f"{100 * low:.1f}–{100 * high:.1f}"
+
+
 def _headings(frame: pd.DataFrame) -> list[str]:
     """Return the column headings, one per by-variable after the level."""
     return [*_HEADINGS[:2], *frame.attrs.get("by", ()), *_HEADINGS[2:]]
@@ -35,7 +42,7 @@ def _rows(frame: pd.DataFrame) -> list[list[str]]:
     for r in frame.to_dict(orient="records"):
         groups = ["All" if r.get(b) is None else str(r[b]) for b in by]
         out.append([str(r["variable"]), str(r["level"]), *groups, _pct(r["estimate"]),
-                    f"{100 * r['ci_low']:.1f}–{100 * r['ci_high']:.1f}", _pct(r["lower"]),
+                    _interval(r["ci_low"], r["ci_high"]), _pct(r["lower"]),
                     _pct(r["upper"]), _pct(r["unknown_share"])])
     return out
 
