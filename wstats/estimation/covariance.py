@@ -126,6 +126,11 @@ class Covariance:
         cm = np.asarray(c, dtype=np.float64)
         return np.asarray(cm @ self.estimate), np.sqrt(np.maximum(self.variance(cm), 0.0))
 
+    def subset(self, index: npt.ArrayLike) -> Covariance:
+        """Return the estimates *index* with their block of the covariance."""
+        i = np.asarray(index, dtype=np.int64)
+        return Covariance(self.estimate[i], self.matrix[np.ix_(i, i)], self.df)
+
     def transform(self, a: npt.ArrayLike) -> Covariance:
         """Return the estimates A theta with covariance A V A' (A: (M, K))."""
         am = np.asarray(a, dtype=np.float64)
