@@ -16,8 +16,9 @@ their full design covariance V), so no contrast assumes independent groups (REFE
 - Multiplicity: Holm (1979, Scand J Stat 6:65-70) step-down and Benjamini & Hochberg (1995,
   JRSS B 57:289-300) step-up adjusted p-values.
 
-Distribution functions come from the regularized incomplete beta of :mod:`wstats._special`
-(numpy only): P(|T| > t) = I_{d/(d+t^2)}(d/2, 1/2); P(F > f) = I_{d2/(d2+d1 f)}(d2/2, d1/2).
+Distribution functions come from the regularized incomplete beta of
+:mod:`wstats.estimation.distributions` (numpy only): P(|T| > t) = I_{d/(d+t^2)}(d/2, 1/2);
+P(F > f) = I_{d2/(d2+d1 f)}(d2/2, d1/2).
 """
 
 from __future__ import annotations
@@ -27,8 +28,8 @@ from typing import TYPE_CHECKING
 
 import numpy as np
 
-from wstats._special import betainc
 from wstats.errors import EstimationError, did_you_mean
+from wstats.estimation.distributions import betainc
 
 if TYPE_CHECKING:
     import numpy.typing as npt

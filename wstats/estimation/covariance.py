@@ -7,10 +7,10 @@ outside its domain, and its PSU totals z_hi; two estimates' covariance is
 
     c(a, b) = sum_h (1 - f_h) n_h/(n_h - 1) sum_i (z^a_hi - zbar^a_h)(z^b_hi - zbar^b_h),
 
-the same centring, factor, FPC and singleton treatment as :mod:`wstats._variance`, so the
+the same centring, factor, FPC and singleton treatment as :mod:`wstats.estimation.variance`, so the
 diagonal is the variance the estimate table reports. Replicate designs take
 scale * sum_r factor_r (theta^a_r - centre^a)(theta^b_r - centre^b) with the design's
-coefficient and centring (:mod:`wstats._replicates`). Any linear combination c'theta then has
+coefficient and centring (:mod:`wstats.design.replicates`). Any linear combination c'theta then has
 variance c'Vc (Wolter 2007, *Introduction to Variance Estimation*, 2nd ed., ch. 6).
 
 Work: one weighted pass per value column into (PSU, domain) sums (:class:`WeightedSums`),
@@ -28,7 +28,7 @@ import numpy as np
 if TYPE_CHECKING:
     import numpy.typing as npt
 
-    from wstats._sums import WeightedSums
+    from wstats.estimation.sums import WeightedSums
 
     Array = npt.NDArray[np.float64]
     Index = npt.NDArray[np.int64]
@@ -212,7 +212,7 @@ def _linearized_matrix(sums: WeightedSums, picks: Sequence[Pick]) -> Array:
     m_h is the stratum mean of the PSU totals (a PSU without members adds z = 0), or for a
     one-PSU stratum under ``center`` the mean of all PSU totals, as in the variance code.
     """
-    from wstats._variance import _stratum_coefficients
+    from wstats.estimation.variance import _stratum_coefficients
 
     d = sums.design
     k = sum(len(dom) for _, dom, _ in picks)

@@ -1,10 +1,10 @@
 """Influences of the usual statistics of one variable, for :mod:`.covariance`.
 
-Means, proportions of every level, totals and ratios per domain, with the conventions of
-:mod:`wstats._stats` (a row counts when its value is valid; rows outside a domain or not
-valid add zero; the full design is kept), so the covariance's diagonal is the variance the
-estimate table reports. Value columns are made tile by tile (no array per level per row)
-under linearization.
+Means, proportions of every level, totals and ratios per domain, with the conventions
+of :mod:`wstats.estimation.statistics` (a row counts when its value is valid; rows outside a
+domain or not valid add zero; the full design is kept), so the covariance's diagonal is the
+variance the estimate table reports. Value columns are made tile by tile (no array per level
+per row) under linearization.
 """
 
 from __future__ import annotations
@@ -15,16 +15,17 @@ from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
-from wstats._stats import category_levels, level_index
-from wstats._sums import WeightedSums
 from wstats.errors import EstimationError
 from wstats.estimation.covariance import Influence, ratio_influence, total_influence
+from wstats.estimation.levels import category_levels, level_index
+from wstats.estimation.sums import WeightedSums
 
 if TYPE_CHECKING:
     import numpy.typing as npt
 
-    from wstats._column import Dataset, DecodedColumn
-    from wstats._design import BoundDesign, Design
+    from wstats.decoding.columns import Dataset, DecodedColumn
+    from wstats.design.bound import BoundDesign
+    from wstats.design.declared import Design
 
     Index = npt.NDArray[np.int64]
 
@@ -59,7 +60,7 @@ def domain_sums(data: Dataset, design: Design, by: Sequence[str], where: str | N
     Domains as :func:`wstats.estimate` makes them (population first, then the by-cells in
     row-major order of the levels), so a cell's domain number is its cell number + 1.
     """
-    from wstats._estimate import _check_names, _domains
+    from wstats.estimation.estimate import _check_names, _domains
 
     _check_names(data, list(by))
     bound = design.bind(data)

@@ -22,7 +22,6 @@ from wstats.estimation.covariance import Covariance, joint_covariance
 from wstats.estimation.influence import (
     DomainSums,
     domain_sums,
-    indicator_influence,
     level_codes,
     mean_influence,
     proportion_influence,
@@ -31,7 +30,7 @@ from wstats.reports.compare_rows import (
     DIFFERENCE_COLUMNS,
     TEST_COLUMNS,
     difference_rows,
-    rao_scott_row,
+    rao_scott_table,
     trend_rows,
     wald_row,
 )
@@ -39,8 +38,8 @@ from wstats.reports.compare_rows import (
 if TYPE_CHECKING:
     import pandas as pd
 
-    from wstats._column import Dataset, DecodedColumn
-    from wstats._design import Design
+    from wstats.decoding.columns import Dataset, DecodedColumn
+    from wstats.design.declared import Design
     from wstats.estimation.standards import Standard
 
 __all__ = ["Comparison", "RowTable", "compare"]
@@ -212,7 +211,7 @@ def _plan(data: Dataset, design: Design, variables: Sequence[str], by: str,
           categorical: Sequence[str], where: str | None, reasons: bool) -> _Plan:
     """Check the options and build what every variable shares."""
     _check_options(pairs, adjust, level, age_adjust, standard)
-    from wstats._estimate import _check_names
+    from wstats.estimation.estimate import _check_names
 
     _check_names(data, [*variables, by, *categorical, *([age_adjust] if age_adjust else [])])
     if by in variables or (age_adjust is not None and age_adjust in (by, *variables)):
@@ -286,7 +285,7 @@ def _code(v: Any) -> str:
 
 def _is_categorical(col: DecodedColumn, forced: bool) -> bool:
     """Return whether *col* is compared by its levels' proportions."""
-    from wstats._estimate import _is_categorical as decide
+    from wstats.estimation.estimate import _is_categorical as decide
 
     return decide(col, {col.name} if forced else set())
 
@@ -365,7 +364,7 @@ def _independence(data: Dataset, plan: _Plan, col: DecodedColumn, name: str
     group = group_codes(plan)
     both = (code >= 0) & (group >= 0)
     cell = np.where(both, code * plan.n_groups + group, -1)
-    return rao_scott_table(plan, cell, len(labels), int(both.sum()),
+    return rao_scott_table(plan.eng.sums, cell, (len(labels), plan.n_groups), int(both.sum()),
                            {"variable": name, "by": plan.by, "quantity": "proportion",
                             "level": None, "standard": None})
 
@@ -374,17 +373,6 @@ def group_codes(plan: _Plan) -> Any:
     """Return each row's group number (-1 outside every group or the population domain)."""
     cell = plan.eng.sums.domains.cell
     return np.where(cell >= 0, cell // plan.n_ages, -1)
-
-
-def rao_scott_table(plan: _Plan, cell: Any, n_rows: int, n: int, head: dict[str, Any],
-                    eng: DomainSums | None = None) -> dict[str, Any]:
-    """Return the Rao-Scott row of a table whose cells (row-major rows x groups) are coded."""
-    k = n_rows * plan.n_groups
-    sums = (eng or plan.eng).sums
-    inf = indicator_influence(sums, cell, k)
-    cov = joint_covariance(sums, [(inf, np.zeros(k, np.int64), np.arange(k))])
-    shares = np.nan_to_num(cov.estimate).reshape(n_rows, plan.n_groups)
-    return rao_scott_row(shares, cov, n, head)
 
 
 def _adjust(rows: list[dict[str, Any]], method: str) -> None:

@@ -2,7 +2,7 @@
 
 Among the rows asked the item (reason not ``skipped`` nor another not-asked reason), the
 item nonresponse rate is the weighted share whose value is not valid (the rate of
-:mod:`wstats._nonresponse`). Its differences between groups get design-based SEs from the
+:mod:`wstats.reports.nonresponse`). Its differences between groups get design-based SEs from the
 covariance engine, and a Rao-Scott test of reason (valid / don't know / refused / other
 non-valid reasons that occur) x group among those asked says whether the mix of reasons
 differs. Crude (not age-adjusted) rates.
@@ -15,13 +15,13 @@ from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
-from wstats._reasons import DONT_KNOW, REFUSED, VALID
+from wstats.decoding.reasons import DONT_KNOW, REFUSED, VALID
 from wstats.estimation.covariance import joint_covariance
 from wstats.estimation.influence import indicator_influence
-from wstats.reports.compare_rows import difference_rows
+from wstats.reports.compare_rows import difference_rows, rao_scott_table
 
 if TYPE_CHECKING:
-    from wstats._column import Dataset
+    from wstats.decoding.columns import Dataset
 
 __all__ = ["REASON_GROUPS", "reason_rows"]
 
@@ -32,8 +32,6 @@ REASON_GROUPS = ("valid", "dont_know", "refused", "other")
 def reason_rows(data: Dataset, plan: Any, name: str, not_asked: Sequence[str]
                 ) -> tuple[list[dict[str, Any]], list[dict[str, Any]]]:
     """Return the nonresponse-rate difference rows and the reason x group test of *name*."""
-    from wstats.reports.compare import rao_scott_table
-
     eng = plan.groups
     reasons = eng.column(data, name).reasons
     skip = [data.vocabulary.code(r) for r in dict.fromkeys(("skipped", *not_asked))]
@@ -54,8 +52,8 @@ def reason_rows(data: Dataset, plan: Any, name: str, not_asked: Sequence[str]
     rank = np.full(4, -1)
     rank[present] = np.arange(len(present))
     code = np.where(inside, rank[kind] * g + group, -1)
-    test = rao_scott_table(plan, code, len(present), int(inside.sum()),
+    test = rao_scott_table(eng.sums, code, (len(present), g), int(inside.sum()),
                            {"variable": name, "by": plan.by, "quantity": "reasons",
                             "level": "+".join(REASON_GROUPS[i] for i in present),
-                            "standard": None}, eng)
+                            "standard": None})
     return diffs, [test]

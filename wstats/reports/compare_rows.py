@@ -11,14 +11,17 @@ from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
-from wstats._intervals import wald_t
 from wstats.estimation.contrasts import contrast, differences, trend_coefficients, wald_equal
+from wstats.estimation.covariance import joint_covariance
+from wstats.estimation.influence import indicator_influence
+from wstats.estimation.intervals import wald_t
 from wstats.estimation.rao_scott import rao_scott
 
 if TYPE_CHECKING:
     from wstats.estimation.covariance import Covariance
+    from wstats.estimation.sums import WeightedSums
 
-__all__ = ["DIFFERENCE_COLUMNS", "FLAGS", "TEST_COLUMNS", "difference_rows", "rao_scott_row",
+__all__ = ["DIFFERENCE_COLUMNS", "FLAGS", "TEST_COLUMNS", "difference_rows", "rao_scott_table",
            "trend_rows", "wald_row"]
 
 #: variable, statistic (mean / proportion / nonresponse-rate), level (None for a mean), by,
@@ -101,9 +104,17 @@ def wald_row(cov: Covariance, head: dict[str, Any], flags: Sequence[str] = ()) -
                      flags=_flags(1.0 if np.isfinite(w.f) else np.nan, cov.df, extra))
 
 
-def rao_scott_row(shares: Any, cov: Covariance, n: float, head: dict[str, Any]
-                  ) -> dict[str, Any]:
-    """Return the Rao-Scott row of an r x c table of cell shares (covariance *cov*)."""
+def rao_scott_table(sums: WeightedSums, cell: Any, shape: tuple[int, int], n: int,
+                    head: dict[str, Any]) -> dict[str, Any]:
+    """Return the Rao-Scott row of an r x c table whose cells (row-major) each row codes.
+
+    *cell*: per row its cell number, -1 outside the table; the shares and their covariance
+    are taken over the population domain.
+    """
+    k = shape[0] * shape[1]
+    inf = indicator_influence(sums, cell, k)
+    cov = joint_covariance(sums, [(inf, np.zeros(k, np.int64), np.arange(k))])
+    shares = np.nan_to_num(cov.estimate).reshape(shape)
     rs = rao_scott(shares, cov.matrix, n, cov.df)
     return _test_row(head, test="rao-scott", statistic=rs.f, df1=rs.df1, df2=rs.df2, p=rs.p,
                      pearson_chisq=rs.pearson, first_order_f=rs.first_f,
