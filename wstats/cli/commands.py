@@ -15,6 +15,7 @@ from wstats.cli.args import (
     add_bounds_args,
     add_codebook_args,
     add_columns_args,
+    add_compare_args,
     add_convert_args,
     add_demo_args,
     add_estimate_args,
@@ -49,20 +50,49 @@ def _run_estimate(args: argparse.Namespace) -> int:
     design = design_from(args, codebook)
     ratios = [ratio_pair(r) for r in args.ratio]
     variables = list(args.variables)
-    needed = needed_columns([*variables, *[x for r in ratios for x in r], *args.by],
+    age = [args.age_adjust] if args.age_adjust else []
+    needed = needed_columns([*variables, *[x for r in ratios for x in r], *args.by, *age],
                             design, args.where, args.data)
     data = _read(args, codebook, needed)
     table = estimate(
         data, design, variables, statistics=split_list([args.stats]) or None, by=args.by,
         where=args.where, categorical=args.categorical, ratios=ratios,
         quantiles=[float(q) for q in split_list([args.quantiles])], level=args.level,
-        proportion_ci=args.proportion_ci, reliability=_standard(args.standard),
+        proportion_ci=args.proportion_ci, reliability=_standard(_reliability_name(args)),
+        age_adjust=args.age_adjust, standard=args.standard if args.age_adjust else None,
     )
     _emit(table, "estimate", args, [args.data], args.codebook)
     if args.plot:
         from wstats.reports.plots import plot_domains
 
         plot_domains(table, Path(args.plot), overwrite=args.overwrite)
+    return 0
+
+
+def _reliability_name(args: argparse.Namespace) -> str:
+    """Return the reliability standard: --reliability, else --standard without --age-adjust."""
+    if args.reliability:
+        return str(args.reliability)
+    if args.standard and not args.age_adjust:
+        return str(args.standard)
+    return "nchs-2017"
+
+
+def _run_compare(args: argparse.Namespace) -> int:
+    parse_rows(args.rows)
+    _check_outputs(args, [args.data, args.codebook, args.standard])
+    from wstats.reports.compare import compare
+
+    codebook = _load_codebook(args.codebook)
+    design = design_from(args, codebook)
+    age = [args.age_adjust] if args.age_adjust else []
+    needed = needed_columns([*args.variables, args.by, *age], design, args.where, args.data)
+    data = _read(args, codebook, needed)
+    result = compare(data, design, args.variables, by=args.by, reference=args.reference,
+                     pairs=args.pairs, adjust=args.adjust_p, trend=args.trend,
+                     reasons=args.reasons, where=args.where, categorical=args.categorical,
+                     level=args.level, age_adjust=args.age_adjust, standard=args.standard)
+    _emit(result, "compare", args, [args.data], args.codebook)
     return 0
 
 
@@ -204,6 +234,10 @@ COMMANDS: dict[str, Command] = {
         "wstats estimate survey.xpt SLEEPHRS GENHLTH --weight FINALWT --strata STRAT_ID "
         "--psu CLUSTRID --by AGE_GRP --codebook codebook.toml",
         add_estimate_args, _run_estimate),
+    "compare": Command(
+        "differences between groups with design-based SEs, Rao-Scott and Wald tests, trends",
+        "wstats compare survey.xpt BMI GENHLTH --by AGE_GRP --codebook codebook.toml",
+        add_compare_args, _run_compare),
     "nonresponse": Command(
         "counts and weighted shares of every missing reason; item nonresponse rates",
         "wstats nonresponse survey.xpt SLEEPHRS FRUITFRQ --codebook codebook.toml --worst-first",

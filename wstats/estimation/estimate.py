@@ -39,6 +39,7 @@ if TYPE_CHECKING:
     from wstats.design.declared import Design
     from wstats.estimation.reliability import ReliabilityStandard
     from wstats.estimation.results import EstimateTable
+    from wstats.estimation.standards import Standard
 
     Index = npt.NDArray[np.int64]
     Bool = npt.NDArray[np.bool_]
@@ -63,6 +64,8 @@ def estimate(
     level: float = 0.95,
     proportion_ci: str = "korn-graubard",
     reliability: ReliabilityStandard | None = None,
+    age_adjust: str | None = None,
+    standard: str | Standard | None = None,
 ) -> EstimateTable:
     """Estimate design-based statistics of survey variables, overall and by domain.
 
@@ -83,6 +86,10 @@ def estimate(
     proportion_ci : interval for proportions, a key of ``PROPORTION_INTERVALS``.
     reliability : reliability standard for flags and suppression (None: the default,
         ``nchs-2017``; pass ``STANDARDS["none"]`` to switch the rules off).
+    age_adjust : an age variable: add directly age-adjusted rows of every mean and
+        proportion (column ``standard`` names the standard population; None on crude rows).
+    standard : the standard population for *age_adjust*: a built-in name (``us2000-11``,
+        ``us2000-adults18``, ``us2000-adults20``), a TOML standard file, or a ``Standard``.
 
     Returns
     -------
@@ -103,7 +110,8 @@ def estimate(
     from wstats.estimation.results import EstimateTable, object_column
 
     stats = _check_options(statistics, level, proportion_ci, quantiles)
-    _check_names(data, [*variables, *by, *categorical, *(v for r in ratios for v in r)])
+    _check_names(data, [*variables, *by, *categorical, *(v for r in ratios for v in r),
+                        *([age_adjust] if age_adjust else [])])
     bound = design.bind(data)
     domains, by_levels = _domains(data, bound, list(by), where)
     columns = {name: bound.column(col) for name, col in data.columns.items()}
@@ -112,17 +120,43 @@ def estimate(
     pieces = _run(ctx, variables, stats, set(categorical), ratios, quantiles, proportion_ci)
     rows = _columns(pieces, list(by), by_levels, data.vocabulary.names, level)
     _warn(data, bound, variables, domains, by_levels)
-    standard = reliability or DEFAULT_STANDARD
-    same_kg = proportion_ci == "korn-graubard" and level == standard.kg_level
-    flags, suppress = assess(rows, standard, level,
+    std = _age_standard(age_adjust, standard)
+    if std is not None and age_adjust is not None:
+        from wstats.estimation.age_rows import age_adjusted_rows, with_rows
+
+        jobs = [(p.variable, p.statistic) for p in pieces if p.statistic in BY_AGE]
+        rows = with_rows(rows, age_adjusted_rows(data, design, list(dict.fromkeys(jobs)), by,
+                                                 where, age_adjust, std, level))
+    rules = reliability or DEFAULT_STANDARD
+    same_kg = (proportion_ci == "korn-graubard" and level == rules.kg_level and std is None)
+    old_flags = rows["flags"]
+    flags, suppress = assess(rows, rules, level,
                              (rows["ci_low"], rows["ci_high"]) if same_kg else None)
-    rows["flags"] = object_column(flags)
+    rows["flags"] = object_column([(*a, *f) for a, f in zip(old_flags, flags, strict=True)])
     rows["suppress"] = suppress
     settings = {"proportion_ci": proportion_ci, "mean_ci": "wald-t", "quantile_ci": "woodruff",
                 "df_rule": "replicates" if bound.uses_replicates else design.domain_df,
-                "level": level, "reliability": standard.name,
+                "level": level, "reliability": rules.name,
                 "deff_srs": "with-replacement"}
+    if std is not None:
+        settings.update(age_adjust=age_adjust, standard=std.name, standard_source=std.source)
     return EstimateTable(rows, tuple(by), level, bound.summary(), settings)
+
+
+#: statistics that can be age-adjusted
+BY_AGE = ("mean", "proportion")
+
+
+def _age_standard(age_adjust: str | None, standard: str | Standard | None) -> Standard | None:
+    """Return the standard population of an age-adjusted call (None without one)."""
+    if (age_adjust is None) != (standard is None):
+        raise EstimationError("age adjustment needs both the age variable and a standard "
+                              "population (age_adjust=AGEVAR, standard=NAME|FILE.toml)")
+    if standard is None:
+        return None
+    from wstats.estimation.standards import load_standard
+
+    return load_standard(standard) if isinstance(standard, str) else standard
 
 
 def _warn(data: Dataset, bound: BoundDesign, variables: Sequence[str], domains: Domains,

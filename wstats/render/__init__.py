@@ -4,7 +4,8 @@ One registry per result type maps a format name to ``f(table, provenance=None)``
 
 - :data:`ESTIMATE_RENDERERS` for :class:`~wstats.estimation.results.EstimateTable`,
 - :data:`NONRESPONSE_RENDERERS` for ``NonresponseTable``,
-- :data:`TABLE_RENDERERS` for ``PublicationTable``.
+- :data:`TABLE_RENDERERS` for ``PublicationTable``,
+- :data:`COMPARE_RENDERERS` for a ``Comparison``.
 
 Text formats return ``str``, ``xlsx`` returns ``bytes`` and ``terminal`` a rich renderable.
 Every written format carries the provenance record (``provenance=None`` falls back to the
@@ -27,6 +28,7 @@ if TYPE_CHECKING:
 
 __all__ = [
     "BOUNDS_RENDERERS",
+    "COMPARE_RENDERERS",
     "ESTIMATE_RENDERERS",
     "FORMATS",
     "NONRESPONSE_RENDERERS",
@@ -83,6 +85,9 @@ def _each_module(kind: str) -> _Registry:
 ESTIMATE_RENDERERS: MutableMapping[str, Renderer] = _each_module("estimate")
 NONRESPONSE_RENDERERS: MutableMapping[str, Renderer] = _each_module("nonresponse")
 TABLE_RENDERERS: MutableMapping[str, Renderer] = _each_module("table")
+#: renderers of a comparison (``wstats.compare``)
+COMPARE_RENDERERS: MutableMapping[str, Renderer] = _Registry(
+    {fmt: ("_compare", f"compare_{fmt}") for fmt in ("terminal", "markdown", "csv", "json")})
 BOUNDS_RENDERERS: MutableMapping[str, Renderer] = _Registry(
     {fmt: ("_bounds", f"bounds_{fmt}") for fmt in ("terminal", "markdown", "csv", "json")})
 
