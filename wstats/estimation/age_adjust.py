@@ -25,10 +25,15 @@ if TYPE_CHECKING:
 
     Array = npt.NDArray[np.float64]
 
-__all__ = ["AGE_FLAG", "Adjusted", "adjust_cells", "unit_label"]
+__all__ = ["AGE_FLAG", "AGE_FLAGS", "Adjusted", "adjust_cells", "unit_label"]
 
 #: flag of an adjusted value with a 0 % / 100 % (SE 0) age cell
 AGE_FLAG = "age-cell-0-or-100"
+#: flag id -> (description, source), as the reliability rules
+AGE_FLAGS: dict[str, tuple[str, str]] = {
+    AGE_FLAG: ("an age group's estimate is 0% or 100% (SE 0): the variance of the "
+               "age-adjusted value is understated", "REFERENCES §15; Klein & Schoenborn 2001"),
+}
 
 
 @dataclass(frozen=True)

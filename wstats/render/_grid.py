@@ -153,9 +153,14 @@ def estimate_grid(table: EstimateTable) -> Grid:
     cols += [Column("estimate", "Estimate"), Column("se", "SE"), Column("ci", ci),
              Column("n", "n"), Column("not_valid", "Not valid", "l")]
     notes, acc, order = FlagNotes(), _Rows(), _reason_order(table)
-    for (var, stat), sub in _sections(frame, ["variable", "statistic"]):
+    adjusted = "standard" in frame.columns
+    keys = ["variable", "statistic", *(["standard"] if adjusted else [])]
+    for key, sub in _sections(frame, keys):
+        var, stat = key[0], key[1]
         title = f"{var} · {labels[var]}" if var in labels else str(var)
-        acc.add([f"{title} ({_STAT_WORDS.get(stat, stat)})"], "section")
+        std = key[2] if adjusted and isinstance(key[2], str) else None
+        tail = f", age-adjusted (standard {std})" if std else ""
+        acc.add([f"{title} ({_STAT_WORDS.get(stat, stat)}{tail})"], "section")
         pct = stat == "proportion"
         se_dec = 2 if pct else auto_decimals(_median_se(sub))
         dec = 1 if pct else max(0, se_dec - 1)

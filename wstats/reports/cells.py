@@ -132,10 +132,12 @@ def reason_legend(reasons: Iterable[str]) -> str:
 def rule_info(rule_id: str) -> tuple[str, str]:
     """Return (description, source) of a reliability rule ('' for a rule not in RULES)."""
     try:
+        from wstats.estimation.age_adjust import AGE_FLAGS
         from wstats.estimation.reliability import NONRESPONSE_RULES, RULES
     except ImportError:  # the rules module is optional for rendering hand-built tables
         return "", ""
-    return RULES.get(rule_id) or NONRESPONSE_RULES.get(rule_id, ("", ""))
+    return (RULES.get(rule_id) or NONRESPONSE_RULES.get(rule_id)
+            or AGE_FLAGS.get(rule_id, ("", "")))
 
 
 def rule_text(rule_id: str) -> str:
