@@ -134,7 +134,7 @@ def add_estimate_args(p: argparse.ArgumentParser) -> None:
     g.add_argument("--by", nargs="+", action="extend", metavar="COL", default=[],
                    help="domains: levels of these variables, crossed")
     g.add_argument("--where", metavar="EXPR",
-                   help="row condition defining a subpopulation, e.g. 'AGE_YRS >= 65'")
+                   help="row condition defining a subpopulation, e.g. 'dm_age >= 65'")
     g.add_argument("--categorical", nargs="+", action="extend", metavar="COL", default=[],
                    help="treat these variables as categorical (a proportion per level)")
     g.add_argument("--stats", metavar="LIST",
