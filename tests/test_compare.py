@@ -211,10 +211,10 @@ def test_reasons_compare_item_nonresponse() -> None:
     cb = demo_codebook()
     ds = cb.decode(raw_table(demo.build_sample(rows=1500)))
     design = Design(**cb.design)
-    r = compare(ds, design, ["INCOME"], by="SEX", reasons=True)
+    r = compare(ds, design, ["dm_incbd"], by="dm_sex", reasons=True)
     rate = [x for x in r.differences.rows if x["statistic"] == "nonresponse-rate"][0]
-    nr = nonresponse(ds, design, ["INCOME"], by=["SEX"]).to_pandas()
-    groups = nr.loc[nr["SEX"].notna()]
+    nr = nonresponse(ds, design, ["dm_incbd"], by=["dm_sex"]).to_pandas()
+    groups = nr.loc[nr["dm_sex"].notna()]
     rates = groups["nonresponse_rate"].to_numpy()
     assert [rate["estimate_a"], rate["estimate_b"]] == pytest.approx(list(rates), rel=1e-9)
     test = [t for t in r.tests.rows if t["quantity"] == "reasons"][0]
