@@ -28,7 +28,7 @@ variable's levels in order (the number of levels must equal the number of groups
 
 from __future__ import annotations
 
-from collections.abc import Sequence
+from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
@@ -42,7 +42,8 @@ if TYPE_CHECKING:
 
     Array = npt.NDArray[np.float64]
 
-__all__ = ["STANDARDS", "Standard", "adjustment_weights", "load_standard"]
+__all__ = ["STANDARDS", "Standard", "adjustment_weights", "load_standard",
+           "standard_from_mapping"]
 
 
 @dataclass(frozen=True)
@@ -116,17 +117,24 @@ def _read_file(path: Path) -> Standard:
         raise UsageError(f"standard file {path} does not exist; check the path") from None
     except (OSError, tomllib.TOMLDecodeError) as exc:
         raise UsageError(f"standard file {path} cannot be read: {exc}") from exc
+    return standard_from_mapping(doc, f"standard file {path}")
+
+
+def standard_from_mapping(doc: Mapping[str, Any], origin: str) -> Standard:
+    """Return the standard a parsed TOML table describes (a file, or inline in a spec).
+
+    *origin* starts the one-line message of a mistake (e.g. ``standard file x.toml``).
+    """
     pop = doc.get("population")
     name, source = doc.get("name"), doc.get("source")
     if not isinstance(name, str) or not isinstance(source, str) or not name:
-        raise UsageError(f"standard file {path}: give name = \"...\" and source = \"...\"")
+        raise UsageError(f"{origin}: give name = \"...\" and source = \"...\"")
     if not isinstance(pop, dict) or not pop:
-        raise UsageError(f"standard file {path}: give a [population] table, e.g. \"1\" = 77670")
+        raise UsageError(f"{origin}: give a [population] table, e.g. \"1\" = 77670")
     values = list(pop.values())
     if not all(isinstance(v, int | float) and not isinstance(v, bool) and v > 0
                for v in values):
-        raise UsageError(f"standard file {path}: every [population] value must be a positive "
-                         "count or share")
+        raise UsageError(f"{origin}: every population value must be a positive count or share")
     return Standard(name, source, tuple(str(k) for k in pop), tuple(float(v) for v in values),
                     by_code=True)
 
