@@ -136,7 +136,7 @@ def _sections(frame: pd.DataFrame, keys: list[str]) -> Iterator[tuple[tuple[Any,
     """Yield (key, sub-frame) runs of consecutive rows sharing *keys*, in frame order."""
     if frame.empty:
         return
-    labels = frame[keys].astype(str).agg("\x1f".join, axis=1)
+    labels = frame[keys].astype(object).fillna("").astype(str).agg("\x1f".join, axis=1)
     run = (labels != labels.shift()).cumsum()
     for _, sub in frame.groupby(run, sort=False):
         yield tuple(sub.iloc[0][k] for k in keys), sub

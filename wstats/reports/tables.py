@@ -162,6 +162,7 @@ def table_variables(spec: TableSpec) -> list[str]:
     from wstats.decoding.expressions import expression_names
 
     names = [r.variable for r in spec.rows] + list(spec.by)
+    names += [r.age_adjust for r in spec.rows if r.age_adjust]
     names += expression_names(spec.where, f"where in {spec.source}") if spec.where else []
     return list(dict.fromkeys(names))
 
