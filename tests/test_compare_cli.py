@@ -169,3 +169,13 @@ def test_table_p_values_equal_compare(survey: Path, tmp_path: Path) -> None:
     assert "Rao-Scott" in table.methods and "d-k+2" in table.methods
     assert "us2000-adults20" in table.methods
     assert any(n.startswith("p: test across the levels of G") for n in table.footnotes)
+
+
+def test_methods_paragraph_names_the_standard(survey: Path) -> None:
+    # the methods text of age-adjusted estimates names the standard and its source
+    from wstats import methods_paragraph
+
+    t = estimate(_data(survey), DESIGN, ["Y"], age_adjust="A", standard="us2000-adults20")
+    text = methods_paragraph(t.design, t.settings, {}, None, "s.csv", None)
+    assert "age-adjusted (standard us2000-adults20)" in text and "levels of A" in text
+    assert "Klein & Schoenborn" in text

@@ -112,6 +112,7 @@ def methods_paragraph(
         *_reason_sentences(counts, recodes, reason_descriptions or {}),
         _nonresponse_sentence(nonresponse_range),
         _standard_sentence(standard),
+        _age_sentence(settings),
         "This note summarises what wstats did; where it differs from the survey's own "
         "documentation or from the standards of the agency publishing the estimates, those "
         "come first.",
@@ -120,6 +121,19 @@ def methods_paragraph(
     if fmt == "latex":
         return escape_latex(text)
     return escape_markdown(text) if fmt == "markdown" else text
+
+
+def _age_sentence(settings: Mapping[str, Any]) -> str:
+    """Describe direct age adjustment when the estimates used it (else '')."""
+    name = settings.get("standard")
+    if not name:
+        return ""
+    source = settings.get("standard_source")
+    origin = f" ({source})" if source else ""
+    return (f"Rows marked age-adjusted (standard {name}) are directly standardised over the "
+            f"levels of {settings.get('age_adjust')} to the {name} standard population{origin}; "
+            "their standard errors use the full design covariance of the age-specific "
+            "estimates.")
 
 
 def _counts(reasons_used: Mapping[str, int] | Iterable[str]) -> dict[str, int]:

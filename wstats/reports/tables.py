@@ -272,8 +272,11 @@ def _methods(spec: TableSpec, est: EstimateTable, codebook: Codebook | None) -> 
         asked = int(rec["n"]) + nonresp
         if asked:
             rates.append(nonresp / asked)
+    # the table's own sentences name every standard its rows use (table_methods_sentences)
+    settings = {k: v for k, v in est.settings.items()
+                if k not in ("standard", "standard_source", "age_adjust")}
     text = methods_paragraph(
-        est.design, est.settings, totals, (min(rates), max(rates)) if rates else None,
+        est.design, settings, totals, (min(rates), max(rates)) if rates else None,
         spec.data.name, spec.reliability, recodes=_recodes(spec, codebook),
         reason_descriptions=dict(codebook.reasons) if codebook else None,
     )
