@@ -133,10 +133,7 @@ def add_estimate_args(p: argparse.ArgumentParser) -> None:
     g = p.add_argument_group("what to estimate")
     g.add_argument("--by", nargs="+", action="extend", metavar="COL", default=[],
                    help="domains: levels of these variables, crossed")
-    g.add_argument("--where", metavar="EXPR",
-                   help="row condition defining a subpopulation, e.g. 'dm_age >= 65'")
-    g.add_argument("--categorical", nargs="+", action="extend", metavar="COL", default=[],
-                   help="treat these variables as categorical (a proportion per level)")
+    _add_subpopulation_options(g)
     g.add_argument("--stats", metavar="LIST",
                    help="comma list of mean,total,proportion,ratio,quantile (default: mean for "
                         "numbers, proportion for categories)")
@@ -153,6 +150,13 @@ def add_estimate_args(p: argparse.ArgumentParser) -> None:
     _add_age_options(g)
     g.add_argument("--plot", metavar="FILE", help="also draw estimates across domains (.png/.svg)")
     _add_output_options(p, OUTPUT_FORMATS)
+
+
+def _add_subpopulation_options(g: Any) -> None:
+    g.add_argument("--where", metavar="EXPR",
+                   help="row condition defining a subpopulation, e.g. 'dm_age >= 65'")
+    g.add_argument("--categorical", nargs="+", action="extend", metavar="COL", default=[],
+                   help="treat these variables as categorical (a proportion per level)")
 
 
 def _add_age_options(g: Any) -> None:
@@ -181,10 +185,7 @@ def add_compare_args(p: argparse.ArgumentParser) -> None:
                    help="linear (and with 4+ levels quadratic) trend across the ordered levels")
     g.add_argument("--reasons", action="store_true",
                    help="also compare item nonresponse and its reasons across the groups")
-    g.add_argument("--where", metavar="EXPR",
-                   help="row condition defining a subpopulation, e.g. 'AGE_YRS >= 65'")
-    g.add_argument("--categorical", nargs="+", action="extend", metavar="COL", default=[],
-                   help="treat these variables as categorical (a proportion per level)")
+    _add_subpopulation_options(g)
     g.add_argument("--level", type=float, default=0.95, help="confidence level (default 0.95)")
     _add_age_options(g)
     _add_output_options(p, ("table", "csv", "json", "markdown"))

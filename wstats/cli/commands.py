@@ -236,7 +236,7 @@ COMMANDS: dict[str, Command] = {
         add_estimate_args, _run_estimate),
     "compare": Command(
         "differences between groups with design-based SEs, Rao-Scott and Wald tests, trends",
-        "wstats compare survey.xpt BMI GENHLTH --by AGE_GRP --codebook codebook.toml",
+        "wstats compare survey.xpt bd_bmi hs_rate --by dm_age5 --codebook codebook.toml",
         add_compare_args, _run_compare),
     "nonresponse": Command(
         "counts and weighted shares of every missing reason; item nonresponse rates",
