@@ -244,3 +244,36 @@ def test_domain_without_valid_values_gives_nan_row_and_column() -> None:
     assert np.isnan(cov.estimate[2])
     assert np.isnan(cov.matrix[2]).all() and np.isnan(cov.matrix[:, 2]).all()
     assert np.isfinite(cov.matrix[:2, :2]).all()
+
+
+def test_row_tiles_give_the_same_covariance(monkeypatch: pytest.MonkeyPatch) -> None:
+    # common practice, no source: a pass in tiles of a few rows equals one pass
+    from wstats.decoding import columns
+
+    cols = _data(12)
+    ds = Dataset.from_arrays(cols)
+    design = Design("w", strata="st", psu="psu")
+
+    def run() -> np.ndarray:
+        eng = domain_sums(ds, design, ["g"])
+        _, inf = proportion_influence(eng.sums, eng.column(ds, "c"))
+        dom, col = _grid(eng.sums.n_domains, inf.estimate.shape[1])
+        return joint_covariance(eng.sums, [(inf, dom, col)]).matrix
+
+    whole = run()
+    monkeypatch.setattr(columns, "ROW_TILE", 7)
+    assert run() == pytest.approx(whole, rel=1e-12, abs=1e-15)
+
+
+def test_psu_tiles_give_the_same_covariance(monkeypatch: pytest.MonkeyPatch) -> None:
+    # common practice, no source: the dense PSU block made a few PSUs at a time
+    from wstats.estimation import covariance
+
+    cols = _data(13)
+    ds = Dataset.from_arrays(cols)
+    eng = domain_sums(ds, Design("w", strata="st", psu="psu", singleton="center"), ["g"])
+    inf = mean_influence(eng.sums, eng.column(ds, "y"))
+    picks = [(inf, np.arange(4), np.zeros(4, np.int64))]
+    whole = joint_covariance(eng.sums, picks).matrix
+    monkeypatch.setattr(covariance, "_CELLS", 8)
+    assert joint_covariance(eng.sums, picks).matrix == pytest.approx(whole, rel=1e-12)

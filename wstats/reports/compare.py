@@ -305,8 +305,8 @@ def _variable(data: Dataset, plan: _Plan, name: str, forced: bool
     tests: list[dict[str, Any]] = []
     g = plan.n_groups
     head = {"variable": name, "statistic": stat, "by": plan.by, "standard": plan.standard}
-    flags = _age_flags(plan, cov)
     for j, lab in enumerate(labels):  # loop over levels only
+        flags = _age_flags(cov, j, g)
         sub = cov.covariance.subset(np.arange(j * g, (j + 1) * g))
         level_head = {**head, "level": lab if stat == "proportion" else None}
         diffs += difference_rows(sub, plan.pairs, plan.labels, level_head, plan.level, flags)
@@ -323,38 +323,37 @@ def _variable(data: Dataset, plan: _Plan, name: str, forced: bool
 
 @dataclass(frozen=True)
 class _GroupCov:
-    """Group estimates (levels x groups, level-major) with their covariance and cell facts."""
+    """Group estimates (levels x groups, level-major) with their covariance and cell facts.
+
+    ``degenerate``: per (level, group), an age cell with SE 0 (always False without ages).
+    """
 
     covariance: Covariance
-    degenerate: bool
+    degenerate: Any
 
 
 def group_covariance(plan: _Plan, inf: Any, n_levels: int, name: str) -> _GroupCov:
     """Return the estimates of every (level, group), age-adjusted when the plan says so."""
+    from wstats.estimation.age_adjust import adjust_cells
+
     g, a = plan.n_groups, plan.n_ages
     lv, gg, aa = np.meshgrid(np.arange(n_levels), np.arange(g), np.arange(a), indexing="ij")
     dom = 1 + gg.ravel() * a + aa.ravel()
     cov = joint_covariance(plan.eng.sums, [(inf, dom, lv.ravel())])
     if plan.age is None:
-        return _GroupCov(cov, False)
+        return _GroupCov(cov, np.zeros(n_levels * g, dtype=bool))
     age_name, weights, age_labels = plan.age
-    est = cov.estimate.reshape(n_levels * g, a)
-    empty = np.argwhere(np.isnan(est))
-    if len(empty):
-        grp, age = divmod(int(empty[0][0]), g)[1], int(empty[0][1])
-        raise EstimationError(
-            f"age group '{age_labels[age]}' of {age_name} has no respondent with a valid "
-            f"{name} in group '{plan.labels[grp]}' of {plan.by}: the age-adjusted value is "
-            "undefined there; group the ages more coarsely or drop the group")
-    se0 = np.diag(cov.matrix).reshape(n_levels * g, a) <= 0
-    degenerate = bool((se0 & (weights > 0)[None, :]).any())
-    adjust = np.kron(np.eye(n_levels * g), weights[None, :])
-    return _GroupCov(cov.transform(adjust), degenerate)
+    adj = adjust_cells(cov, weights, lambda k: f"group '{plan.labels[k % g]}' of {plan.by}",
+                       age_labels, age_name, name)
+    return _GroupCov(adj.covariance, adj.degenerate)
 
 
-def _age_flags(plan: _Plan, cov: _GroupCov) -> list[str]:
-    """Return the flags every row of a variable carries (a 0 %/100 % age cell)."""
-    return ["age-cell-0-or-100"] if cov.degenerate else []
+def _age_flags(cov: _GroupCov, level: int, n_groups: int) -> list[str]:
+    """Return the flags of one level's rows: a 0 %/100 % age cell in one of its groups."""
+    from wstats.estimation.age_adjust import AGE_FLAG
+
+    part = cov.degenerate[level * n_groups : (level + 1) * n_groups]
+    return [AGE_FLAG] if bool(np.any(part)) else []
 
 
 def _independence(data: Dataset, plan: _Plan, col: DecodedColumn, name: str
