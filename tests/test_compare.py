@@ -135,7 +135,7 @@ def test_pairs_reference_and_adjustment() -> None:
     from statsmodels.stats.multitest import multipletests
 
     ds = _data()
-    r = compare(ds, DESIGN, ["y", "b"], by="g", pairs="all", adjust="holm",
+    r = compare(ds, DESIGN, ["y", "b"], by="g", pairs="all", adjust_p="holm",
                 categorical=["b"])
     rows = r.differences.to_pandas()
     assert len(rows) == 3 + 3 * 2  # y: 3 pairs; b: 2 levels x 3 pairs
@@ -226,7 +226,7 @@ def test_options_are_checked() -> None:
     with pytest.raises(UsageError, match="reference, all"):
         compare(_data(), DESIGN, ["y"], by="g", pairs="each")
     with pytest.raises(UsageError, match="holm"):
-        compare(_data(), DESIGN, ["y"], by="g", adjust="hochberg")
+        compare(_data(), DESIGN, ["y"], by="g", adjust_p="hochberg")
     with pytest.raises(UsageError, match="both the age variable and a standard"):
         compare(_data(), DESIGN, ["y"], by="g", age_adjust="age")
     with pytest.raises(UsageError, match="both compared and used to form groups"):

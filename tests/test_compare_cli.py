@@ -59,7 +59,7 @@ def test_compare_json_contract_equals_library(survey: Path,
                  "--trend", "--reasons"]) == 0
     out = json.loads(capsys.readouterr().out)
     assert {"provenance", "differences", "tests"} <= set(out)
-    lib = compare(_data(survey), DESIGN, ["Y", "Q"], by="G", adjust="bh", trend=True,
+    lib = compare(_data(survey), DESIGN, ["Y", "Q"], by="G", adjust_p="bh", trend=True,
                   reasons=True)
     assert [r["difference"] for r in out["differences"]] == pytest.approx(
         [r["difference"] for r in lib.differences.rows])

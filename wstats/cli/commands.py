@@ -89,7 +89,7 @@ def _run_compare(args: argparse.Namespace) -> int:
     needed = needed_columns([*args.variables, args.by, *age], design, args.where, args.data)
     data = _read(args, codebook, needed)
     result = compare(data, design, args.variables, by=args.by, reference=args.reference,
-                     pairs=args.pairs, adjust=args.adjust_p, trend=args.trend,
+                     pairs=args.pairs, adjust_p=args.adjust_p, trend=args.trend,
                      reasons=args.reasons, where=args.where, categorical=args.categorical,
                      level=args.level, age_adjust=args.age_adjust, standard=args.standard)
     _emit(result, "compare", args, [args.data], args.codebook)

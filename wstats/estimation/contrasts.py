@@ -55,7 +55,7 @@ def t_two_sided(t: npt.ArrayLike, df: npt.ArrayLike) -> Array:
         x = d[big] / (d[big] + tt[big] ** 2)
     out[big] = betainc(d[big] / 2.0, 0.5, x)
     normal = np.isfinite(tt) & np.isposinf(d)
-    if normal.any():  # the limit of the t: the normal, as an F(1, inf)-free erfc
+    if normal.any():  # infinite df: the normal tail, 2 P(Z > |t|) = erfc(|t|/sqrt 2)
         from math import erfc, sqrt
 
         out[normal] = [erfc(v / sqrt(2.0)) for v in tt[normal].tolist()]

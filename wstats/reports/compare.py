@@ -135,7 +135,7 @@ def compare(
     by: str,
     reference: str | None = None,
     pairs: str = "reference",
-    adjust: str = "none",
+    adjust_p: str = "none",
     trend: bool = False,
     reasons: bool = False,
     where: str | None = None,
@@ -156,7 +156,7 @@ def compare(
     reference : label (or code) of the group the others are compared with (default: the
         first level); ignored with ``pairs="all"``.
     pairs : ``reference`` (every group against the reference) or ``all`` (every pair).
-    adjust : multiplicity adjustment of the difference rows' p-values: ``none``, ``holm``
+    adjust_p : multiplicity adjustment of the difference rows' p-values: ``none``, ``holm``
         (Holm 1979) or ``bh`` (Benjamini-Hochberg 1995), over all difference rows.
     trend : add linear (and with 4+ groups quadratic) contrasts over the ordered groups.
     reasons : compare item nonresponse across groups too.
@@ -181,7 +181,7 @@ def compare(
     >>> round(compare(ds, Design("w"), ["y"], by="g").differences.rows[0]["difference"], 2)
     2.5
     """
-    plan = _plan(data, design, variables, by, reference, pairs, adjust, level, trend,
+    plan = _plan(data, design, variables, by, reference, pairs, adjust_p, level, trend,
                  age_adjust, standard, categorical, where, reasons)
     diff_rows: list[dict[str, Any]] = []
     test_rows: list[dict[str, Any]] = []
@@ -195,9 +195,9 @@ def compare(
             d, t = reason_rows(data, plan, name, not_asked)
             diff_rows += d
             test_rows += t
-    _adjust(diff_rows, adjust)
+    _adjust(diff_rows, adjust_p)
     settings = {"pairs": pairs, "reference": plan.labels[plan.pairs[0][0]],
-                "adjust_p": adjust, "df_rule": "design", "level": level,
+                "adjust_p": adjust_p, "df_rule": "design", "level": level,
                 "standard": plan.standard, "age_adjust": age_adjust,
                 "deff_at": "independence fit", "wald_df2": "d - k + 2"}
     return Comparison(RowTable(tuple(diff_rows), DIFFERENCE_COLUMNS),
