@@ -17,8 +17,9 @@ import numpy as np
 
 from wstats.decoding.reasons import VALID
 from wstats.errors import EstimationError, did_you_mean
-from wstats.estimation.domains import Domains, no_cell
-from wstats.estimation.levels import category_levels, distinct_values, level_index
+from wstats.estimation.domain_setup import build_domains as _domains
+from wstats.estimation.domain_setup import check_names as _check_names
+from wstats.estimation.domain_setup import is_categorical as _is_categorical
 from wstats.estimation.statistics import (
     Context,
     Mean,
@@ -34,9 +35,10 @@ from wstats.estimation.sums import WeightedSums
 if TYPE_CHECKING:
     import numpy.typing as npt
 
-    from wstats.decoding.columns import Dataset, DecodedColumn
+    from wstats.decoding.columns import Dataset
     from wstats.design.bound import BoundDesign
     from wstats.design.declared import Design
+    from wstats.estimation.domains import Domains
     from wstats.estimation.reliability import ReliabilityStandard
     from wstats.estimation.results import EstimateTable
     from wstats.estimation.standards import Standard
@@ -47,7 +49,6 @@ if TYPE_CHECKING:
 __all__ = ["estimate"]
 
 _NAMES = ("mean", "total", "proportion", "ratio", "quantile")
-MAX_CELLS = 10_000  # crossed by-cells allowed in one call
 
 
 def estimate(
@@ -193,24 +194,6 @@ def _check_options(statistics: str | Sequence[str] | None, level: float, proport
     return names
 
 
-def _check_names(data: Dataset, names: Sequence[str]) -> None:
-    """Raise EstimationError naming the first variable that is not in *data*."""
-    for name in names:
-        if name not in data.columns:
-            where = f" in {data.source}" if data.source else ""
-            raise EstimationError(
-                f"variable '{name}' is not{where}{did_you_mean(name, data.columns)}"
-            )
-
-
-def _is_categorical(col: DecodedColumn, forced: set[str]) -> bool:
-    """Return True for categorical/binary/text kinds, names in *forced*, or fully labelled data."""
-    if col.name in forced or col.kind in ("categorical", "binary", "text"):
-        return True
-    if not col.value_labels or col.values.dtype.kind != "f":
-        return False
-    seen = distinct_values(col.values[col.valid])
-    return bool(len(seen)) and all(float(v) in col.value_labels for v in seen)
 
 
 def _run(ctx: Context, variables: Sequence[str], stats: list[str] | None, forced: set[str],
@@ -254,43 +237,6 @@ def _one(ctx: Context, name: str, stat: str, ci: str) -> Piece:
         return Total()(ctx, name)
     return Proportion(ci)(ctx, name)
 
-
-def _domains(data: Dataset, bound: BoundDesign, by: list[str], where: str | None
-             ) -> tuple[Domains, list[tuple[list[Any], list[Any]]]]:
-    """Return the domain membership and, per by-variable, its (values, display values)."""
-    inside: Bool = np.broadcast_to(np.True_, (bound.n_rows,))  # read-only, no memory per row
-    if where is not None:
-        from wstats.decoding.expressions import parse_expression
-
-        expr = parse_expression(where, list(data.columns), "where")
-        values, reasons = expr.evaluate(data.columns, data.vocabulary, data.n_rows)
-        ok = (reasons == VALID) & (np.nan_to_num(values, nan=0.0) != 0)
-        inside = ok if bound.rows is None else ok[bound.rows]
-    codes: list[Index] = []
-    levels: list[tuple[list[Any], list[Any]]] = []
-    for name in by:
-        col = bound.column(data.columns[name])
-        lv, labels = category_levels(col)
-        display = [lab if v in col.value_labels else _plain(v)
-                   for v, lab in zip(lv, labels, strict=True)]
-        codes.append(level_index(col, lv, col.valid))
-        levels.append((lv, display))
-    sizes = [len(v) for v, _ in levels]
-    if int(np.prod(sizes)) > MAX_CELLS:
-        raise EstimationError(
-            f"the by-variables {', '.join(by)} cross into {int(np.prod(sizes))} cells (limit "
-            f"{MAX_CELLS}); group a continuous by-variable into classes first"
-        )
-    if any(s == 0 for s in sizes):
-        return Domains(inside, no_cell(bound.n_rows), 0), levels
-    return Domains.build(inside, codes, sizes), levels
-
-
-def _plain(v: Any) -> Any:
-    """Return an integral float as int (a level shown as 3, not 3.0), else the value."""
-    if isinstance(v, float) and v.is_integer():
-        return int(v)
-    return v
 
 
 def _columns(pieces: list[Piece], by: list[str],

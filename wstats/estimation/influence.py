@@ -60,11 +60,11 @@ def domain_sums(data: Dataset, design: Design, by: Sequence[str], where: str | N
     Domains as :func:`wstats.estimate` makes them (population first, then the by-cells in
     row-major order of the levels), so a cell's domain number is its cell number + 1.
     """
-    from wstats.estimation.estimate import _check_names, _domains
+    from wstats.estimation.domain_setup import build_domains, check_names
 
-    _check_names(data, list(by))
+    check_names(data, list(by))
     bound = design.bind(data)
-    domains, levels = _domains(data, bound, list(by), where)
+    domains, levels = build_domains(data, bound, list(by), where)
     return DomainSums(bound, WeightedSums(bound, domains), levels)
 
 

@@ -211,9 +211,9 @@ def _plan(data: Dataset, design: Design, variables: Sequence[str], by: str,
           categorical: Sequence[str], where: str | None, reasons: bool) -> _Plan:
     """Check the options and build what every variable shares."""
     _check_options(pairs, adjust, level, age_adjust, standard)
-    from wstats.estimation.estimate import _check_names
+    from wstats.estimation.domain_setup import check_names
 
-    _check_names(data, [*variables, by, *categorical, *([age_adjust] if age_adjust else [])])
+    check_names(data, [*variables, by, *categorical, *([age_adjust] if age_adjust else [])])
     if by in variables or (age_adjust is not None and age_adjust in (by, *variables)):
         raise UsageError(f"variable '{by if by in variables else age_adjust}' is both compared "
                          "and used to form groups; drop it from one of them")
@@ -285,7 +285,7 @@ def _code(v: Any) -> str:
 
 def _is_categorical(col: DecodedColumn, forced: bool) -> bool:
     """Return whether *col* is compared by its levels' proportions."""
-    from wstats.estimation.estimate import _is_categorical as decide
+    from wstats.estimation.domain_setup import is_categorical as decide
 
     return decide(col, {col.name} if forced else set())
 

@@ -253,7 +253,7 @@ def _reason_sums(data: Dataset, design: Design, names: list[str], by: Sequence[s
     The domains are the estimation engine's own (same rows, same order as its estimates):
     row 0 the population, then the crossed by-cells.
     """
-    from wstats.estimation.estimate import _domains
+    from wstats.estimation.domain_setup import build_domains as _domains
 
     bound = design.bind(data)
     domains, _ = _domains(data, bound, list(by), where)
