@@ -228,20 +228,23 @@ def _plan(data: Dataset, design: Design, variables: Sequence[str], by: str,
               if pairs == "all" else [(ref, b) for b in range(len(labels)) if b != ref])
     scores = [float(v) if isinstance(v, int | float) else float(i)
               for i, v in enumerate(values)]
-    age = None
-    name = None
-    groups = eng
-    if age_adjust is not None and reasons:
-        groups = domain_sums(data, design, [by], where)
-    if age_adjust is not None:
-        from wstats.estimation.standards import adjustment_weights, load_standard
-
-        std = standard if not isinstance(standard, str | None) else load_standard(
-            standard or "")
-        codes, age_shown = eng.levels[1]
-        weights = adjustment_weights(std, codes, [str(s) for s in age_shown], age_adjust)
-        age, name = (age_adjust, weights, [str(s) for s in age_shown]), std.name
+    if age_adjust is None or standard is None:
+        return _Plan(eng, by, labels, scores, chosen, level, trend, None, None, eng)
+    # the reasons are compared crude: they need the groups without the age cells
+    groups = domain_sums(data, design, [by], where) if reasons else eng
+    age, name = _age_plan(eng, age_adjust, standard)
     return _Plan(eng, by, labels, scores, chosen, level, trend, age, name, groups)
+
+
+def _age_plan(eng: DomainSums, age_adjust: str, standard: str | Standard
+              ) -> tuple[tuple[str, Any, list[str]], str]:
+    """Return (age variable, weights per age level, age labels) and the standard's name."""
+    from wstats.estimation.standards import adjustment_weights, load_standard
+
+    std = load_standard(standard) if isinstance(standard, str) else standard
+    codes, shown = eng.levels[1]
+    labels = [str(s) for s in shown]
+    return (age_adjust, adjustment_weights(std, codes, labels, age_adjust), labels), std.name
 
 
 def _check_options(pairs: str, adjust: str, level: float, age_adjust: str | None,
