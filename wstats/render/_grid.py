@@ -160,7 +160,7 @@ def estimate_grid(table: EstimateTable) -> Grid:
         title = f"{var} · {labels[var]}" if var in labels else str(var)
         std = key[2] if adjusted and isinstance(key[2], str) else None
         tail = f", age-adjusted (standard {std})" if std else ""
-        acc.add([f"{title} ({_STAT_WORDS.get(stat, stat)}{tail})"], "section")
+        acc.add([f"{title} ({_STAT_WORDS.get(stat, stat)}){tail}"], "section")
         pct = stat == "proportion"
         se_dec = 2 if pct else auto_decimals(_median_se(sub))
         dec = 1 if pct else max(0, se_dec - 1)
