@@ -179,3 +179,14 @@ def test_methods_paragraph_names_the_standard(survey: Path) -> None:
     text = methods_paragraph(t.design, t.settings, {}, None, "s.csv", None)
     assert "age-adjusted (standard us2000-adults20)" in text and "levels of A" in text
     assert "Klein & Schoenborn" in text
+
+
+@pytest.mark.parametrize("fmt", ["markdown", "csv", "json"])
+def test_compare_renderers_match_golden(survey: Path, fmt: str) -> None:
+    # golden files: a change in the layout of a comparison shows up as a diff to review
+    from test_render import check_golden
+
+    result = compare(_data(survey), DESIGN, ["Y", "Q"], by="G", trend=True, reasons=True,
+                     adjust_p="holm")
+    text = COMPARE_RENDERERS[fmt](result, provenance={"tool": "wstats", "command": "test"})
+    check_golden(f"compare.{ {'markdown': 'md'}.get(fmt, fmt) }", text)

@@ -51,6 +51,8 @@ def reason_rows(data: Dataset, plan: Any, name: str, not_asked: Sequence[str]
     present = np.flatnonzero(np.bincount(kind[inside], minlength=4) > 0)
     rank = np.full(4, -1)
     rank[present] = np.arange(len(present))
+    if len(present) < 2:  # every asked row gave the same kind of answer: nothing to test
+        return diffs, []
     code = np.where(inside, rank[kind] * g + group, -1)
     test = rao_scott_table(eng.sums, code, (len(present), g), int(inside.sum()),
                            {"variable": name, "by": plan.by, "quantity": "reasons",
