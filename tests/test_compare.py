@@ -231,3 +231,34 @@ def test_options_are_checked() -> None:
         compare(_data(), DESIGN, ["y"], by="g", age_adjust="age")
     with pytest.raises(UsageError, match="both compared and used to form groups"):
         compare(_data(), DESIGN, ["g"], by="g")
+
+
+def test_where_condition_matches_estimate() -> None:
+    # [C] a subpopulation keeps the full design: the groups' means equal estimate(where=...)
+    ds = _data(4)
+    r = compare(ds, DESIGN, ["y"], by="g", where="age == 1")
+    means = estimate(ds, DESIGN, ["y"], by=["g"], where="age == 1").frame.iloc[1:]
+    got = [r.differences.rows[0]["estimate_a"], *(x["estimate_b"] for x in r.differences.rows)]
+    assert got == pytest.approx(means["estimate"].to_numpy())
+
+
+def test_text_groups_and_an_empty_level() -> None:
+    # common practice, no source: text levels are groups in sorted order; a labelled level
+    # without rows gives NaN differences, and the Rao-Scott test drops its zero margin
+    ds = _data(5)
+    cols = {k: ds[k].values for k in ds.columns}
+    cols["g"] = np.where(cols["g"] == 3.0, 2.0, cols["g"])  # level 3 empty from here on
+    data = Dataset.from_arrays(cols)
+    data["g"].value_labels.update({1.0: "one", 2.0: "two", 3.0: "three"})
+    r = compare(data, DESIGN, ["y", "b"], by="g", categorical=["b"])
+    rows = r.differences.rows
+    assert [x["group_b"] for x in rows[:2]] == ["two", "three"]
+    assert np.isfinite(rows[0]["difference"]) and rows[1]["difference"] is not None
+    assert np.isnan(rows[1]["difference"])
+    rs = [t for t in r.tests.rows if t["test"] == "rao-scott"][0]
+    assert np.isfinite(rs["p"]) and rs["df1"] == pytest.approx(1.0 / (1.0 + rs["deff_cv2"]))
+    wald = [t for t in r.tests.rows if t["test"] == "wald"][0]
+    assert wald["df1"] == 1.0 and wald["statistic"] == pytest.approx(rows[0]["t"] ** 2)
+    text = Dataset.from_arrays({**cols, "g": np.array(["b", "a"])[(cols["g"] == 1).astype(int)]})
+    r2 = compare(text, DESIGN, ["y"], by="g")
+    assert [r2.differences.rows[0]["group_a"], r2.differences.rows[0]["group_b"]] == ["a", "b"]

@@ -74,12 +74,8 @@ def adjust_cells(cov: Covariance, weights: Array, unit_name: Callable[[int], str
             "the ages more coarsely or leave that domain out")
     var = np.diag(cov.matrix).reshape(-1, a)
     degenerate = np.asarray(((var <= 0) & used[None, :]).any(axis=1) & ~empty, dtype=bool)
-    # an unused (weight 0) or wholly empty cell is NaN: 0 x NaN would spread it
-    clean = Covariance(np.nan_to_num(cov.estimate), np.nan_to_num(cov.matrix), cov.df)
-    out = clean.transform(np.kron(np.eye(est.shape[0]), weights[None, :]))
-    out.estimate[empty] = np.nan
-    out.matrix[empty, :] = np.nan
-    out.matrix[:, empty] = np.nan
+    # an unused (weight 0) age cell may be NaN: a zero coefficient does not carry it
+    out = cov.transform(np.kron(np.eye(est.shape[0]), weights[None, :]))
     return Adjusted(out, degenerate, empty)
 
 

@@ -133,8 +133,16 @@ class WaldTest:
 
 
 def wald_equal(cov: Covariance) -> WaldTest:
-    """Return the adjusted Wald F that every estimate of *cov* is equal (G >= 2)."""
+    """Return the adjusted Wald F that every estimate of *cov* is equal (G >= 2).
+
+    Estimates that could not be made (NaN: an empty group) are left out and q reduced.
+    """
+    made = np.flatnonzero(np.isfinite(cov.estimate))
+    if len(made) < len(cov.estimate):
+        cov = cov.subset(made)
     g = len(cov.estimate)
+    if g < 2:
+        return WaldTest(np.nan, np.nan, float(max(g - 1, 0)), np.nan, np.nan)
     c = np.hstack([-np.ones((g - 1, 1)), np.eye(g - 1)])
     return wald_test(cov, c)
 

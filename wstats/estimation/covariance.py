@@ -116,15 +116,22 @@ class Covariance:
     df: float
 
     def variance(self, c: npt.ArrayLike) -> Array:
-        """Return c V c' for each row of *c* ((K,) -> scalar array, (M, K) -> (M,))."""
+        """Return c V c' for each row of *c* ((K,) -> scalar array, (M, K) -> (M,)).
+
+        NaN where a nonzero coefficient meets a NaN estimate (a zero one does not).
+        """
         cm = np.atleast_2d(np.asarray(c, dtype=np.float64))
-        out = np.einsum("mk,kl,ml->m", cm, self.matrix, cm)
+        out = np.einsum("mk,kl,ml->m", cm, np.nan_to_num(self.matrix), cm)
+        out[self._touched(cm)] = np.nan
         return np.asarray(out if np.ndim(c) > 1 else out[0])
 
     def combine(self, c: npt.ArrayLike) -> tuple[Array, Array]:
         """Return the estimates c theta and their standard errors sqrt(c V c')."""
         cm = np.asarray(c, dtype=np.float64)
-        return np.asarray(cm @ self.estimate), np.sqrt(np.maximum(self.variance(cm), 0.0))
+        est = np.atleast_1d(np.atleast_2d(cm) @ np.nan_to_num(self.estimate))
+        est[self._touched(np.atleast_2d(cm))] = np.nan
+        se = np.sqrt(np.maximum(self.variance(cm), 0.0))
+        return (est if cm.ndim > 1 else est[0]), se
 
     def subset(self, index: npt.ArrayLike) -> Covariance:
         """Return the estimates *index* with their block of the covariance."""
@@ -133,8 +140,19 @@ class Covariance:
 
     def transform(self, a: npt.ArrayLike) -> Covariance:
         """Return the estimates A theta with covariance A V A' (A: (M, K))."""
-        am = np.asarray(a, dtype=np.float64)
-        return Covariance(am @ self.estimate, am @ self.matrix @ am.T, self.df)
+        am = np.atleast_2d(np.asarray(a, dtype=np.float64))
+        bad = self._touched(am)
+        est = am @ np.nan_to_num(self.estimate)
+        matrix = am @ np.nan_to_num(self.matrix) @ am.T
+        est[bad] = np.nan
+        matrix[bad, :] = np.nan
+        matrix[:, bad] = np.nan
+        return Covariance(est, matrix, self.df)
+
+    def _touched(self, cm: Array) -> npt.NDArray[np.bool_]:
+        """Return, per row of *cm*, whether a nonzero coefficient meets a NaN estimate."""
+        missing = ~np.isfinite(self.estimate)
+        return np.asarray(((cm != 0) & missing[None, :]).any(axis=1), dtype=bool)
 
 
 #: one block of picked estimates: an influence and, per estimate, its domain and column
