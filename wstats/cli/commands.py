@@ -100,8 +100,9 @@ def _standard(name: str) -> Any:
     from wstats.estimation.reliability import STANDARDS
 
     if name not in STANDARDS:
-        raise UsageError(f"--standard '{name}' is unknown; choose one of "
-                         f"{', '.join(STANDARDS)}")
+        raise UsageError(f"reliability standard '{name}' is unknown; choose one of "
+                         f"{', '.join(STANDARDS)} (a standard population for age adjustment "
+                         "needs --age-adjust AGEVAR)")
     return STANDARDS[name]
 
 
