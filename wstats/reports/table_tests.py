@@ -25,22 +25,29 @@ _GLOBAL = ("rao-scott", "wald")
 
 
 def table_p_values(spec: TableSpec, data: Dataset, design: Design) -> dict[PKey, float]:
-    """Return the p-value of every mean or proportion row against each grouping variable."""
+    """Return the p-value of every mean or proportion row against each grouping variable.
+
+    Rows sharing a statistic and an age adjustment are tested in one call per grouping
+    variable (one binding of the design, one pass per variable).
+    """
     from wstats.reports.compare import compare
 
+    calls: dict[tuple[Any, ...], list[str]] = {}
+    for row in spec.rows:
+        if row.statistic in (None, "mean", "proportion"):
+            calls.setdefault((row.statistic, row.age_adjust, row.standard), []).append(
+                row.variable)
     out: dict[PKey, float] = {}
-    for row in spec.rows:  # loop over table rows and grouping variables only
-        if row.statistic not in (None, "mean", "proportion"):
-            continue
-        forced = [row.variable] if row.statistic == "proportion" else []
-        std = row.standard.name if row.standard is not None else ""
+    for (stat, age, std), names in calls.items():  # loop over kinds of rows only
+        variables = list(dict.fromkeys(names))
         for b in spec.by:
-            result = compare(data, design, [row.variable], by=b, where=spec.where,
-                             categorical=forced, level=spec.level, age_adjust=row.age_adjust,
-                             standard=row.standard)
+            result = compare(data, design, variables, by=b, where=spec.where,
+                             categorical=variables if stat == "proportion" else (),
+                             level=spec.level, age_adjust=age, standard=std)
             for t in result.tests.rows:
                 if t["test"] in _GLOBAL and t["quantity"] in ("mean", "proportion"):
-                    key = (row.variable, t["quantity"], t["level"] or "", std, b)
+                    key = (t["variable"], t["quantity"], t["level"] or "",
+                           std.name if std is not None else "", b)
                     out[key] = float(t["p"])
     return out
 
