@@ -190,3 +190,21 @@ def test_compare_renderers_match_golden(survey: Path, fmt: str) -> None:
                      adjust_p="holm")
     text = COMPARE_RENDERERS[fmt](result, provenance={"tool": "wstats", "command": "test"})
     check_golden(f"compare.{ {'markdown': 'md'}.get(fmt, fmt) }", text)
+
+
+def test_table_spec_checks_age_keys(survey: Path, tmp_path: Path) -> None:
+    # one-line errors naming the spec key (the house rule for spec mistakes)
+    from wstats import AnalysisError
+
+    spec = tmp_path / "bad.toml"
+    head = f'data = "{survey.name}"\ncodebook = "cb.toml"\n'
+    spec.write_text(head + 'rows = [{ variable = "Y", age_adjust = "A" }]\n', encoding="utf-8")
+    with pytest.raises(AnalysisError, match=r"rows\[0\].age_adjust: give both"):
+        load_table_spec(spec)
+    spec.write_text(head + 'rows = [{ variable = "Y", age_adjust = "A", standard = '
+                    '{ source = "x", population = { "1" = 2 } } }]\n', encoding="utf-8")
+    with pytest.raises(AnalysisError, match=r"rows\[0\].standard: .*name"):
+        load_table_spec(spec)
+    spec.write_text(head + 'rows = ["Y"]\n[columns]\np_value = true\n', encoding="utf-8")
+    with pytest.raises(AnalysisError, match="columns.p_value"):
+        load_table_spec(spec)
