@@ -90,7 +90,7 @@ def test_compare_other_formats(survey: Path, capsys: pytest.CaptureFixture[str])
     from wstats.render import _plain_text
 
     term = _plain_text(COMPARE_RENDERERS["terminal"](result), width=200)
-    assert "Second - first" in term and "North" in term
+    assert "B - A" in term and "North" in term
 
 
 def test_compare_cli_refuses_part_versus_whole(survey: Path,

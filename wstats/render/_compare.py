@@ -25,9 +25,9 @@ __all__ = ["compare_csv", "compare_grids", "compare_json", "compare_markdown",
 
 _DIFF_COLUMNS = (
     Column("variable", "Variable", "l"), Column("level", "Level", "l"),
-    Column("group_a", "First", "l"), Column("group_b", "Second", "l"),
-    Column("estimate_a", "First value"), Column("estimate_b", "Second value"),
-    Column("difference", "Second - first"), Column("se", "SE"),
+    Column("group_a", "Group A", "l"), Column("group_b", "Group B", "l"),
+    Column("estimate_a", "A"), Column("estimate_b", "B"),
+    Column("difference", "B - A"), Column("se", "SE"),
     Column("ci", "Interval"), Column("t", "t"), Column("p", "p"),
     Column("p_adjusted", "p adjusted"), Column("flags", "Flags", "l"))
 _TEST_COLUMNS = (
@@ -90,7 +90,7 @@ def compare_notes(result: Comparison) -> tuple[str, ...]:
 
     s = result.settings
     notes = [design_line(result.design, {}, result.level),
-             "Differences are the second group's value minus the first's; proportions and "
+             "B - A: group B's value minus group A's; proportions and "
              "nonresponse rates in percent, their differences in percentage points. SE from "
              "the full design covariance of the two estimates; t and two-sided p on the "
              "design degrees of freedom.",
