@@ -208,3 +208,22 @@ def test_table_spec_checks_age_keys(survey: Path, tmp_path: Path) -> None:
     spec.write_text(head + 'rows = ["Y"]\n[columns]\np_value = true\n', encoding="utf-8")
     with pytest.raises(AnalysisError, match="columns.p_value"):
         load_table_spec(spec)
+
+
+def test_analysis_file_runs_a_comparison(survey: Path, tmp_path: Path) -> None:
+    # a [[compare]] entry of an analysis file gives what compare() gives
+    from wstats.cli.analysis import run_analysis
+
+    doc = tmp_path / "a.toml"
+    doc.write_text(
+        f'data = "{survey.name}"\ncodebook = "cb.toml"\n'
+        '[[compare]]\nvariables = ["Y", "Q"]\nby = "G"\nadjust_p = "holm"\nreasons = true\n'
+        'age_adjust = "A"\nstandard = "us2000-adults18"\noutput = "cmp.json"\n',
+        encoding="utf-8")
+    paths = run_analysis(doc)
+    out = json.loads(Path(paths[0]).read_text(encoding="utf-8"))
+    lib = compare(_data(survey), DESIGN, ["Y", "Q"], by="G", adjust_p="holm", reasons=True,
+                  age_adjust="A", standard="us2000-adults18")
+    assert [r["p_adjusted"] for r in out["differences"]] == pytest.approx(
+        [r["p_adjusted"] for r in lib.differences.records()], nan_ok=True)
+    assert out["settings"]["standard"] == "us2000-adults18"

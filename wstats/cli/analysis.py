@@ -146,6 +146,8 @@ def _needed(analysis: Analysis, design: Design, known: Sequence[str]
         for key in ("variables", "by", "categorical"):
             for name in opts.get(key, ()):
                 wanted.setdefault(name, f"{job.key} {key}")
+        if opts.get("age_adjust"):
+            wanted.setdefault(opts["age_adjust"], f"{job.key} age_adjust")
         for num, den in opts.get("ratios", ()):
             wanted.setdefault(num, f"{job.key} ratios")
             wanted.setdefault(den, f"{job.key} ratios")
@@ -198,7 +200,8 @@ class _Runner:
         out: list[tuple[Output, bytes]] = []
         steps: dict[str, Callable[[Job], list[tuple[Output, bytes]]]] = {
             "estimates": self.estimates, "nonresponse": self.nonresponse,
-            "bounds": self.bounds, "table": self.table, "methods": self.methods,
+            "bounds": self.bounds, "compare": self.compare, "table": self.table,
+            "methods": self.methods,
             "plot": self.plot,
         }
         for job in self.a.jobs:
@@ -264,6 +267,17 @@ class _Runner:
         prov = self.provenance(self.design_summary())
         return [(out, _as_bytes(BOUNDS_RENDERERS[out.fmt](frame, provenance=prov), out.fmt))
                 for out in job.outputs]
+
+    def compare(self, job: Job) -> list[tuple[Output, bytes]]:
+        """Compare groups for one ``[[compare]]`` entry and render it."""
+        from wstats.render import COMPARE_RENDERERS
+        from wstats.reports.compare import compare
+
+        o = dict(job.options)
+        by = o.pop("by")[0]
+        result = compare(self.data, self.design, o.pop("variables"), by=by, **o)
+        self.results[("compare", job.name)] = result
+        return self.registry_render(COMPARE_RENDERERS, result, job)
 
     def design_summary(self) -> dict[str, Any]:
         """Return the bound design's summary."""

@@ -19,7 +19,7 @@ from wstats.reports.table_specs import _Spec
 __all__ = ["JOB_KEYS", "Analysis", "Job", "Output", "load_analysis"]
 
 _TOP = ("data", "codebook", "title", "design", "defaults", "estimates", "nonresponse",
-        "bounds", "table", "methods", "plot")
+        "bounds", "compare", "table", "methods", "plot")
 _OUT = ("output", "format")
 _DOMAIN = ("variables", "by", "where", "level")
 #: table name -> allowed keys of each entry
@@ -28,6 +28,8 @@ JOB_KEYS: dict[str, tuple[str, ...]] = {
                   "proportion_ci", "reliability", *_OUT),
     "nonresponse": ("name", *_DOMAIN, "count_invalid", "sort_worst", "not_asked", *_OUT),
     "bounds": ("name", *_DOMAIN, "reasons", *_OUT),
+    "compare": ("name", *_DOMAIN, "reference", "pairs", "adjust_p", "trend", "reasons",
+                "categorical", "age_adjust", "standard", *_OUT),
     "table": ("spec", "title", "rows", "columns", "where", "cells", "intervals", "notes",
               "reliability", *_OUT),
     "methods": ("estimates", *_OUT),
@@ -166,7 +168,8 @@ class _Parser(_Spec):
         if "title" in self.doc:
             self.text(self.doc["title"], "title")
         jobs: list[Job] = []
-        for kind in ("estimates", "nonresponse", "bounds", "table", "methods", "plot"):
+        for kind in ("estimates", "nonresponse", "bounds", "compare", "table", "methods",
+                     "plot"):
             entries = self.doc.get(kind, [])
             if kind == "methods":
                 entries = [self.subtable(entries, kind)] if kind in self.doc else []
@@ -212,6 +215,8 @@ class _Parser(_Spec):
         opts: dict[str, Any] = {}
         if kind in ("estimates", "nonresponse", "bounds"):
             opts = self.domain_options(kind, key, entry)
+        elif kind == "compare":
+            opts = self.compare_options(key, entry)
         elif kind == "methods":
             if "estimates" in entry:
                 opts["estimates"] = self.text(entry["estimates"], f"{key} estimates")
@@ -273,6 +278,30 @@ class _Parser(_Spec):
                 list(PROPORTION_INTERVALS)),
             "reliability": self.choice(entry.get("reliability", d.get(
                 "reliability", "nchs-2017")), f"{key} reliability", list(STANDARDS)),
+        }
+
+    def compare_options(self, key: str, entry: Mapping[str, Any]) -> dict[str, Any]:
+        """Return the options of a [[compare]] entry (see ``wstats.compare``)."""
+        d = self.defaults
+        if "variables" not in entry or "by" not in entry:
+            raise self.fail(f"{key} {'by' if 'variables' in entry else 'variables'}",
+                            "missing; e.g. variables = [\"bd_bmi\"] and by = \"dm_sex\"")
+        where = entry.get("where", d.get("where"))
+        ref = entry.get("reference")
+        return {
+            "variables": self.names(entry["variables"], f"{key} variables", empty=False),
+            "by": (self.text(entry["by"], f"{key} by"),),
+            "level": self.level(entry.get("level", d.get("level", 0.95)), f"{key} level"),
+            "where": None if where is None else self.text(where, f"{key} where"),
+            "reference": None if ref is None else self.text(str(ref), f"{key} reference"),
+            "pairs": self.choice(entry.get("pairs", "reference"), f"{key} pairs",
+                                 ("reference", "all")),
+            "adjust_p": self.choice(entry.get("adjust_p", "none"), f"{key} adjust_p",
+                                    ("none", "holm", "bh")),
+            "trend": self.flag(entry.get("trend", False), f"{key} trend"),
+            "reasons": self.flag(entry.get("reasons", False), f"{key} reasons"),
+            "categorical": self.names(entry.get("categorical", []), f"{key} categorical"),
+            **self.age(entry, key),
         }
 
     def plot_options(self, key: str, entry: Mapping[str, Any]) -> dict[str, Any]:
@@ -352,7 +381,8 @@ def _formats(kind: str) -> tuple[dict[str, str], list[str]]:
     from wstats import render
 
     registry = {"estimates": render.ESTIMATE_RENDERERS, "table": render.TABLE_RENDERERS,
-                "nonresponse": render.NONRESPONSE_RENDERERS}[kind]
+                "nonresponse": render.NONRESPONSE_RENDERERS,
+                "compare": render.COMPARE_RENDERERS}[kind]
     return ({s: f for s, f in render.SUFFIX_FORMATS.items() if f in registry},
             [f for f in registry])
 
