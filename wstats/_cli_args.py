@@ -128,7 +128,8 @@ def design_from(args: argparse.Namespace, codebook: Any) -> Any:
 
 def add_estimate_args(p: argparse.ArgumentParser) -> None:
     _add_data_options(p)
-    p.add_argument("variables", metavar="VAR", nargs="+", help="variables to estimate")
+    p.add_argument("variables", metavar="VAR", nargs="*",
+                   help="variables to estimate (none needed when --ratio is given)")
     _add_design_options(p)
     g = p.add_argument_group("what to estimate")
     g.add_argument("--by", nargs="+", action="extend", metavar="COL", default=[],

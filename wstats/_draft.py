@@ -28,7 +28,7 @@ import numpy as np
 from wstats._codebook import Codebook
 from wstats._decode import add_derived, declared_codes, decode_column, new_vocabulary, tag_reason
 from wstats._reasons import CORE_REASONS, INVALID
-from wstats.errors import CodebookError, did_you_mean
+from wstats.errors import CodebookError, DesignError, did_you_mean
 
 if TYPE_CHECKING:
     import pandas as pd
@@ -291,6 +291,26 @@ def _absent(raw: RawTable, cb: Codebook) -> tuple[tuple[str, str | None], ...]:
     return tuple(out)
 
 
+def _design_problems(raw: RawTable, cb: Codebook) -> list[str]:
+    """List ``[design]`` columns (weight, strata, PSU, FPC, replicates) the file lacks."""
+    design = dict(cb.design or {})
+    out = []
+    for key in ("weight", "strata", "psu", "fpc"):
+        name = design.get(key)
+        if name and name not in raw.file_columns:
+            out.append(f"[design] {key} = '{name}' is not a column of {raw.path}"
+                       f"{did_you_mean(str(name), raw.file_columns)}")
+    reps = design.get("replicates")
+    if reps:
+        from wstats._replicates import resolve_replicate_columns
+
+        try:
+            resolve_replicate_columns(reps, raw.file_columns, raw.path)
+        except DesignError as exc:
+            out.append(f"[design] replicates: {exc}")
+    return out
+
+
 def check_codebook(raw: RawTable, codebook: Codebook) -> CodebookCheck:
     """Apply a codebook to a file and report what each rule matched.
 
@@ -327,6 +347,7 @@ def check_codebook(raw: RawTable, codebook: Codebook) -> CodebookCheck:
         add_derived(cols, raw, codebook, vocab)
     except CodebookError as exc:
         problems.append(str(exc))
+    problems += _design_problems(raw, codebook)
     absent = _absent(raw, codebook)
     frame = pd.DataFrame(explained, columns=["variable", "raw_code", "reason", "count"])
     frame.insert(3, "value", _substitutes(frame, cols, raw))

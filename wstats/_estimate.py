@@ -26,7 +26,8 @@ from wstats._stats import (
     Total,
     add_intervals,
     category_levels,
-    distinct_values,
+    check_statistic,
+    is_categorical,
     level_index,
 )
 from wstats._sums import Domains, WeightedSums, no_cell
@@ -35,7 +36,7 @@ from wstats.errors import EstimationError, did_you_mean
 if TYPE_CHECKING:
     import numpy.typing as npt
 
-    from wstats._column import Dataset, DecodedColumn
+    from wstats._column import Dataset
     from wstats._design import BoundDesign, Design
     from wstats._reliability import ReliabilityStandard
     from wstats._results import EstimateTable
@@ -169,16 +170,6 @@ def _check_names(data: Dataset, names: Sequence[str]) -> None:
             )
 
 
-def _is_categorical(col: DecodedColumn, forced: set[str]) -> bool:
-    """Return True for categorical/binary/text kinds, names in *forced*, or fully labelled data."""
-    if col.name in forced or col.kind in ("categorical", "binary", "text"):
-        return True
-    if not col.value_labels or col.values.dtype.kind != "f":
-        return False
-    seen = distinct_values(col.values[col.valid])
-    return bool(len(seen)) and all(float(v) in col.value_labels for v in seen)
-
-
 def _run(ctx: Context, variables: Sequence[str], stats: list[str] | None, forced: set[str],
          ratios: Sequence[tuple[str, str]], quantiles: Sequence[float], ci: str) -> list[Piece]:
     """Call the statistics for every variable (loops over variables and statistics only).
@@ -192,8 +183,9 @@ def _run(ctx: Context, variables: Sequence[str], stats: list[str] | None, forced
     slots: list[list[Piece] | tuple[str, str]] = []
     for name in variables:
         col = ctx.columns[name]
-        wanted = stats or (["proportion"] if _is_categorical(col, forced) else ["mean"])
+        wanted = stats or (["proportion"] if is_categorical(col, list(forced)) else ["mean"])
         for stat in wanted:
+            check_statistic(stat, col, list(forced))
             if fast and stat in BATCHED:
                 slots.append((name, stat))
             elif stat in ("mean", "total", "proportion"):

@@ -46,8 +46,8 @@ if TYPE_CHECKING:
     Index = npt.NDArray[np.int64]
 
 __all__ = ["STATISTICS", "Context", "Mean", "Piece", "Proportion", "Quantile", "Ratio", "Total",
-           "add_intervals", "category_levels", "distinct_values", "integer_codes",
-           "level_index"]
+           "add_intervals", "category_levels", "check_statistic", "distinct_values",
+           "integer_codes", "is_categorical", "level_index"]
 
 MAX_LEVELS = 200  # more distinct values than this is not a categorical variable
 
@@ -428,6 +428,34 @@ def integer_codes(v: npt.NDArray[Any]) -> tuple[Index, float] | None:
     shifted = v - lo
     codes = shifted.astype(np.int64)
     return (codes, lo) if bool((codes == shifted).all()) else None
+
+
+def is_categorical(col: DecodedColumn, forced: Sequence[str] = ()) -> bool:
+    """Return True for categorical/binary/text kinds, names in *forced*, or fully labelled data."""
+    if col.name in forced or col.kind in ("categorical", "binary", "text"):
+        return True
+    if not col.value_labels or col.values.dtype.kind != "f":
+        return False
+    seen = distinct_values(col.values[col.valid])
+    return bool(len(seen)) and all(float(v) in col.value_labels for v in seen)
+
+
+def check_statistic(statistic: str, col: DecodedColumn, forced: Sequence[str] = ()) -> None:
+    """Refuse a statistic that does not suit the variable's kind (one owner of this rule).
+
+    A proportion of a continuous variable would be one proportion per distinct value (82 ages
+    give 82 rows), never what was meant; a mean of a category code means nothing either.
+    """
+    categorical = is_categorical(col, forced)
+    if statistic == "proportion" and not categorical:
+        raise EstimationError(
+            f"a proportion of '{col.name}' needs a categorical variable, but it is {col.kind}; "
+            f"estimate its mean or quantiles, or treat it as categorical (--categorical "
+            f"{col.name}, or kind = \"categorical\" in the codebook)")
+    if statistic in ("mean", "total", "quantile") and col.values.dtype.kind != "f":
+        raise EstimationError(
+            f"a {statistic} of '{col.name}' needs numbers, but it holds text; estimate its "
+            "proportions instead")
 
 
 #: statistic name -> class (Ratio is called with two variables).

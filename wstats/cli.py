@@ -164,6 +164,9 @@ def _run_estimate(args: argparse.Namespace) -> int:
     design = design_from(args, codebook)
     ratios = [ratio_pair(r) for r in args.ratio]
     variables = list(args.variables)
+    if not variables and not ratios:
+        raise UsageError("wstats estimate: name at least one VAR or give --ratio NUM/DEN "
+                         "(see 'wstats estimate --help')")
     needed = needed_columns([*variables, *[x for r in ratios for x in r], *args.by],
                             design, args.where, args.data)
     data = _read(args, codebook, needed)

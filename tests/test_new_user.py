@@ -1,0 +1,103 @@
+"""What a new user tripped over (issue 19, point 5): each fixed, each pinned by a test here.
+
+The survey is invented for these tests (240 rows, 4 strata x 3 PSUs); the checks are about
+what the command line says and refuses, not about numbers (those are tested elsewhere).
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+import pytest
+
+from wstats.cli import main
+
+CODEBOOK = """\
+[design]
+weight = "W"
+strata = "ST"
+psu = "CL"
+
+[variables.Q]
+kind = "categorical"
+codes = { 7 = "dont_know", 9 = "refused" }
+labels = { 1 = "Yes", 2 = "No" }
+
+[variables.AGE]
+kind = "continuous"
+"""
+
+
+@pytest.fixture()
+def survey(tmp_path: Path) -> Path:
+    """A small coded survey with a yes/no item, an age, two amounts and a text column."""
+    rng = np.random.default_rng(19)
+    n = 240
+    frame = pd.DataFrame({
+        "ST": np.repeat(np.arange(4.0), 60), "CL": np.tile(np.repeat(np.arange(3.0), 20), 4),
+        "W": rng.uniform(1, 5, n), "Q": rng.choice([1.0, 2.0, 7.0, 9.0], n, p=[.5, .4, .06, .04]),
+        "G": rng.choice([1.0, 2.0], n), "H": rng.choice([1.0, 2.0, 3.0], n),
+        "AGE": rng.integers(18, 90, n).astype(float), "X": rng.uniform(0, 10, n),
+        "Y": rng.uniform(5, 10, n), "TXT": rng.choice(["north", "south", "east"], n),
+    })
+    path = tmp_path / "s.csv"
+    frame.to_csv(path, index=False)
+    (tmp_path / "cb.toml").write_text(CODEBOOK, encoding="utf-8")
+    return path
+
+
+def _run(capsys: pytest.CaptureFixture[str], *argv: object) -> tuple[int, str, str]:
+    code = main([str(a) for a in argv])
+    out, err = capsys.readouterr()
+    return code, out, " ".join(err.split())
+
+
+def test_proportion_of_a_continuous_variable_is_refused(
+    survey: Path, capsys: pytest.CaptureFixture[str]
+) -> None:
+    code, out, err = _run(capsys, "estimate", survey, "AGE", "--stats", "proportion",
+                          "--codebook", survey.parent / "cb.toml")
+    assert code != 0 and out == ""
+    assert "proportion of 'AGE'" in err and "--categorical AGE" in err
+
+
+def test_proportion_of_a_forced_categorical_still_works(
+    survey: Path, capsys: pytest.CaptureFixture[str]
+) -> None:
+    code, out, _ = _run(capsys, "estimate", survey, "H", "--stats", "proportion",
+                        "--categorical", "H", "--codebook", survey.parent / "cb.toml",
+                        "--format", "csv")
+    assert code == 0 and out.count("\nH,proportion,") == 3
+
+
+def test_ratio_alone_needs_no_variable(survey: Path, capsys: pytest.CaptureFixture[str]) -> None:
+    code, out, _ = _run(capsys, "estimate", survey, "--ratio", "X/Y", "--codebook",
+                        survey.parent / "cb.toml", "--format", "csv")
+    assert code == 0 and "\nX/Y,ratio," in out
+    code, _, err = _run(capsys, "estimate", survey, "--codebook", survey.parent / "cb.toml")
+    assert code != 0 and "--ratio" in err
+
+
+def test_singleton_error_names_the_cli_option(
+    survey: Path, capsys: pytest.CaptureFixture[str]
+) -> None:
+    frame = pd.read_csv(survey)
+    frame.loc[frame["ST"] == 0, "CL"] = 0.0  # stratum 0 keeps one PSU
+    frame.to_csv(survey, index=False)
+    code, _, err = _run(capsys, "estimate", survey, "X", "--codebook", survey.parent / "cb.toml")
+    assert code != 0 and "--singleton certainty" in err
+
+
+def test_codebook_check_catches_a_design_column_that_does_not_exist(
+    survey: Path, capsys: pytest.CaptureFixture[str]
+) -> None:
+    bad = survey.parent / "bad.toml"
+    bad.write_text(CODEBOOK.replace('weight = "W"', 'weight = "WT"'), encoding="utf-8")
+    code, out, _ = _run(capsys, "codebook", "check", survey, bad)
+    out = " ".join(out.split())
+    assert code == 1
+    assert "weight = 'WT' is not a column of" in out and "did you mean 'W'" in out
+    code, out, _ = _run(capsys, "codebook", "check", survey, survey.parent / "cb.toml")
+    assert code == 0 and "OK" in out
