@@ -101,3 +101,32 @@ def test_codebook_check_catches_a_design_column_that_does_not_exist(
     assert "weight = 'WT' is not a column of" in out and "did you mean 'W'" in out
     code, out, _ = _run(capsys, "codebook", "check", survey, survey.parent / "cb.toml")
     assert code == 0 and "OK" in out
+
+
+def _without(monkeypatch: pytest.MonkeyPatch, module: str) -> None:
+    """Make *module* look uninstalled to importlib (an optional package that is absent)."""
+    import importlib.util
+
+    real = importlib.util.find_spec
+    monkeypatch.setattr(importlib.util, "find_spec",
+                        lambda name, *a: None if name == module else real(name, *a))
+
+
+def test_plot_without_matplotlib_is_refused_before_any_output(
+    survey: Path, capsys: pytest.CaptureFixture[str], monkeypatch: pytest.MonkeyPatch
+) -> None:
+    _without(monkeypatch, "matplotlib")
+    code, out, err = _run(capsys, "estimate", survey, "X", "--codebook",
+                          survey.parent / "cb.toml", "--plot", survey.parent / "x.svg")
+    assert code == 2 and out == ""  # nothing computed or printed first
+    assert "--plot" in err and "pip install 'wstats[plot]'" in err
+
+
+def test_xlsx_without_openpyxl_says_what_to_install(
+    survey: Path, capsys: pytest.CaptureFixture[str], monkeypatch: pytest.MonkeyPatch
+) -> None:
+    _without(monkeypatch, "openpyxl")
+    code, out, err = _run(capsys, "estimate", survey, "X", "--codebook",
+                          survey.parent / "cb.toml", "-o", survey.parent / "x.xlsx")
+    assert code == 2 and out == "" and not (survey.parent / "x.xlsx").exists()
+    assert "pip install 'wstats[xlsx]'" in err

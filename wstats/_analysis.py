@@ -106,17 +106,15 @@ def _inputs(analysis: Analysis) -> list[Path]:
 
 
 def _check_plot_support(analysis: Analysis) -> None:
-    """Refuse a required chart when matplotlib is not installed (before any work is done)."""
-    import importlib.util
+    """Refuse a required chart or an xlsx output whose package is absent (before any work)."""
+    from wstats.errors import require_package
 
-    if importlib.util.find_spec("matplotlib") is not None:
-        return
     for job in analysis.jobs:
         if job.kind == "plot" and job.options["required"]:
-            raise AnalysisError(
-                f"{analysis.source}: {job.key}: charts need matplotlib, which is not installed;"
-                " install the plot extra: pip install 'wstats[plot]' (or set required = false"
-                " to skip the chart)")
+            require_package("charts", f"{analysis.source}: {job.key}", AnalysisError)
+    for out in analysis.outputs():
+        if out.fmt == "xlsx":
+            require_package("xlsx files", f"{analysis.source}: {out.key}", AnalysisError)
 
 
 def _codebook(analysis: Analysis) -> Codebook | None:

@@ -34,7 +34,7 @@ from wstats._cli_args import (
     ratio_pair,
     split_list,
 )
-from wstats.errors import UsageError, WstatsError, WstatsWarning
+from wstats.errors import UsageError, WstatsError, WstatsWarning, require_package
 
 __all__ = ["COMMANDS", "main"]
 
@@ -114,6 +114,10 @@ def _check_outputs(args: argparse.Namespace, inputs: Sequence[str | None]) -> No
     """
     from wstats._io import check_output, prefetch_sha256
 
+    if getattr(args, "plot", None):
+        require_package("charts", "--plot")
+    if format_for(args) == "xlsx":
+        require_package("xlsx files")
     if getattr(args, "output", None) or format_for(args) != "table":
         for name in inputs:
             if name:
@@ -235,6 +239,9 @@ def _run_table(args: argparse.Namespace) -> int:
     spec = load_table_spec(args.spec)
     if args.format == "xlsx" and not args.output:
         raise UsageError("xlsx output needs -o FILE.xlsx")
+    if format_for(args) == "xlsx" or (not args.output and not args.format and any(
+            fmt == "xlsx" for _, fmt in spec.outputs)):
+        require_package("xlsx files", str(args.spec))
     table = build_table(spec, progress=sys.stderr.isatty())
     if not args.output and not args.format and table.outputs:
         from wstats.render import write_table
