@@ -130,3 +130,15 @@ def test_xlsx_without_openpyxl_says_what_to_install(
                           survey.parent / "cb.toml", "-o", survey.parent / "x.xlsx")
     assert code == 2 and out == "" and not (survey.parent / "x.xlsx").exists()
     assert "pip install 'wstats[xlsx]'" in err
+
+
+def test_each_warning_once_per_command(survey: Path, capsys: pytest.CaptureFixture[str]) -> None:
+    frame = pd.read_csv(survey)
+    frame.loc[::40, "W"] = 400.0  # a few huge weights: a weighting-effect warning
+    frame.to_csv(survey, index=False)
+    spec = survey.parent / "t.toml"
+    spec.write_text('data = "s.csv"\ncodebook = "cb.toml"\ntitle = "T"\n'
+                    'rows = ["Q", "X", "AGE"]\ncolumns = { by = ["G"], total = "All" }\n',
+                    encoding="utf-8")
+    code, _, err = _run(capsys, "table", spec)
+    assert code == 0 and err.count("Kish weighting design effect") == 1
