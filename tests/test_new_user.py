@@ -142,3 +142,22 @@ def test_each_warning_once_per_command(survey: Path, capsys: pytest.CaptureFixtu
                     encoding="utf-8")
     code, _, err = _run(capsys, "table", spec)
     assert code == 0 and err.count("Kish weighting design effect") == 1
+
+
+def test_bounds_suppress_what_estimate_suppresses(
+    survey: Path, capsys: pytest.CaptureFixture[str]
+) -> None:
+    import json
+
+    args = [survey, "Q", "--by", "G", "H", "--codebook", survey.parent / "cb.toml",
+            "--format", "json"]
+    _, out, _ = _run(capsys, "estimate", *args)
+    hidden = [r["suppress"] for r in json.loads(out)["results"]]
+    _, out, _ = _run(capsys, "bounds", *args)
+    rows = json.loads(out)["results"]
+    assert any(hidden) and not all(hidden)  # the fixture has both kinds of cell
+    assert [r["suppress"] for r in rows] == hidden
+    assert all(r["estimate"] is None and r["lower"] is None for r in rows if r["suppress"])
+    _, out, _ = _run(capsys, "bounds", *args[:-2])
+    assert out.count("[suppressed]") == sum(hidden) + 1  # the cells and their note
+    assert "Design: weight W" in out

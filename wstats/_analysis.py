@@ -254,18 +254,16 @@ class _Runner:
     def bounds(self, job: Job) -> list[tuple[Output, bytes]]:
         """Compute and render one ``[[bounds]]`` entry (JSON, CSV or markdown)."""
         from wstats._nonresponse import bounds
+        from wstats._reliability import STANDARDS
         from wstats.render import BOUNDS_RENDERERS
 
         o = job.options
         frame = bounds(self.data, self.design, o["variables"], by=o["by"], where=o.get("where"),
-                       level=o["level"], reasons=o["reasons"])
-        prov = self.provenance(self.design_summary())
+                       level=o["level"], reasons=o["reasons"],
+                       reliability=STANDARDS[o["reliability"]])
+        prov = self.provenance(frame.attrs["design"])
         return [(out, _as_bytes(BOUNDS_RENDERERS[out.fmt](frame, provenance=prov), out.fmt))
                 for out in job.outputs]
-
-    def design_summary(self) -> dict[str, Any]:
-        """Return the bound design's summary."""
-        return self.design.bind(self.data).summary()
 
     def table(self, job: Job) -> list[tuple[Output, bytes]]:
         """Build and render one ``[[table]]`` entry (publication table)."""

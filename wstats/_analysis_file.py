@@ -27,7 +27,7 @@ JOB_KEYS: dict[str, tuple[str, ...]] = {
     "estimates": ("name", *_DOMAIN, "statistics", "categorical", "ratios", "quantiles",
                   "proportion_ci", "reliability", *_OUT),
     "nonresponse": ("name", *_DOMAIN, "count_invalid", "sort_worst", "not_asked", *_OUT),
-    "bounds": ("name", *_DOMAIN, "reasons", *_OUT),
+    "bounds": ("name", *_DOMAIN, "reasons", "reliability", *_OUT),
     "table": ("spec", "title", "rows", "columns", "where", "cells", "intervals", "notes",
               "reliability", *_OUT),
     "methods": ("estimates", *_OUT),
@@ -243,12 +243,12 @@ class _Parser(_Spec):
         else:
             opts["reasons"] = self.names(entry.get("reasons", ["dont_know", "refused"]),
                                          f"{key} reasons", empty=False)
+            opts["reliability"] = self.reliability(key, entry)
         return opts
 
     def estimate_options(self, key: str, entry: Mapping[str, Any]) -> dict[str, Any]:
         """Return the statistics, interval and reliability options of an estimates entry."""
         from wstats._intervals import PROPORTION_INTERVALS
-        from wstats._reliability import STANDARDS
 
         d = self.defaults
         stats = self.names(entry.get("statistics", []), f"{key} statistics")
@@ -271,9 +271,15 @@ class _Parser(_Spec):
             "proportion_ci": self.choice(entry.get("proportion_ci", d.get(
                 "proportion_ci", "korn-graubard")), f"{key} proportion_ci",
                 list(PROPORTION_INTERVALS)),
-            "reliability": self.choice(entry.get("reliability", d.get(
-                "reliability", "nchs-2017")), f"{key} reliability", list(STANDARDS)),
+            "reliability": self.reliability(key, entry),
         }
+
+    def reliability(self, key: str, entry: Mapping[str, Any]) -> str:
+        """Return the entry's reliability standard (or the default's), checked."""
+        from wstats._reliability import STANDARDS
+
+        return self.choice(entry.get("reliability", self.defaults.get(
+            "reliability", "nchs-2017")), f"{key} reliability", list(STANDARDS))
 
     def plot_options(self, key: str, entry: Mapping[str, Any]) -> dict[str, Any]:
         """Return kind, source entry and whether matplotlib is required."""

@@ -212,6 +212,8 @@ def add_bounds_args(p: argparse.ArgumentParser) -> None:
     p.add_argument("--unknown", default="dont_know,refused", metavar="REASONS",
                    help="reasons whose answers are unknown (default dont_know,refused)")
     p.add_argument("--level", type=float, default=0.95, help="confidence level (default 0.95)")
+    p.add_argument("--standard", default="nchs-2017", metavar="NAME",
+                   help="reliability standard: nchs-2017 (default), rse-30, none")
     _add_output_options(p, ("table", "csv", "json", "markdown"))
 
 

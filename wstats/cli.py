@@ -227,8 +227,8 @@ def _run_bounds(args: argparse.Namespace) -> int:
     data = _read(args, codebook, needed_columns([*args.variables, *args.by], design,
                                                 args.where, args.data))
     frame = bounds(data, design, args.variables, by=args.by, where=args.where,
-                   level=args.level, reasons=tuple(split_list([args.unknown])))
-    frame.attrs.setdefault("design", design.bind(data).summary())
+                   level=args.level, reasons=tuple(split_list([args.unknown])),
+                   reliability=_standard(args.standard))
     _emit(frame, "bounds", args, [args.data], args.codebook)
     return 0
 
