@@ -161,3 +161,50 @@ def test_bounds_suppress_what_estimate_suppresses(
     _, out, _ = _run(capsys, "bounds", *args[:-2])
     assert out.count("[suppressed]") == sum(hidden) + 1  # the cells and their note
     assert "Design: weight W" in out
+
+
+def test_where_subpopulation_is_named_on_screen_in_notes_and_methods(
+    survey: Path, capsys: pytest.CaptureFixture[str]
+) -> None:
+    cb = survey.parent / "cb.toml"
+    _, out, _ = _run(capsys, "estimate", survey, "X", "--codebook", cb, "--where", "AGE >= 65")
+    assert "subpopulation AGE >= 65 (full design kept)" in " ".join(out.split())
+    _, out, _ = _run(capsys, "nonresponse", survey, "Q", "--codebook", cb, "--where", "AGE >= 65")
+    assert "subpopulation AGE >= 65" in " ".join(out.split())
+    spec = survey.parent / "t.toml"
+    spec.write_text('data = "s.csv"\ncodebook = "cb.toml"\ntitle = "T"\nwhere = "AGE >= 65"\n'
+                    'rows = ["Q", "X"]\ncolumns = { by = ["G"], total = "All" }\n',
+                    encoding="utf-8")
+    _, out, _ = _run(capsys, "table", spec)
+    flat = " ".join(out.split())
+    assert "subpopulation AGE >= 65 (full design kept)" in flat
+    assert "Estimates are for the subpopulation AGE >= 65, keeping the full design" in flat
+
+
+def test_domain_df_rule_shows_its_range(survey: Path, capsys: pytest.CaptureFixture[str]) -> None:
+    import json
+
+    cb = survey.parent / "cb.toml"
+    _, out, _ = _run(capsys, "estimate", survey, "X", "--codebook", cb, "--by", "G",
+                     "--where", "ST <= 1", "--domain-df", "domain", "--format", "json")
+    df = sorted({r["df"] for r in json.loads(out)["results"]})
+    _, out, _ = _run(capsys, "estimate", survey, "X", "--codebook", cb, "--by", "G",
+                     "--where", "ST <= 1", "--domain-df", "domain")
+    shown = f"df per domain {df[0]:g}" + (f"–{df[-1]:g}" if df[-1] != df[0] else "")
+    assert shown in out and "df 8;" not in out
+    _, out, _ = _run(capsys, "estimate", survey, "X", "--codebook", cb, "--by", "G")
+    assert "df 8;" in out
+
+
+def test_every_output_of_run_carries_provenance(
+    survey: Path, capsys: pytest.CaptureFixture[str]
+) -> None:
+    analysis = survey.parent / "a.toml"
+    analysis.write_text(
+        'data = "s.csv"\ncodebook = "cb.toml"\n[[estimates]]\nname = "e"\nvariables = ["X"]\n'
+        'output = "e.txt"\n[methods]\nestimates = "e"\n'
+        'output = ["m.txt", "m.md", "m.tex"]\n', encoding="utf-8")
+    assert _run(capsys, "run", analysis)[0] == 0
+    for name in ("e.txt", "m.txt", "m.md", "m.tex"):
+        text = (survey.parent / name).read_text(encoding="utf-8")
+        assert "wstats provenance" in text and "s.csv" in text and "sha256" in text, name

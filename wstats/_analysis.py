@@ -219,7 +219,7 @@ class _Runner:
                         job: Job) -> list[tuple[Output, bytes]]:
         """Render *obj* with *registry* for every output of *job*."""
         prov = self.provenance(getattr(obj, "design", None) or {})
-        return [(o, _as_bytes(registry[o.fmt](obj, provenance=prov), o.fmt))
+        return [(o, _as_bytes(registry[o.fmt](obj, provenance=prov), prov))
                 for o in job.outputs]
 
     def estimates(self, job: Job) -> list[tuple[Output, bytes]]:
@@ -262,7 +262,7 @@ class _Runner:
                        level=o["level"], reasons=o["reasons"],
                        reliability=STANDARDS[o["reliability"]])
         prov = self.provenance(frame.attrs["design"])
-        return [(out, _as_bytes(BOUNDS_RENDERERS[out.fmt](frame, provenance=prov), out.fmt))
+        return [(out, _as_bytes(BOUNDS_RENDERERS[out.fmt](frame, provenance=prov), prov))
                 for out in job.outputs]
 
     def table(self, job: Job) -> list[tuple[Output, bytes]]:
@@ -277,13 +277,14 @@ class _Runner:
         built = build_table(spec, **kwargs)
         self.results[("table", job.name)] = built
         return [(o, _as_bytes(TABLE_RENDERERS[o.fmt](built, provenance=built.provenance),
-                              o.fmt)) for o in job.outputs]
+                              built.provenance)) for o in job.outputs]
 
     def methods(self, job: Job) -> list[tuple[Output, bytes]]:
         """Write the methods paragraph of the estimates an entry names."""
         from wstats._methods import methods_paragraph
         from wstats._nonresponse import nonresponse
         from wstats._reliability import STANDARDS
+        from wstats.render import with_provenance
 
         source = self.a_job("estimates", job.options.get("estimates"))
         table = self.results[("estimates", source.name)]
@@ -300,9 +301,9 @@ class _Runner:
         for o_ in job.outputs:
             text = methods_paragraph(
                 table.design, table.settings, counts, rng, self.a.data.name,
-                STANDARDS[o["reliability"]], o_.fmt,
-                reason_descriptions=dict(self.codebook.reasons) if self.codebook else None)
-            out.append((o_, (text + "\n").encode("utf-8")))
+                STANDARDS[o["reliability"]], o_.fmt)
+            prov = self.provenance(table.design)
+            out.append((o_, with_provenance(text + "\n", o_.fmt, prov).encode("utf-8")))
             self.results.setdefault(("methods", job.name), text)
         return out
 
@@ -326,15 +327,15 @@ class _Runner:
         return next(j for j in self.a.jobs if j.kind == kind and name in (None, j.name))
 
 
-def _as_bytes(data: Any, fmt: str) -> bytes:
-    """Return rendered output as bytes (terminal renderables drawn as plain text)."""
+def _as_bytes(data: Any, provenance: Mapping[str, Any]) -> bytes:
+    """Return rendered output as bytes (terminal renderables as plain text, provenance below)."""
     if isinstance(data, bytes):
         return data
     if isinstance(data, str):
         return data.encode("utf-8")
-    from wstats.render import _plain_text
+    from wstats.render import plain_text
 
-    return _plain_text(data).encode("utf-8")
+    return plain_text(data, provenance).encode("utf-8")
 
 
 def _json(data: Mapping[str, Any]) -> str:

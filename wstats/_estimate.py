@@ -122,8 +122,17 @@ def estimate(
     settings = {"proportion_ci": proportion_ci, "mean_ci": "wald-t", "quantile_ci": "woodruff",
                 "df_rule": "replicates" if bound.uses_replicates else design.domain_df,
                 "level": level, "reliability": standard.name,
-                "deff_srs": "with-replacement"}
+                "deff_srs": "with-replacement", **_scope(rows, by, where)}
     return EstimateTable(rows, tuple(by), level, bound.summary(), settings)
+
+
+def _scope(rows: dict[str, npt.NDArray[Any]], by: Sequence[str], where: str | None
+           ) -> dict[str, Any]:
+    """Return what the table covers: subpopulation, domains, statistics, range of df."""
+    df = rows["df"][np.isfinite(rows["df"])]
+    return {"where": where, "domains": list(by),
+            "statistics": list(dict.fromkeys(str(s) for s in rows["statistic"])),
+            "df_range": [float(df.min()), float(df.max())] if len(df) else None}
 
 
 def _warn(data: Dataset, bound: BoundDesign, variables: Sequence[str], domains: Domains,

@@ -437,7 +437,8 @@ def _settings(counted: tuple[str, ...], skip: tuple[str, ...], count_invalid: bo
             "not_asked": list(skip), "denominator": f"asked (not {', '.join(skip)})",
             "weight": design.weight,
             "proportion_ci": "korn-graubard", "level": est.level, "df_rule":
-            est.settings.get("df_rule"), "definition": definition,
+            est.settings.get("df_rule"), "df_range": est.settings.get("df_range"),
+            "where": est.settings.get("where"), "definition": definition,
             "title": "Item nonresponse", "threshold": NCES_MIN_RESPONSE}
 
 

@@ -296,7 +296,6 @@ def _methods(spec: TableSpec, est: EstimateTable, codebook: Codebook | None) -> 
     return methods_paragraph(
         est.design, est.settings, totals, (min(rates), max(rates)) if rates else None,
         spec.data.name, spec.reliability, recodes=_recodes(spec, codebook),
-        reason_descriptions=dict(codebook.reasons) if codebook else None,
     )
 
 

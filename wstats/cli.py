@@ -97,7 +97,9 @@ def _emit(obj: Any, kind: str, args: argparse.Namespace, inputs: Sequence[str],
                       dict(design), _command_line())
     text = registry[key](obj, provenance=prov)
     if key == "terminal":
-        text = _rich_to_text(text)
+        from wstats.render import plain_text
+
+        text = plain_text(text, prov, width=120)
     if args.output:
         _not_an_input(args.output, [*inputs, codebook_path])
         atomic_write(Path(args.output), text, overwrite=args.overwrite)
@@ -147,16 +149,6 @@ def _print_rich(renderable: Any) -> None:
     from rich.console import Console
 
     Console(soft_wrap=False).print(renderable)
-
-
-def _rich_to_text(renderable: Any) -> str:
-    import io
-
-    from rich.console import Console
-
-    console = Console(record=True, width=120, file=io.StringIO())
-    console.print(renderable)
-    return console.export_text()
 
 
 def _run_estimate(args: argparse.Namespace) -> int:

@@ -270,7 +270,7 @@ def publication_grid(table: PublicationLike) -> Grid:
 
 
 def design_line(design: Mapping[str, Any], settings: Mapping[str, Any], level: float) -> str:
-    """Return a one-line summary of the design and interval method."""
+    """Return a one-line summary of the design, df rule, subpopulation and interval method."""
     parts = []
     if design.get("weight"):
         parts.append(f"weight {design['weight']}")
@@ -279,12 +279,24 @@ def design_line(design: Mapping[str, Any], settings: Mapping[str, Any], level: f
         parts.append(f"{n} stratum" if n == 1 else f"{n} strata")
     if design.get("n_psu") is not None:
         parts.append(f"{design['n_psu']} PSUs")
-    if design.get("df") is not None:
-        parts.append(f"df {group_text(design['df'])}")
+    df = _df_text(design, settings)
+    if df:
+        parts.append(df)
     method = settings.get("proportion_ci")
     level_text = fmt_number(level * 100, 1).rstrip("0").rstrip(".")
     ci = f"{level_text}% intervals" + (f" ({method} for proportions)" if method else "")
-    return "Design: " + ", ".join(parts) + "; " + ci if parts else ci
+    where = settings.get("where")
+    sub = f"; subpopulation {where} (full design kept)" if where else ""
+    return ("Design: " + ", ".join(parts) + "; " + ci if parts else ci) + sub
+
+
+def _df_text(design: Mapping[str, Any], settings: Mapping[str, Any]) -> str:
+    """Return ``df 162``, or under the domain rule ``df per domain 3–8``."""
+    span = settings.get("df_range")
+    if settings.get("df_rule") == "domain" and span:
+        lo, hi = (group_text(float(x)) for x in span)
+        return f"df per domain {lo}" if lo == hi else f"df per domain {interval(lo, hi)}"
+    return f"df {group_text(design['df'])}" if design.get("df") is not None else ""
 
 
 def provenance_lines(provenance: Mapping[str, Any] | None) -> list[str]:
