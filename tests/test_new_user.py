@@ -208,3 +208,28 @@ def test_every_output_of_run_carries_provenance(
     for name in ("e.txt", "m.txt", "m.md", "m.tex"):
         text = (survey.parent / name).read_text(encoding="utf-8")
         assert "wstats provenance" in text and "s.csv" in text and "sha256" in text, name
+
+
+def test_categorical_text_column_in_a_csv_works(
+    survey: Path, capsys: pytest.CaptureFixture[str]
+) -> None:
+    import json
+
+    cb = survey.parent / "txt.toml"
+    cb.write_text('[design]\nweight = "W"\n[variables.TXT]\nkind = "categorical"\n'
+                  'codes = { "east" = "refused" }\n', encoding="utf-8")
+    code, out, err = _run(capsys, "estimate", survey, "TXT", "--codebook", cb, "--format", "json")
+    assert code == 0, err
+    rows = json.loads(out)["results"]
+    frame = pd.read_csv(survey)
+    answered = frame[frame["TXT"] != "east"]
+    share = answered.loc[answered["TXT"] == "north", "W"].sum() / answered["W"].sum()
+    # the weighted share by hand (common practice, no source)
+    assert {r["level"] for r in rows} == {"north", "south"}
+    north = next(r for r in rows if r["level"] == "north")
+    assert north["estimate"] == pytest.approx(share, rel=1e-12)
+    assert north["reasons"] == {"refused": int((frame["TXT"] == "east").sum())}
+    cb.write_text('[design]\nweight = "W"\n[variables.TXT]\nkind = "continuous"\n',
+                  encoding="utf-8")
+    code, _, err = _run(capsys, "estimate", survey, "TXT", "--codebook", cb)
+    assert code != 0 and 'kind = "categorical"' in err
