@@ -233,3 +233,33 @@ def test_categorical_text_column_in_a_csv_works(
                   encoding="utf-8")
     code, _, err = _run(capsys, "estimate", survey, "TXT", "--codebook", cb)
     assert code != 0 and 'kind = "categorical"' in err
+
+
+def test_table_labels_totals_and_separators(
+    survey: Path, capsys: pytest.CaptureFixture[str]
+) -> None:
+    frame = pd.read_csv(survey)
+    frame["BIG"] = frame["X"] * 900.0  # totals in the hundreds of thousands, means below 10,000
+    frame.to_csv(survey, index=False)
+    spec = survey.parent / "t.toml"
+    spec.write_text(
+        'data = "s.csv"\ncodebook = "cb.toml"\ntitle = "T"\nrows = [\n'
+        '  { variable = "AGE", statistic = "quantile", label = "Age, median" },\n'
+        '  { variable = "BIG", statistic = "total", label = "Amount, weighted total",'
+        ' decimals = 0 },\n'
+        '  { variable = "BIG", statistic = "mean", label = "Amount" },\n'
+        '  { variable = "Q", label = "Says yes, %" },\n]\n'
+        'columns = { by = ["G"], total = "All" }\n'
+        'cells = { mean = "{est} ({se})", total = "{est} ({se})" }\n', encoding="utf-8")
+    code, out, err = _run(capsys, "table", spec, "--format", "markdown")
+    assert code == 0, err
+    rows = {ln.split("|")[1].strip(): ln.split("|")[2:-1] for ln in out.splitlines()
+            if ln.startswith("| ")}
+    assert "Age, median" in rows and "Age, median, median" not in out
+    assert "Amount, weighted total" in rows and "total, total" not in out
+    assert "Says yes, %" in out and "%, %" not in out and "Amount, mean" in rows
+    for cell in rows["Amount, weighted total"]:  # decimals = 0: no decimals in the SE either
+        est, se = cell.strip().rstrip(")").split(" (")
+        assert "." not in est and "." not in se and "," in est
+    means = [c.strip().split(" (")[0] for c in rows["Amount, mean"]]
+    assert all(float(m.replace(",", "")) >= 1000 and "," in m for m in means)

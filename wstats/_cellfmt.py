@@ -96,11 +96,12 @@ def cell_text(
     """Fill *template* with the formatted numbers of one estimate row."""
     est, se = float(row["estimate"]) * scale, float(row["se"]) * scale
     lo, hi = float(row["ci_low"]) * scale, float(row["ci_high"]) * scale
+    # one separator style for every cell: a column mixing 9876.5 and 12,345.6 reads badly
     values = {
-        "est": fmt_number(est, decimals, grouping=abs(est) >= 1e4),
-        "se": fmt_number(se, se_decimals, grouping=abs(se) >= 1e4),
-        "lo": fmt_number(lo, decimals, grouping=abs(lo) >= 1e4),
-        "hi": fmt_number(hi, decimals, grouping=abs(hi) >= 1e4),
+        "est": fmt_number(est, decimals, grouping=True),
+        "se": fmt_number(se, se_decimals, grouping=True),
+        "lo": fmt_number(lo, decimals, grouping=True),
+        "hi": fmt_number(hi, decimals, grouping=True),
         "pct": fmt_number(float(row["estimate"]) * 100, decimals) + "%",
         "n": fmt_count(row["n"]),
         "cv": fmt_number(float(row["cv"]) * 100, 1) + "%",

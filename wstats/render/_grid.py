@@ -206,11 +206,11 @@ def _number_cells(
     est = float(row["estimate"]) * k
     if math.isnan(est):
         return [with_marks("n/a", marks), "", ""]
-    big = abs(est) >= 1e4
-    text = fmt_number(est, dec, grouping=big) + ("%" if pct else "")
-    lo = fmt_number(float(row["ci_low"]) * k, dec, grouping=big)
-    hi = fmt_number(float(row["ci_high"]) * k, dec, grouping=big)
-    return [with_marks(text, marks), fmt_number(float(row["se"]) * k, se_dec, grouping=big),
+    # thousands separators on every number, so that one column has one style
+    text = fmt_number(est, dec, grouping=True) + ("%" if pct else "")
+    lo = fmt_number(float(row["ci_low"]) * k, dec, grouping=True)
+    hi = fmt_number(float(row["ci_high"]) * k, dec, grouping=True)
+    return [with_marks(text, marks), fmt_number(float(row["se"]) * k, se_dec, grouping=True),
             interval(lo, hi)]
 
 
