@@ -57,7 +57,7 @@ def _run(capsys: pytest.CaptureFixture[str], *argv: object) -> tuple[int, str, s
 def test_proportion_of_a_continuous_variable_is_refused(
     survey: Path, capsys: pytest.CaptureFixture[str]
 ) -> None:
-    code, out, err = _run(capsys, "estimate", survey, "AGE", "--stats", "proportion",
+    code, out, err = _run(capsys, "estimate", survey, "AGE", "--statistics", "proportion",
                           "--codebook", survey.parent / "cb.toml")
     assert code != 0 and out == ""
     assert "proportion of 'AGE'" in err and "--categorical AGE" in err
@@ -66,7 +66,7 @@ def test_proportion_of_a_continuous_variable_is_refused(
 def test_proportion_of_a_forced_categorical_still_works(
     survey: Path, capsys: pytest.CaptureFixture[str]
 ) -> None:
-    code, out, _ = _run(capsys, "estimate", survey, "H", "--stats", "proportion",
+    code, out, _ = _run(capsys, "estimate", survey, "H", "--statistics", "proportion",
                         "--categorical", "H", "--codebook", survey.parent / "cb.toml",
                         "--format", "csv")
     assert code == 0 and out.count("\nH,proportion,") == 3
@@ -263,3 +263,47 @@ def test_table_labels_totals_and_separators(
         assert "." not in est and "." not in se and "," in est
     means = [c.strip().split(" (")[0] for c in rows["Amount, mean"]]
     assert all(float(m.replace(",", "")) >= 1000 and "," in m for m in means)
+
+
+def test_python_and_cli_share_one_vocabulary(
+    survey: Path, capsys: pytest.CaptureFixture[str]
+) -> None:
+    import json
+    import warnings
+
+    import wstats
+
+    cb = survey.parent / "cb.toml"
+    design = wstats.Design.from_codebook(cb)
+    assert (design.weight, design.strata, design.psu) == ("W", "ST", "CL")
+    assert wstats.Design.from_codebook(cb, psu=None, singleton="collapse").psu == "CL"
+    data = wstats.read(survey, ["X", "AGE", "W", "ST", "CL"], codebook=cb)
+    lib = wstats.estimate(data, design, ["X", "AGE"],
+                          statistics={"AGE": ["mean", "quantile"]}).frame
+    assert list(zip(lib["variable"], lib["statistic"], strict=True)) == [
+        ("X", "mean"), ("AGE", "mean"), ("AGE", "quantile")]
+    _, out, _ = _run(capsys, "estimate", survey, "X", "--statistics", "total", "--codebook", cb,
+                     "--format", "json")
+    new = json.loads(out)["results"]
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        _, old_out, err = _run(capsys, "estimate", survey, "X", "--stats", "total",
+                               "--codebook", cb, "--format", "json")
+    assert [r["statistic"] for r in new] == ["total"]
+    assert json.loads(old_out)["results"] == new
+    assert "--stats is the old name of --statistics" in err
+
+
+def test_statistics_per_variable_in_an_analysis_file(
+    survey: Path, capsys: pytest.CaptureFixture[str]
+) -> None:
+    import json
+
+    analysis = survey.parent / "a.toml"
+    analysis.write_text(
+        'data = "s.csv"\ncodebook = "cb.toml"\n[[estimates]]\nvariables = ["Q", "AGE"]\n'
+        'statistics = { AGE = ["mean", "quantile"] }\noutput = "e.json"\n', encoding="utf-8")
+    assert _run(capsys, "run", analysis)[0] == 0
+    rows = json.loads((survey.parent / "e.json").read_text(encoding="utf-8"))["results"]
+    assert sorted({(r["variable"], r["statistic"]) for r in rows}) == [
+        ("AGE", "mean"), ("AGE", "quantile"), ("Q", "proportion")]

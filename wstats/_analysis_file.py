@@ -251,10 +251,7 @@ class _Parser(_Spec):
         from wstats._intervals import PROPORTION_INTERVALS
 
         d = self.defaults
-        stats = self.names(entry.get("statistics", []), f"{key} statistics")
-        for s in stats:
-            self.choice(s, f"{key} statistics", ("mean", "total", "proportion", "ratio",
-                                                 "quantile"))
+        stats = self.statistics(key, entry.get("statistics", []))
         ratios = entry.get("ratios", [])
         if not isinstance(ratios, list) or not all(
                 isinstance(r, list) and len(r) == 2 for r in ratios):
@@ -273,6 +270,21 @@ class _Parser(_Spec):
                 list(PROPORTION_INTERVALS)),
             "reliability": self.reliability(key, entry),
         }
+
+    def statistics(self, key: str, value: Any) -> tuple[str, ...] | dict[str, tuple[str, ...]]:
+        """Return the statistics: one list for every variable, or a table of lists per variable."""
+        allowed = ("mean", "total", "proportion", "ratio", "quantile")
+        if isinstance(value, dict):
+            per = {self.text(v, f"{key} statistics"): self.names(s, f"{key} statistics.{v}")
+                   for v, s in value.items()}
+            for v, names in per.items():
+                for s in names:
+                    self.choice(s, f"{key} statistics.{v}", allowed)
+            return per
+        names = self.names(value, f"{key} statistics")
+        for s in names:
+            self.choice(s, f"{key} statistics", allowed)
+        return names
 
     def reliability(self, key: str, entry: Mapping[str, Any]) -> str:
         """Return the entry's reliability standard (or the default's), checked."""

@@ -138,13 +138,14 @@ def add_estimate_args(p: argparse.ArgumentParser) -> None:
                    help="row condition defining a subpopulation, e.g. 'AGE_YRS >= 65'")
     g.add_argument("--categorical", nargs="+", action="extend", metavar="COL", default=[],
                    help="treat these variables as categorical (a proportion per level)")
-    g.add_argument("--stats", metavar="LIST",
+    g.add_argument("--statistics", metavar="LIST",
                    help="comma list of mean,total,proportion,ratio,quantile (default: mean for "
                         "numbers, proportion for categories)")
+    g.add_argument("--stats", dest="statistics", action=_OldName, help=argparse.SUPPRESS)
     g.add_argument("--ratio", nargs="+", action="extend", metavar="NUM/DEN", default=[],
                    help="ratio of two variables, e.g. --ratio VISITS/PERSONS")
     g.add_argument("--quantiles", metavar="P,P", default="0.5",
-                   help="probabilities for --stats quantile (default 0.5)")
+                   help="probabilities for --statistics quantile (default 0.5)")
     g.add_argument("--level", type=float, default=0.95, help="confidence level (default 0.95)")
     g.add_argument("--proportion-ci", default="korn-graubard",
                    choices=("korn-graubard", "logit", "wilson", "wald"),
@@ -153,6 +154,21 @@ def add_estimate_args(p: argparse.ArgumentParser) -> None:
                    help="reliability standard: nchs-2017 (default), rse-30, none")
     g.add_argument("--plot", metavar="FILE", help="also draw estimates across domains (.png/.svg)")
     _add_output_options(p, OUTPUT_FORMATS)
+
+
+class _OldName(argparse.Action):
+    """An option kept under its old name: works, and says once what it is called now."""
+
+    def __call__(self, parser: argparse.ArgumentParser, namespace: argparse.Namespace,
+                 values: Any, option_string: str | None = None) -> None:
+        import warnings
+
+        from wstats.errors import WstatsWarning
+
+        new = "--" + self.dest.replace("_", "-")
+        warnings.warn(f"{option_string} is the old name of {new}; it still works for now, "
+                      f"but write {new}", WstatsWarning, stacklevel=2)
+        setattr(namespace, self.dest, values)
 
 
 def ratio_pair(text: str) -> tuple[str, str]:

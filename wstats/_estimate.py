@@ -10,7 +10,7 @@ the full design (all strata and PSUs) is kept for its variance.
 from __future__ import annotations
 
 import itertools
-from collections.abc import Callable, Sequence
+from collections.abc import Callable, Mapping, Sequence
 from typing import TYPE_CHECKING, Any
 
 import numpy as np
@@ -55,7 +55,7 @@ def estimate(
     design: Design,
     variables: Sequence[str],
     *,
-    statistics: str | Sequence[str] | None = None,
+    statistics: str | Sequence[str] | Mapping[str, str | Sequence[str]] | None = None,
     by: Sequence[str] = (),
     where: str | None = None,
     categorical: Sequence[str] = (),
@@ -73,7 +73,10 @@ def estimate(
     design : the sample design; bound and checked against *data*.
     variables : variables to analyse.
     statistics : None (mean for continuous/count, proportion for categorical/binary), one
-        name or a list of ``mean``, ``total``, ``proportion``, ``ratio``, ``quantile``.
+        name or a list of ``mean``, ``total``, ``proportion``, ``ratio``, ``quantile``, or a
+        mapping variable -> name(s) for statistics per variable (variables it does not name
+        get the default). The CLI's ``--statistics`` takes the same names. A statistic that
+        does not suit a variable's kind (a proportion of a continuous one) is refused.
     by : variables whose crossed levels form the domains (plus the whole population).
     where : condition in the codebook expression language; rows where it is valid and true
         form the population domain.
@@ -104,7 +107,8 @@ def estimate(
     from wstats._results import EstimateTable, object_column
 
     stats = _check_options(statistics, level, proportion_ci, quantiles)
-    _check_names(data, [*variables, *by, *categorical, *(v for r in ratios for v in r)])
+    _check_names(data, [*variables, *by, *categorical, *(v for r in ratios for v in r),
+                        *(stats if isinstance(stats, dict) else ())])
     bound = design.bind(data)
     domains, by_levels = _domains(data, bound, list(by), where)
     columns = {name: bound.column(col) for name, col in data.columns.items()}
@@ -150,9 +154,12 @@ def _warn(data: Dataset, bound: BoundDesign, variables: Sequence[str], domains: 
     warn_all(estimation_warnings(data, facts, variables, groups))
 
 
-def _check_options(statistics: str | Sequence[str] | None, level: float, proportion_ci: str,
-                   quantiles: Sequence[float]) -> list[str] | None:
-    """Check the options that need no data; return the statistics as a list (or None)."""
+Statistics = dict[str, list[str]] | list[str] | None
+
+
+def _check_options(statistics: str | Sequence[str] | Mapping[str, str | Sequence[str]] | None,
+                   level: float, proportion_ci: str, quantiles: Sequence[float]) -> Statistics:
+    """Check the options that need no data; return the statistics as a list, dict or None."""
     if not (isinstance(level, int | float) and 0.0 < float(level) < 1.0):
         raise EstimationError(f"confidence level {level!r} is outside (0, 1); use e.g. 0.95")
     Proportion(proportion_ci)  # checks the name
@@ -160,6 +167,13 @@ def _check_options(statistics: str | Sequence[str] | None, level: float, proport
         Quantile(p)
     if statistics is None:
         return None
+    if isinstance(statistics, Mapping):
+        return {str(v): _stat_names(s) for v, s in statistics.items()}
+    return _stat_names(statistics)
+
+
+def _stat_names(statistics: str | Sequence[str]) -> list[str]:
+    """Return one variable's statistics as a list of checked names."""
     names = [statistics] if isinstance(statistics, str) else list(statistics)
     for name in names:
         if name not in _NAMES:
@@ -179,7 +193,7 @@ def _check_names(data: Dataset, names: Sequence[str]) -> None:
             )
 
 
-def _run(ctx: Context, variables: Sequence[str], stats: list[str] | None, forced: set[str],
+def _run(ctx: Context, variables: Sequence[str], stats: Statistics, forced: set[str],
          ratios: Sequence[tuple[str, str]], quantiles: Sequence[float], ci: str) -> list[Piece]:
     """Call the statistics for every variable (loops over variables and statistics only).
 
@@ -192,7 +206,8 @@ def _run(ctx: Context, variables: Sequence[str], stats: list[str] | None, forced
     slots: list[list[Piece] | tuple[str, str]] = []
     for name in variables:
         col = ctx.columns[name]
-        wanted = stats or (["proportion"] if is_categorical(col, list(forced)) else ["mean"])
+        given = stats.get(name) if isinstance(stats, dict) else stats
+        wanted = given or (["proportion"] if is_categorical(col, list(forced)) else ["mean"])
         for stat in wanted:
             check_statistic(stat, col, list(forced))
             if fast and stat in BATCHED:
@@ -201,7 +216,8 @@ def _run(ctx: Context, variables: Sequence[str], stats: list[str] | None, forced
                 slots.append([_one(ctx, name, stat, ci)])
             elif stat == "quantile":
                 slots.append([Quantile(p)(ctx, name) for p in quantiles])
-    if stats and "ratio" in stats and not ratios:
+    every = [x for v in stats.values() for x in v] if isinstance(stats, dict) else stats or []
+    if "ratio" in every and not ratios:
         raise EstimationError("statistic 'ratio' needs ratios=[(numerator, denominator)]")
     batched = iter(batch_pieces(ctx, [s for s in slots if isinstance(s, tuple)], ci))
     pieces: list[Piece] = []

@@ -167,7 +167,7 @@ def _run_estimate(args: argparse.Namespace) -> int:
                             design, args.where, args.data)
     data = _read(args, codebook, needed)
     table = estimate(
-        data, design, variables, statistics=split_list([args.stats]) or None, by=args.by,
+        data, design, variables, statistics=split_list([args.statistics]) or None, by=args.by,
         where=args.where, categorical=args.categorical, ratios=ratios,
         quantiles=[float(q) for q in split_list([args.quantiles])], level=args.level,
         proportion_ci=args.proportion_ci, reliability=_standard(args.standard),
