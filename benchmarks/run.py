@@ -147,7 +147,7 @@ def reason_bytes(files: dict[str, Path], raw_a: list[str]) -> int:
     A decoded number column keeps one reason code (1 byte) for each value that is missing.
     """
     sys.path.insert(0, str(ROOT))
-    from wstats._load import read
+    from wstats.decoding.load import read
 
     data = read(files["xpt"], columns=raw_a, codebook=files["codebook"])
     return sum(int(col.missing_codes.nbytes) for col in data.columns.values())
@@ -156,8 +156,8 @@ def reason_bytes(files: dict[str, Path], raw_a: list[str]) -> int:
 def columns_of(xpt: Path, codebook: Path) -> tuple[list[str], list[str]]:
     """Return (the raw columns A reads, the item variables of D)."""
     sys.path.insert(0, str(ROOT))
-    from wstats._codebook import load_codebook
-    from wstats._readers import file_columns
+    from wstats.decoding.codebook import load_codebook
+    from wstats.readers.dispatch import file_columns
 
     raw_a = [*load_codebook(codebook).raw_columns_for(TEN), WEIGHT, STRATA, PSU]
     items = [c for c in file_columns(xpt) if c not in NOT_ITEMS]

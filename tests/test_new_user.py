@@ -12,7 +12,7 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from wstats.cli import main
+from wstats.cli.main import main
 
 CODEBOOK = """\
 [design]

@@ -1,4 +1,4 @@
-"""Sensitivity bounds (a pandas frame from ``wstats._nonresponse.bounds``) in every format.
+"""Sensitivity bounds (a pandas frame from ``wstats.reports.bounds.bounds``) in every format.
 
 The terminal and markdown share one Grid (design line, a block per variable, flag marks and
 notes) with the estimate and nonresponse tables. A valid-case estimate that the reliability
@@ -12,10 +12,17 @@ import io
 from collections.abc import Mapping
 from typing import TYPE_CHECKING, Any
 
-from wstats._cellfmt import SUPPRESSED, FlagNotes, fmt_count, fmt_number, group_text, interval
-from wstats._cellfmt import with_marks as _with_marks
 from wstats.render._csv import SUPPRESSED_FIELDS, value_text
 from wstats.render._grid import Column, Grid, design_line, provenance_lines
+from wstats.reports.cells import (
+    SUPPRESSED,
+    FlagNotes,
+    fmt_count,
+    fmt_number,
+    group_text,
+    interval,
+)
+from wstats.reports.cells import with_marks as _with_marks
 
 if TYPE_CHECKING:
     import pandas as pd
@@ -124,8 +131,8 @@ def bounds_csv(frame: pd.DataFrame, provenance: Mapping[str, Any] | None = None)
 
 def bounds_json(frame: pd.DataFrame, provenance: Mapping[str, Any] | None = None) -> str:
     """Return ``{"provenance", "settings", "results"}`` JSON."""
-    from wstats._nonresponse import bounds_records
     from wstats.render._json import _dump
+    from wstats.reports.bounds import bounds_records
 
     settings = {k: v for k, v in frame.attrs.items() if k != "design"}
     return _dump({"provenance": dict(provenance or {}), "settings": settings,
