@@ -307,3 +307,25 @@ def test_statistics_per_variable_in_an_analysis_file(
     rows = json.loads((survey.parent / "e.json").read_text(encoding="utf-8"))["results"]
     assert sorted({(r["variable"], r["statistic"]) for r in rows}) == [
         ("AGE", "mean"), ("AGE", "quantile"), ("Q", "proportion")]
+
+
+def test_margins_add_the_one_way_rows_to_a_crossed_by(
+    survey: Path, capsys: pytest.CaptureFixture[str]
+) -> None:
+    import json
+
+    cb = survey.parent / "cb.toml"
+    common = [survey, "X", "--codebook", cb, "--format", "json", "--standard", "none"]
+    _, out, _ = _run(capsys, "estimate", *common, "--by", "G", "H", "--margins")
+    rows = json.loads(out)["results"]
+    _, out, _ = _run(capsys, "estimate", *common, "--by", "G", "H")
+    crossed = json.loads(out)["results"]
+    for b in ("G", "H"):
+        _, out, _ = _run(capsys, "estimate", *common, "--by", b)
+        alone = [r for r in json.loads(out)["results"] if r["group"]]
+        other = "H" if b == "G" else "G"
+        got = [r for r in rows if r["group"] and r["group"][other] is None]
+        assert [(r["group"][b], r["estimate"], r["se"]) for r in got] == [
+            (r["group"][b], r["estimate"], r["se"]) for r in alone]
+    assert [r for r in rows if r["group"] and None not in r["group"].values()] == crossed[1:]
+    assert rows[0] == crossed[0] and len(rows) == len(crossed) + 2 + 3

@@ -134,6 +134,8 @@ def add_estimate_args(p: argparse.ArgumentParser) -> None:
     g = p.add_argument_group("what to estimate")
     g.add_argument("--by", nargs="+", action="extend", metavar="COL", default=[],
                    help="domains: levels of these variables, crossed")
+    g.add_argument("--margins", action="store_true",
+                   help="with crossed --by A B: also each by-variable alone (one-way margins)")
     g.add_argument("--where", metavar="EXPR",
                    help="row condition defining a subpopulation, e.g. 'AGE_YRS >= 65'")
     g.add_argument("--categorical", nargs="+", action="extend", metavar="COL", default=[],

@@ -61,6 +61,7 @@ def _run_estimate(args: argparse.Namespace) -> int:
         where=args.where, categorical=args.categorical, ratios=ratios,
         quantiles=[float(q) for q in split_list([args.quantiles])], level=args.level,
         proportion_ci=args.proportion_ci, reliability=_standard(args.standard),
+        margins=args.margins,
     )
     _emit(table, "estimate", args, [args.data], args.codebook)
     if args.plot:

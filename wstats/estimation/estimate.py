@@ -65,6 +65,7 @@ def estimate(
     level: float = 0.95,
     proportion_ci: str = "korn-graubard",
     reliability: ReliabilityStandard | None = None,
+    margins: bool = False,
 ) -> EstimateTable:
     """Estimate design-based statistics of survey variables, overall and by domain.
 
@@ -88,6 +89,8 @@ def estimate(
     proportion_ci : interval for proportions, a key of ``PROPORTION_INTERVALS``.
     reliability : reliability standard for flags and suppression (None: the default,
         ``nchs-2017``; pass ``STANDARDS["none"]`` to switch the rules off).
+    margins : with two or more *by* variables, also the one-way margins (each by-variable
+        alone, the others shown as "All"); see :mod:`wstats.estimation.margins`.
 
     Returns
     -------
@@ -128,7 +131,15 @@ def estimate(
                 "df_rule": "replicates" if bound.uses_replicates else design.domain_df,
                 "level": level, "reliability": standard.name,
                 "deff_srs": "with-replacement", **_scope(rows, by, where)}
-    return EstimateTable(rows, tuple(by), level, bound.summary(), settings)
+    table = EstimateTable(rows, tuple(by), level, bound.summary(), settings)
+    if not margins or len(by) < 2:
+        return table
+    from wstats.estimation.margins import with_margins
+
+    return with_margins(table, [estimate(
+        data, design, variables, statistics=statistics, by=[b], where=where,
+        categorical=categorical, ratios=ratios, quantiles=quantiles, level=level,
+        proportion_ci=proportion_ci, reliability=reliability) for b in by])
 
 
 def _scope(rows: dict[str, npt.NDArray[Any]], by: Sequence[str], where: str | None
