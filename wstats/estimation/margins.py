@@ -8,7 +8,7 @@ order: the whole population, the margins of each by-variable in ``by`` order, th
 from __future__ import annotations
 
 import math
-from collections.abc import Sequence
+from collections.abc import Mapping, Sequence
 from typing import TYPE_CHECKING, Any
 
 import numpy as np
@@ -17,6 +17,8 @@ if TYPE_CHECKING:
     import numpy.typing as npt
 
     from wstats.estimation.results import EstimateTable
+
+    Columns = Mapping[str, npt.NDArray[Any]]
 
 __all__ = ["with_margins"]
 
@@ -38,14 +40,14 @@ def with_margins(crossed: EstimateTable, one_way: Sequence[EstimateTable]) -> Es
     from wstats.estimation.results import EstimateTable
 
     by = list(crossed.by)
-    parts = [(crossed.columns, None)]
-    parts += [(t.columns, np.asarray([v is not None for v in t.columns[b]], dtype=bool))
-              for b, t in zip(by, one_way, strict=True)]
+    keeps = [np.asarray([v is not None for v in t.columns[b]], dtype=bool)
+             for b, t in zip(by, one_way, strict=True)]
+    parts: list[tuple[Columns, npt.NDArray[np.bool_] | None]] = [(crossed.columns, None)]
+    parts += [(t.columns, k) for t, k in zip(one_way, keeps, strict=True)]
     columns = {name: _stack([_take(cols, name, keep) for cols, keep in parts])
                for name in crossed.columns}
     kind = np.concatenate([_kinds(crossed.columns, by)]
-                          + [np.full(int(k.sum()), j + 1) for j, (_, k) in
-                             enumerate(parts[1:]) if k is not None])
+                          + [np.full(int(k.sum()), j + 1) for j, k in enumerate(keeps)])
     block = _blocks(columns)
     order = np.lexsort((np.arange(len(kind)), kind, block))
     out = {name: col[order] for name, col in columns.items()}
@@ -53,7 +55,7 @@ def with_margins(crossed: EstimateTable, one_way: Sequence[EstimateTable]) -> Es
                          {**crossed.settings, "margins": True})
 
 
-def _take(cols: dict[str, npt.NDArray[Any]], name: str, keep: npt.NDArray[np.bool_] | None
+def _take(cols: Columns, name: str, keep: npt.NDArray[np.bool_] | None
           ) -> npt.NDArray[Any]:
     """Return column *name* (all None when a one-way table lacks it), rows *keep* only."""
     n = len(next(iter(cols.values())))
@@ -71,13 +73,13 @@ def _stack(arrays: list[npt.NDArray[Any]]) -> npt.NDArray[Any]:
     return np.concatenate(arrays)
 
 
-def _kinds(cols: dict[str, npt.NDArray[Any]], by: list[str]) -> npt.NDArray[np.int64]:
+def _kinds(cols: Columns, by: list[str]) -> npt.NDArray[np.int64]:
     """Return 0 for the population rows of the crossed table, len(by) + 1 for its cells."""
     population = np.asarray([v is None for v in cols[by[0]]], dtype=bool)
     return np.where(population, 0, len(by) + 1).astype(np.int64)
 
 
-def _blocks(cols: dict[str, npt.NDArray[Any]]) -> npt.NDArray[np.int64]:
+def _blocks(cols: Columns) -> npt.NDArray[np.int64]:
     """Return each row's variable x statistic (x p) block, numbered by first appearance."""
     keys: dict[tuple[str, str, str], int] = {}
     out = []
