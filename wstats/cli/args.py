@@ -210,6 +210,8 @@ def add_nonresponse_args(p: argparse.ArgumentParser) -> None:
     p.add_argument("--where", metavar="EXPR", help="row condition defining a subpopulation")
     p.add_argument("--worst-first", action="store_true",
                    help="sort by item nonresponse rate, highest first")
+    p.add_argument("--shares", action="store_true",
+                   help="show weighted shares of the rows per reason instead of row counts")
     p.add_argument("--exclude-invalid", action="store_true",
                    help="do not count 'invalid' answers as nonresponse")
     p.add_argument("--not-asked", default="skipped", metavar="REASONS",

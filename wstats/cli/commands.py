@@ -92,7 +92,8 @@ def _run_nonresponse(args: argparse.Namespace) -> int:
     table = nonresponse(data, design, args.variables, by=args.by, where=args.where,
                         level=args.level, count_invalid=not args.exclude_invalid,
                         sort_worst=args.worst_first, not_asked=tuple(split_list([args.not_asked])))
-    _emit(table, "nonresponse", args, [args.data], args.codebook)
+    _emit(table.showing_shares() if args.shares else table, "nonresponse", args, [args.data],
+          args.codebook)
     if args.plot:
         from wstats.reports.plots import plot_reasons
 

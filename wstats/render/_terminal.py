@@ -33,7 +33,7 @@ __all__ = [
 
 _SHORT = 16  # label columns up to this width are kept on one line
 _WRAP_AT = 14  # a wrappable text column is given at least this width
-_PAD = 3  # what rich adds per column: one space of padding each side and the rule space
+_PAD = 2  # what rich adds per column: the separator and one space of padding on the left
 
 
 def estimate_terminal(table: EstimateTable, provenance: Any = None) -> RenderableType:
@@ -149,7 +149,7 @@ def _table(
     from rich.text import Text
 
     table = Table(title=title, title_justify="left", title_style="bold", box=box.SIMPLE_HEAD,
-                  show_edge=False, pad_edge=False, expand=False)
+                  show_edge=False, pad_edge=False, expand=False, padding=(0, 1, 0, 0))
     headers = _headers(g)
     for i in cols:
         numeric = g.columns[i].align == "r"

@@ -89,6 +89,12 @@ class NonresponseTable:
     design: Mapping[str, Any] = field(default_factory=dict)
     settings: Mapping[str, Any] = field(default_factory=dict)
 
+    def showing_shares(self) -> NonresponseTable:
+        """Return the same table set to display weighted shares instead of row counts."""
+        import dataclasses
+
+        return dataclasses.replace(self, settings={**self.settings, "display": "shares"})
+
     def to_pandas(self) -> pd.DataFrame:
         """Return a copy of the frame."""
         return self.frame.copy()
