@@ -66,6 +66,11 @@ class GridView:
         if g.caption:
             yield Text(g.caption)
         for title, rows, kinds in _blocks(g, self.per_section):
+            if not self.per_section:  # a publication table: groups side by side, or panels
+                from wstats.render._panels import panels
+
+                yield from panels(g, rows, kinds, options.max_width)
+                continue
             for cols in _column_blocks(g, rows, options.max_width):
                 yield _table(g, cols, rows, kinds, title)
         for note in g.notes:
