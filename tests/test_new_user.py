@@ -203,9 +203,10 @@ def test_every_output_of_run_carries_provenance(
     analysis.write_text(
         'data = "s.csv"\ncodebook = "cb.toml"\n[[estimates]]\nname = "e"\nvariables = ["X"]\n'
         'output = "e.txt"\n[methods]\nestimates = "e"\n'
-        'output = ["m.txt", "m.md", "m.tex"]\n', encoding="utf-8")
+        'output = ["m.txt", "m.md", "m.tex"]\n'
+        '[[plot]]\nkind = "domains"\nfrom = "e"\noutput = "d.svg"\n', encoding="utf-8")
     assert _run(capsys, "run", analysis)[0] == 0
-    for name in ("e.txt", "m.txt", "m.md", "m.tex"):
+    for name in ("e.txt", "m.txt", "m.md", "m.tex", "d.svg"):
         text = (survey.parent / name).read_text(encoding="utf-8")
         assert "wstats provenance" in text and "s.csv" in text and "sha256" in text, name
 

@@ -319,7 +319,8 @@ class _Runner:
         source = self.a_job(wanted, job.options.get("from"))
         table = self.results[(wanted, source.name)]
         draw = _plots.render_domains if kind == "domains" else _plots.render_reasons
-        return [(o, draw(table, o.fmt)) for o in job.outputs]
+        prov = self.provenance(table.design)
+        return [(o, draw(table, o.fmt, prov)) for o in job.outputs]
 
     def a_job(self, kind: str, name: str | None) -> Job:
         """Return the job of *kind* called *name*, or the first of its kind (checked at load)."""

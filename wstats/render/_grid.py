@@ -7,7 +7,6 @@ Each format module then only decides how rows, spans and notes are drawn.
 
 from __future__ import annotations
 
-import json
 import math
 from collections.abc import Iterator, Mapping, Sequence
 from dataclasses import dataclass, field
@@ -333,19 +332,9 @@ def _df_text(design: Mapping[str, Any], settings: Mapping[str, Any]) -> str:
 
 def provenance_lines(provenance: Mapping[str, Any] | None) -> list[str]:
     """Return ``key: value`` lines (sorted, dotted keys, JSON values) for comment headers."""
-    from wstats.reports.provenance import normalize
+    from wstats.reports.provenance import provenance_lines as lines
 
-    lines: list[str] = []
-
-    def walk(prefix: str, value: Any) -> None:
-        if isinstance(value, dict) and value:
-            for k, v in value.items():
-                walk(f"{prefix}.{k}" if prefix else k, v)
-        else:
-            lines.append(f"{prefix}: {json.dumps(value, ensure_ascii=False)}")
-
-    walk("", normalize(dict(provenance or {})))
-    return lines
+    return lines(provenance)
 
 
 def default_provenance(table: Any) -> dict[str, Any]:

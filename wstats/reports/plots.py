@@ -58,7 +58,8 @@ def plot_format(path: str | Path) -> str:
     return PLOT_FORMATS[suffix]
 
 
-def render_domains(table: EstimateTable, fmt: str = "svg") -> bytes:
+def render_domains(table: EstimateTable, fmt: str = "svg",
+                   provenance: Mapping[str, Any] | None = None) -> bytes:
     """Draw estimates with their confidence intervals across domains; return the image bytes.
 
     Parameters
@@ -67,6 +68,8 @@ def render_domains(table: EstimateTable, fmt: str = "svg") -> bytes:
         Result of :func:`wstats.estimate`; one panel per variable x statistic x level.
     fmt : {"png", "svg"}
         Image format.
+    provenance : the provenance record, kept in the image's metadata (SVG description,
+        PNG text chunk) as ``key: value`` lines.
 
     Returns
     -------
@@ -87,10 +90,11 @@ def render_domains(table: EstimateTable, fmt: str = "svg") -> bytes:
     for i, (title, rows) in enumerate(series):
         _domain_panel(fig.add_subplot(grid[i, 0]), title, rows, table.by)
     fig.supxlabel(f"estimate with {table.level:.0%} confidence interval", fontsize=9)
-    return _encode(fig, fmt)
+    return _encode(fig, fmt, provenance)
 
 
-def render_reasons(table: NonresponseTable, fmt: str = "svg") -> bytes:
+def render_reasons(table: NonresponseTable, fmt: str = "svg",
+                   provenance: Mapping[str, Any] | None = None) -> bytes:
     """Draw one stacked bar per variable (x domain) of the weighted share of each reason.
 
     Parameters
@@ -99,6 +103,8 @@ def render_reasons(table: NonresponseTable, fmt: str = "svg") -> bytes:
         Result of :func:`wstats.nonresponse`.
     fmt : {"png", "svg"}
         Image format.
+    provenance : the provenance record, kept in the image's metadata (SVG description,
+        PNG text chunk) as ``key: value`` lines.
 
     Returns
     -------
@@ -123,7 +129,7 @@ def render_reasons(table: NonresponseTable, fmt: str = "svg") -> bytes:
     ax.set_xlim(0.0, 1.0)
     ax.set_xlabel("weighted share of rows", fontsize=9)
     fig.legend(loc="outside lower center", ncol=min(len(shown), 6), fontsize=8, frameon=False)
-    return _encode(fig, fmt)
+    return _encode(fig, fmt, provenance)
 
 
 def plot_domains(table: EstimateTable, path: str | Path, *, overwrite: bool = False) -> Path:
@@ -186,13 +192,17 @@ def _figure(width: float, height: float) -> Figure:
     return fig
 
 
-def _encode(fig: Figure, fmt: str) -> bytes:
+def _encode(fig: Figure, fmt: str, provenance: Mapping[str, Any] | None = None) -> bytes:
     """Return the figure encoded as *fmt*, with fixed salt and no date so bytes reproduce."""
     import matplotlib
+
+    from wstats.reports.provenance import provenance_text
 
     if fmt not in PLOT_FORMATS.values():
         raise UsageError(f"unknown chart format '{fmt}'; use one of: png, svg")
     metadata: dict[str, Any] = {"Date": None} if fmt == "svg" else {}
+    if provenance:
+        metadata["Description"] = provenance_text(provenance)
     buf = io.BytesIO()
     with matplotlib.rc_context({"svg.hashsalt": "wstats", "svg.fonttype": "path"}):
         fig.savefig(buf, format=fmt, metadata=metadata)
