@@ -69,7 +69,7 @@ def render_domains(table: EstimateTable, fmt: str = "svg",
     fmt : {"png", "svg"}
         Image format.
     provenance : the provenance record, kept in the image's metadata (SVG description,
-        PNG text chunk) as ``key: value`` lines.
+        PNG text chunk) as ``key: value`` lines, without its time stamp.
 
     Returns
     -------
@@ -104,7 +104,7 @@ def render_reasons(table: NonresponseTable, fmt: str = "svg",
     fmt : {"png", "svg"}
         Image format.
     provenance : the provenance record, kept in the image's metadata (SVG description,
-        PNG text chunk) as ``key: value`` lines.
+        PNG text chunk) as ``key: value`` lines, without its time stamp.
 
     Returns
     -------
@@ -201,8 +201,9 @@ def _encode(fig: Figure, fmt: str, provenance: Mapping[str, Any] | None = None) 
     if fmt not in PLOT_FORMATS.values():
         raise UsageError(f"unknown chart format '{fmt}'; use one of: png, svg")
     metadata: dict[str, Any] = {"Date": None} if fmt == "svg" else {}
-    if provenance:
-        metadata["Description"] = provenance_text(provenance)
+    if provenance:  # without its time: an image's bytes (PNG chunk checksums) must reproduce
+        kept = {k: v for k, v in provenance.items() if k != "created_utc"}
+        metadata["Description"] = provenance_text(kept)
     buf = io.BytesIO()
     with matplotlib.rc_context({"svg.hashsalt": "wstats", "svg.fonttype": "path"}):
         fig.savefig(buf, format=fmt, metadata=metadata)
