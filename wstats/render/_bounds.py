@@ -65,6 +65,7 @@ def bounds_grid(frame: pd.DataFrame) -> Grid:
             Column("estimate", "Estimate"), Column("ci", ci), Column("lower", "Lower"),
             Column("upper", "Upper"), Column("unknown", "Unknown"), Column("n", "n")]
     notes, current = FlagNotes(), None
+    last: tuple[str, ...] | None = None
     rows: list[tuple[str, ...]] = []
     kinds: list[str] = []
     for rec in frame.to_dict(orient="records"):
@@ -73,8 +74,13 @@ def bounds_grid(frame: pd.DataFrame) -> Grid:
             current = r["variable"]
             rows.append((f"{current} (percent)",))
             kinds.append("section")
-        rows.append(tuple([*(group_text(r[b]) for b in by), str(r["level"]), *_cells(r, notes)]))
+        domain: tuple[str, ...] = (str(current), *(group_text(r[b]) for b in by))
+        cells = _cells(r, notes)
+        if domain == last:  # a domain's unknown share and n are shown once, on its first level
+            cells[-2:] = ["", ""]
+        rows.append(tuple([*domain[1:], str(r["level"]), *cells]))
         kinds.append("data")
+        last = domain
     return Grid(title="Proportions and their nonresponse bounds", columns=tuple(cols),
                 rows=tuple(rows), kinds=tuple(kinds), notes=(*notes.notes(), _DEFINITION),
                 caption=design_line(attrs.get("design") or {}, attrs.get("settings") or {},
