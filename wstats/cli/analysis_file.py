@@ -224,7 +224,7 @@ class _Parser(_Spec):
         d = self.defaults
         if "variables" not in entry:
             raise self.fail(f"{key} variables", "missing; list the variables, e.g. "
-                            "variables = [\"AGE_YRS\"]")
+                            "variables = [\"dm_age\"]")
         opts: dict[str, Any] = {
             "variables": self.names(entry["variables"], f"{key} variables", empty=False),
             "by": self.names(entry.get("by", d.get("by", [])), f"{key} by"),

@@ -137,7 +137,7 @@ def add_estimate_args(p: argparse.ArgumentParser) -> None:
     g.add_argument("--margins", action="store_true",
                    help="with crossed --by A B: also each by-variable alone (one-way margins)")
     g.add_argument("--where", metavar="EXPR",
-                   help="row condition defining a subpopulation, e.g. 'AGE_YRS >= 65'")
+                   help="row condition defining a subpopulation, e.g. 'dm_age >= 65'")
     g.add_argument("--categorical", nargs="+", action="extend", metavar="COL", default=[],
                    help="treat these variables as categorical (a proportion per level)")
     g.add_argument("--statistics", metavar="LIST",

@@ -210,16 +210,16 @@ def _run_demo(args: argparse.Namespace) -> int:
 COMMANDS: dict[str, Command] = {
     "estimate": Command(
         "weighted means, totals, proportions, ratios, quantiles with design-based SEs",
-        "wstats estimate survey.xpt SLEEPHRS GENHLTH --weight FINALWT --strata STRAT_ID "
-        "--psu CLUSTRID --by AGE_GRP --codebook codebook.toml",
+        "wstats estimate survey.xpt sl_hours hs_rate --weight wt_final --strata ds_strat "
+        "--psu ds_psu --by dm_age5 --codebook codebook.toml",
         add_estimate_args, _run_estimate),
     "nonresponse": Command(
         "counts and weighted shares of every missing reason; item nonresponse rates",
-        "wstats nonresponse survey.xpt SLEEPHRS FRUITFRQ --codebook codebook.toml --worst-first",
+        "wstats nonresponse survey.xpt sl_hours fd_fruit --codebook codebook.toml --worst-first",
         add_nonresponse_args, _run_nonresponse),
     "bounds": Command(
         "how far proportions could move if don't-know/refused answers were known",
-        "wstats bounds survey.xpt GENHLTH INSURED --codebook codebook.toml --by AGE_GRP",
+        "wstats bounds survey.xpt hs_rate ac_cover --codebook codebook.toml --by dm_age5",
         add_bounds_args, _run_bounds),
     "table": Command(
         "a publication table (with methods paragraph) from a table spec",

@@ -84,7 +84,7 @@ class Design:
 
     Examples
     --------
-    >>> Design("FINALWT", strata="STRAT_ID", psu="CLUSTER_ID").singleton
+    >>> Design("wt_final", strata="ds_strat", psu="ds_psu").singleton
     'fail'
     """
 
