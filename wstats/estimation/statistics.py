@@ -354,18 +354,14 @@ def check_statistic(statistic: str, col: DecodedColumn, forced: Sequence[str] = 
     """Refuse a statistic that does not suit the variable's kind (one owner of this rule).
 
     A proportion of a continuous variable would be one proportion per distinct value (82 ages
-    give 82 rows), never what was meant; a mean of a category code means nothing either.
+    give 82 rows), never what was meant. (A mean of a text column is refused where the
+    numbers are read, in ``Context.numeric``.)
     """
-    categorical = is_categorical(col, forced)
-    if statistic == "proportion" and not categorical:
+    if statistic == "proportion" and not is_categorical(col, forced):
         raise EstimationError(
             f"a proportion of '{col.name}' needs a categorical variable, but it is {col.kind}; "
             f"estimate its mean or quantiles, or treat it as categorical (--categorical "
             f"{col.name}, or kind = \"categorical\" in the codebook)")
-    if statistic in ("mean", "total", "quantile") and col.values.dtype.kind != "f":
-        raise EstimationError(
-            f"a {statistic} of '{col.name}' needs numbers, but it holds text; estimate its "
-            "proportions instead")
 
 
 #: statistic name -> class (Ratio is called with two variables).
