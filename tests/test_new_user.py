@@ -330,3 +330,14 @@ def test_margins_add_the_one_way_rows_to_a_crossed_by(
             (r["group"][b], r["estimate"], r["se"]) for r in alone]
     assert [r for r in rows if r["group"] and None not in r["group"].values()] == crossed[1:]
     assert rows[0] == crossed[0] and len(rows) == len(crossed) + 2 + 3
+
+
+def test_a_chart_from_the_command_line_carries_provenance(
+    survey: Path, capsys: pytest.CaptureFixture[str]
+) -> None:
+    chart = survey.parent / "x.svg"
+    code, _, err = _run(capsys, "estimate", survey, "X", "--by", "G", "--codebook",
+                        survey.parent / "cb.toml", "--plot", chart)
+    assert code == 0, err
+    text = chart.read_text(encoding="utf-8")
+    assert "wstats provenance" in text and "s.csv" in text and "sha256" in text

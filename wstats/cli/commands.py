@@ -35,6 +35,7 @@ from wstats.cli.common import (
     _load_codebook,
     _not_an_input,
     _print_rich,
+    _provenance,
     _read,
 )
 from wstats.errors import UsageError, require_package
@@ -67,7 +68,8 @@ def _run_estimate(args: argparse.Namespace) -> int:
     if args.plot:
         from wstats.reports.plots import plot_domains
 
-        plot_domains(table, Path(args.plot), overwrite=args.overwrite)
+        plot_domains(table, Path(args.plot), overwrite=args.overwrite,
+                     provenance=_provenance(table, [args.data], args.codebook))
     return 0
 
 
@@ -97,7 +99,8 @@ def _run_nonresponse(args: argparse.Namespace) -> int:
     if args.plot:
         from wstats.reports.plots import plot_reasons
 
-        plot_reasons(table, Path(args.plot), overwrite=args.overwrite)
+        plot_reasons(table, Path(args.plot), overwrite=args.overwrite,
+                     provenance=_provenance(table, [args.data], args.codebook))
     return 0
 
 

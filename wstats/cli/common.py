@@ -65,12 +65,8 @@ def _emit(obj: Any, kind: str, args: argparse.Namespace, inputs: Sequence[str],
         _print_rich(registry[key](obj))
         return
     from wstats.readers.output import atomic_write
-    from wstats.reports.provenance import provenance
 
-    attrs = obj.attrs if kind == "bounds" else {}
-    design = getattr(obj, "design", None) or attrs.get("design") or {}
-    prov = provenance([Path(p) for p in inputs], Path(codebook_path) if codebook_path else None,
-                      dict(design), _command_line())
+    prov = _provenance(obj, inputs, codebook_path)
     text = registry[key](obj, provenance=prov)
     if key == "terminal":
         from wstats.render import plain_text
@@ -82,6 +78,16 @@ def _emit(obj: Any, kind: str, args: argparse.Namespace, inputs: Sequence[str],
         print(f"wrote {args.output}", file=sys.stderr)
     else:
         sys.stdout.write(text if isinstance(text, str) else text.decode())
+
+
+def _provenance(obj: Any, inputs: Sequence[str], codebook_path: str | None) -> dict[str, Any]:
+    """Return the provenance record of a result of this command (its design, inputs, line)."""
+    from wstats.reports.provenance import provenance
+
+    attrs = getattr(obj, "attrs", None) or {}
+    design = getattr(obj, "design", None) or attrs.get("design") or {}
+    return provenance([Path(p) for p in inputs], Path(codebook_path) if codebook_path else None,
+                      dict(design), _command_line())
 
 
 def _check_outputs(args: argparse.Namespace, inputs: Sequence[str | None]) -> None:

@@ -132,7 +132,8 @@ def render_reasons(table: NonresponseTable, fmt: str = "svg",
     return _encode(fig, fmt, provenance)
 
 
-def plot_domains(table: EstimateTable, path: str | Path, *, overwrite: bool = False) -> Path:
+def plot_domains(table: EstimateTable, path: str | Path, *, overwrite: bool = False,
+                 provenance: Mapping[str, Any] | None = None) -> Path:
     """Write :func:`render_domains` to *path* (``.png`` or ``.svg``); return the path.
 
     Parameters
@@ -143,16 +144,18 @@ def plot_domains(table: EstimateTable, path: str | Path, *, overwrite: bool = Fa
         Output file; the extension chooses the format.
     overwrite : bool
         Replace an existing file (otherwise OutputError).
+    provenance : the record to keep in the image's metadata (see :func:`render_domains`).
 
     Returns
     -------
     Path
         The file written.
     """
-    return _write(render_domains(table, plot_format(path)), path, overwrite)
+    return _write(render_domains(table, plot_format(path), provenance), path, overwrite)
 
 
-def plot_reasons(table: NonresponseTable, path: str | Path, *, overwrite: bool = False) -> Path:
+def plot_reasons(table: NonresponseTable, path: str | Path, *, overwrite: bool = False,
+                 provenance: Mapping[str, Any] | None = None) -> Path:
     """Write :func:`render_reasons` to *path* (``.png`` or ``.svg``); return the path.
 
     Parameters
@@ -163,13 +166,14 @@ def plot_reasons(table: NonresponseTable, path: str | Path, *, overwrite: bool =
         Output file; the extension chooses the format.
     overwrite : bool
         Replace an existing file (otherwise OutputError).
+    provenance : the record to keep in the image's metadata (see :func:`render_domains`).
 
     Returns
     -------
     Path
         The file written.
     """
-    return _write(render_reasons(table, plot_format(path)), path, overwrite)
+    return _write(render_reasons(table, plot_format(path), provenance), path, overwrite)
 
 
 def _write(data: bytes, path: str | Path, overwrite: bool) -> Path:
