@@ -115,12 +115,15 @@ def _column_blocks(
         # trailing text (the reason breakdown) may wrap; numbers and labels may not
         wrap = col.align == "l" and i >= lead
         need.append((min(longest, _WRAP_AT) if wrap else longest) + _PAD)
-    base, current, used = list(range(lead)), list[int](), sum(need[:lead])
+    # a Level column that is empty in this block (means beside proportions) is left out
+    base = [i for i in range(lead) if g.columns[i].key != "level"
+            or any(i < len(r) and r[i] for r in rows)]
+    current, used = list[int](), sum(need[i] for i in base)
     blocks: list[list[int]] = []
     for i in range(lead, len(g.columns)):
         if current and used + need[i] - _PAD > width:
             blocks.append(base + current)
-            current, used = [], sum(need[:lead])
+            current, used = [], sum(need[i] for i in base)
         current.append(i)
         used += need[i]
     blocks.append(base + current)
