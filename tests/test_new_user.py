@@ -303,11 +303,15 @@ def test_statistics_per_variable_in_an_analysis_file(
     analysis = survey.parent / "a.toml"
     analysis.write_text(
         'data = "s.csv"\ncodebook = "cb.toml"\n[[estimates]]\nvariables = ["Q", "AGE"]\n'
-        'statistics = { AGE = ["mean", "quantile"] }\noutput = "e.json"\n', encoding="utf-8")
+        'statistics = { AGE = ["mean", "quantile"] }\nby = ["G", "H"]\nmargins = true\n'
+        'output = "e.json"\n', encoding="utf-8")
     assert _run(capsys, "run", analysis)[0] == 0
     rows = json.loads((survey.parent / "e.json").read_text(encoding="utf-8"))["results"]
     assert sorted({(r["variable"], r["statistic"]) for r in rows}) == [
         ("AGE", "mean"), ("AGE", "quantile"), ("Q", "proportion")]
+    ages = [r["group"] for r in rows if r["variable"] == "AGE" and r["statistic"] == "mean"]
+    # population, 2 + 3 one-way margins, 2 x 3 crossed cells
+    assert len(ages) == 1 + 5 + 6 and {"G": 1, "H": None} in ages
 
 
 def test_margins_add_the_one_way_rows_to_a_crossed_by(

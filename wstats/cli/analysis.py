@@ -234,7 +234,8 @@ class _Runner:
             by=o["by"], where=o.get("where"), categorical=o.get("categorical", ()),
             ratios=[tuple(r) for r in o.get("ratios", ())],
             quantiles=o.get("quantiles", (0.5,)), level=o["level"],
-            proportion_ci=o["proportion_ci"], reliability=STANDARDS[o["reliability"]])
+            proportion_ci=o["proportion_ci"], reliability=STANDARDS[o["reliability"]],
+            margins=o.get("margins", False))
         self.results[("estimates", job.name)] = table
         return self.registry_render(ESTIMATE_RENDERERS, table, job)
 

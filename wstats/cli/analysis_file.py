@@ -25,7 +25,7 @@ _DOMAIN = ("variables", "by", "where", "level")
 #: table name -> allowed keys of each entry
 JOB_KEYS: dict[str, tuple[str, ...]] = {
     "estimates": ("name", *_DOMAIN, "statistics", "categorical", "ratios", "quantiles",
-                  "proportion_ci", "reliability", *_OUT),
+                  "proportion_ci", "reliability", "margins", *_OUT),
     "nonresponse": ("name", *_DOMAIN, "count_invalid", "sort_worst", "not_asked", *_OUT),
     "bounds": ("name", *_DOMAIN, "reasons", "reliability", *_OUT),
     "table": ("spec", "title", "rows", "columns", "where", "cells", "intervals", "notes",
@@ -262,6 +262,7 @@ class _Parser(_Spec):
             raise self.fail(f"{key} quantiles", "must be a list of probabilities, e.g. [0.5]")
         return {
             "statistics": stats,
+            "margins": self.flag(entry.get("margins", False), f"{key} margins"),
             "categorical": self.names(entry.get("categorical", []), f"{key} categorical"),
             "ratios": tuple(tuple(self.names(r, f"{key} ratios")) for r in ratios),
             "quantiles": tuple(float(q) for q in quantiles),
