@@ -345,3 +345,13 @@ def test_a_chart_from_the_command_line_carries_provenance(
     assert code == 0, err
     text = chart.read_text(encoding="utf-8")
     assert "wstats provenance" in text and "s.csv" in text and "sha256" in text
+
+
+def test_statistics_for_a_variable_not_estimated_is_refused(survey: Path) -> None:
+    import wstats
+
+    cb = survey.parent / "cb.toml"
+    data = wstats.read(survey, ["X", "AGE", "W", "ST", "CL"], codebook=cb)
+    with pytest.raises(wstats.EstimationError, match="'AGE', which is not among the variables"):
+        wstats.estimate(data, wstats.Design.from_codebook(cb), ["X"],
+                        statistics={"AGE": "quantile"})

@@ -111,8 +111,11 @@ def estimate(
     from wstats.estimation.results import EstimateTable, object_column
 
     stats = _check_options(statistics, level, proportion_ci, quantiles)
-    _check_names(data, [*variables, *by, *categorical, *(v for r in ratios for v in r),
-                        *(stats if isinstance(stats, dict) else ())])
+    _check_names(data, [*variables, *by, *categorical, *(v for r in ratios for v in r)])
+    for name in stats if isinstance(stats, dict) else ():
+        if name not in variables:
+            raise EstimationError(f"statistics name '{name}', which is not among the variables "
+                                  f"to estimate ({', '.join(variables)}); add it or drop it")
     bound = design.bind(data)
     domains, by_levels = _domains(data, bound, list(by), where)
     columns = {name: bound.column(col) for name, col in data.columns.items()}
