@@ -87,9 +87,9 @@ def test_compare_other_formats(survey: Path, capsys: pytest.CaptureFixture[str])
     assert float(diffs[0]["difference"]) == pytest.approx(result.differences.rows[0]
                                                           ["difference"])
     assert diffs[0]["group_a"] == "South"
-    from wstats.render import _plain_text
+    from wstats.render import plain_text
 
-    term = _plain_text(COMPARE_RENDERERS["terminal"](result), width=200)
+    term = plain_text(COMPARE_RENDERERS["terminal"](result), width=200)
     assert "B - A" in term and "North" in term
 
 

@@ -64,7 +64,8 @@ def test_diagonal_equals_estimate_variances(fpc: str | None, singleton: str) -> 
     nd = sums.n_domains
     table = estimate(ds, design, ["y", "c"], statistics=["mean", "total"], by=["g"],
                      ratios=[("y", "x")]).frame
-    prop = estimate(ds, design, ["c"], statistics="proportion", by=["g"]).frame
+    prop = estimate(ds, design, ["c"], statistics="proportion", by=["g"],
+                    categorical=["c"]).frame
     y, x, c = (eng.column(ds, k) for k in ("y", "x", "c"))
     labels, pinf = proportion_influence(sums, c)
     checks: list[tuple[Any, Any]] = [

@@ -23,6 +23,7 @@ from wstats.cli.args import (
     add_run_args,
     add_table_args,
     design_from,
+    format_for,
     needed_columns,
     parse_rows,
     ratio_pair,
@@ -35,9 +36,10 @@ from wstats.cli.common import (
     _load_codebook,
     _not_an_input,
     _print_rich,
+    _provenance,
     _read,
 )
-from wstats.errors import UsageError
+from wstats.errors import UsageError, require_package
 
 __all__ = ["COMMANDS"]
 
@@ -50,22 +52,27 @@ def _run_estimate(args: argparse.Namespace) -> int:
     design = design_from(args, codebook)
     ratios = [ratio_pair(r) for r in args.ratio]
     variables = list(args.variables)
+    if not variables and not ratios:
+        raise UsageError("wstats estimate: name at least one VAR or give --ratio NUM/DEN "
+                         "(see 'wstats estimate --help')")
     age = [args.age_adjust] if args.age_adjust else []
     needed = needed_columns([*variables, *[x for r in ratios for x in r], *args.by, *age],
                             design, args.where, args.data)
     data = _read(args, codebook, needed)
     table = estimate(
-        data, design, variables, statistics=split_list([args.stats]) or None, by=args.by,
+        data, design, variables, statistics=split_list([args.statistics]) or None, by=args.by,
         where=args.where, categorical=args.categorical, ratios=ratios,
         quantiles=[float(q) for q in split_list([args.quantiles])], level=args.level,
         proportion_ci=args.proportion_ci, reliability=_standard(_reliability_name(args)),
-        age_adjust=args.age_adjust, standard=args.standard if args.age_adjust else None,
+        margins=args.margins, age_adjust=args.age_adjust,
+        standard=args.standard if args.age_adjust else None,
     )
     _emit(table, "estimate", args, [args.data], args.codebook)
     if args.plot:
         from wstats.reports.plots import plot_domains
 
-        plot_domains(table, Path(args.plot), overwrite=args.overwrite)
+        plot_domains(table, Path(args.plot), overwrite=args.overwrite,
+                     provenance=_provenance(table, [args.data], args.codebook))
     return 0
 
 
@@ -118,11 +125,13 @@ def _run_nonresponse(args: argparse.Namespace) -> int:
     table = nonresponse(data, design, args.variables, by=args.by, where=args.where,
                         level=args.level, count_invalid=not args.exclude_invalid,
                         sort_worst=args.worst_first, not_asked=tuple(split_list([args.not_asked])))
-    _emit(table, "nonresponse", args, [args.data], args.codebook)
+    _emit(table.showing_shares() if args.shares else table, "nonresponse", args, [args.data],
+          args.codebook)
     if args.plot:
         from wstats.reports.plots import plot_reasons
 
-        plot_reasons(table, Path(args.plot), overwrite=args.overwrite)
+        plot_reasons(table, Path(args.plot), overwrite=args.overwrite,
+                     provenance=_provenance(table, [args.data], args.codebook))
     return 0
 
 
@@ -136,8 +145,8 @@ def _run_bounds(args: argparse.Namespace) -> int:
     data = _read(args, codebook, needed_columns([*args.variables, *args.by], design,
                                                 args.where, args.data))
     frame = bounds(data, design, args.variables, by=args.by, where=args.where,
-                   level=args.level, reasons=tuple(split_list([args.unknown])))
-    frame.attrs.setdefault("design", design.bind(data).summary())
+                   level=args.level, reasons=tuple(split_list([args.unknown])),
+                   reliability=_standard(args.standard))
     _emit(frame, "bounds", args, [args.data], args.codebook)
     return 0
 
@@ -148,6 +157,9 @@ def _run_table(args: argparse.Namespace) -> int:
     spec = load_table_spec(args.spec)
     if args.format == "xlsx" and not args.output:
         raise UsageError("xlsx output needs -o FILE.xlsx")
+    if format_for(args) == "xlsx" or (not args.output and not args.format and any(
+            fmt == "xlsx" for _, fmt in spec.outputs)):
+        require_package("xlsx files", str(args.spec))
     table = build_table(spec, progress=sys.stderr.isatty())
     if not args.output and not args.format and table.outputs:
         from wstats.render import write_table

@@ -1,4 +1,4 @@
-"""Setting up the domains of an estimate: names checked, by-cells built, categorical or not.
+"""Setting up the domains of an estimate: names checked, by-cells built.
 
 Domains: the population domain is every row where ``where`` is valid and non-zero (all rows
 without ``where``); the by-cells are the full product of the levels of the ``by`` variables in
@@ -16,18 +16,18 @@ import numpy as np
 from wstats.decoding.reasons import VALID
 from wstats.errors import EstimationError, did_you_mean
 from wstats.estimation.domains import Domains, no_cell
-from wstats.estimation.levels import category_levels, distinct_values, level_index
+from wstats.estimation.levels import category_levels, level_index
 
 if TYPE_CHECKING:
     import numpy.typing as npt
 
-    from wstats.decoding.columns import Dataset, DecodedColumn
+    from wstats.decoding.columns import Dataset
     from wstats.design.bound import BoundDesign
 
     Index = npt.NDArray[np.int64]
     Bool = npt.NDArray[np.bool_]
 
-__all__ = ["MAX_CELLS", "build_domains", "check_names", "is_categorical"]
+__all__ = ["MAX_CELLS", "build_domains", "check_names"]
 
 MAX_CELLS = 10_000  # crossed by-cells allowed in one call
 
@@ -40,16 +40,6 @@ def check_names(data: Dataset, names: Sequence[str]) -> None:
             raise EstimationError(
                 f"variable '{name}' is not{where}{did_you_mean(name, data.columns)}"
             )
-
-
-def is_categorical(col: DecodedColumn, forced: set[str]) -> bool:
-    """Return True for categorical/binary/text kinds, names in *forced*, or fully labelled data."""
-    if col.name in forced or col.kind in ("categorical", "binary", "text"):
-        return True
-    if not col.value_labels or col.values.dtype.kind != "f":
-        return False
-    seen = distinct_values(col.values[col.valid])
-    return bool(len(seen)) and all(float(v) in col.value_labels for v in seen)
 
 
 def build_domains(data: Dataset, bound: BoundDesign, by: list[str], where: str | None

@@ -288,9 +288,9 @@ def _code(v: Any) -> str:
 
 def _is_categorical(col: DecodedColumn, forced: bool) -> bool:
     """Return whether *col* is compared by its levels' proportions."""
-    from wstats.estimation.domain_setup import is_categorical as decide
+    from wstats.estimation.statistics import is_categorical
 
-    return decide(col, {col.name} if forced else set())
+    return is_categorical(col, [col.name] if forced else [])
 
 
 def _variable(data: Dataset, plan: _Plan, name: str, forced: bool

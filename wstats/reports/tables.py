@@ -206,7 +206,8 @@ def _estimate_all(spec: TableSpec, data: Dataset, design: Design) -> EstimateTab
     if "standard" in stacked.columns:
         stacked["standard"] = stacked["standard"].astype(object).where(
             stacked["standard"].notna(), None)
-    settings = {**first.settings, "level": spec.level, "proportion_ci": spec.proportion_ci}
+    settings = {**first.settings, "level": spec.level, "proportion_ci": spec.proportion_ci,
+                "domains": list(spec.by)}
     return EstimateTable.from_frame(stacked, by=spec.by, level=spec.level, design=first.design,
                          settings=settings)
 
@@ -278,7 +279,6 @@ def _methods(spec: TableSpec, est: EstimateTable, codebook: Codebook | None) -> 
     text = methods_paragraph(
         est.design, settings, totals, (min(rates), max(rates)) if rates else None,
         spec.data.name, spec.reliability, recodes=_recodes(spec, codebook),
-        reason_descriptions=dict(codebook.reasons) if codebook else None,
     )
     return " ".join([text, *table_methods_sentences(spec)])
 
