@@ -111,7 +111,7 @@ def test_select_by_reason(run_cli: Run, folder: Path) -> None:
     frame = survey_frame()
     proc = run_cli("estimate", "survey.sav", "SMOKE", "--codebook", "codebook.toml",
                    "--where", 'reason(SLEEP, "dont_know") or reason(SLEEP, "refused")',
-                   "--stats", "proportion", "--format", "json", cwd=folder)
+                   "--statistics", "proportion", "--format", "json", cwd=folder)
     assert proc.returncode == 0, proc.stderr
     rows = _json_rows(proc.stdout)
     assert {r["n"] for r in rows} == {3}
@@ -319,7 +319,7 @@ def test_total_beyond_float_range_is_one_line(run_cli: Run, folder: Path) -> Non
 
     data = _frame_to(folder, "huge.csv", huge)
     out = folder / "out.csv"
-    proc = run_cli("estimate", data, "SLEEP", *DESIGN, "--stats", "total", "-o", out,
+    proc = run_cli("estimate", data, "SLEEP", *DESIGN, "--statistics", "total", "-o", out,
                    cwd=folder)
     assert_error(proc, 1, "total of SLEEP", r"1\.8e308", "divide", absent=(out,))
     mean = run_cli("estimate", data, "SLEEP", *DESIGN, "--format", "csv", cwd=folder)
@@ -612,27 +612,29 @@ def test_ratio_over_zero_denominator_same_everywhere(run_cli: Run, folder: Path)
 
 def test_proportion_of_a_continuous_variable(run_cli: Run, folder: Path) -> None:
     out = folder / "out.csv"
-    proc = run_cli("estimate", "survey.csv", "AGE", *DESIGN, "--stats", "proportion", "-o",
+    proc = run_cli("estimate", "survey.csv", "AGE", *DESIGN, "--statistics", "proportion", "-o",
                    out, cwd=folder)
     assert_error(proc, 1, "'AGE'", "--categorical AGE", absent=(out,))
-    fine = run_cli("estimate", "survey.csv", "AGE", *DESIGN, "--stats", "proportion",
+    fine = run_cli("estimate", "survey.csv", "AGE", *DESIGN, "--statistics", "proportion",
                    "--categorical", "AGE", "--format", "csv", cwd=folder)
     assert fine.returncode == 0, fine.stderr
-    with pytest.raises(EstimationError, match="categorical=\\['AGE'\\]"):
+    with pytest.raises(EstimationError, match="proportion of 'AGE' needs a categorical"):
         wstats.estimate(wstats.read(folder / "survey.csv"), wstats.Design("WT"), ["AGE"],
                         statistics="proportion")
 
 
-def test_proportion_of_an_indicator_is_fine(run_cli: Run, folder: Path) -> None:
+def test_proportion_of_an_indicator(run_cli: Run, folder: Path) -> None:
+    # A 0/1 column without a codebook is a number too: it needs --categorical, and then
+    # its proportion is the weighted share of ones.
     data = _frame_to(folder, "ind.csv", lambda f: f.__setitem__("OLD", (f["AGE"] > 50) * 1.0))
-    proc = run_cli("estimate", data, "OLD", *DESIGN, "--stats", "proportion", "--format", "csv",
-                   cwd=folder)
-    assert proc.returncode == 0, proc.stderr
-    assert {r["level"] for r in _csv_rows(proc.stdout)} == {"0", "1"}
+    out = folder / "out.csv"
+    refused = run_cli("estimate", data, "OLD", *DESIGN, "--statistics", "proportion", "-o", out,
+                      cwd=folder)
+    assert_error(refused, 1, "'OLD'", "--categorical OLD", absent=(out,))
     frame = survey_frame()
     share = frame.loc[frame["AGE"] > 50, "WT"].sum() / frame["WT"].sum()
     table = wstats.estimate(wstats.read(data), wstats.Design("WT", "STRAT", "PSU"), ["OLD"],
-                            statistics="proportion").frame
+                            statistics="proportion", categorical=["OLD"]).frame
     got = table.loc[table["level"] == "1", "estimate"].iloc[0]
     assert got == pytest.approx(share, rel=1e-12)  # a weighted share, by definition
 
@@ -668,7 +670,7 @@ def test_numbers_made_text_by_na(run_cli: Run, folder: Path) -> None:
 
     data = _frame_to(folder, "na.csv", edit)
     out = folder / "out.csv"
-    mean = run_cli("estimate", data, "Q", *DESIGN, "--stats", "mean", "-o", out, cwd=folder)
+    mean = run_cli("estimate", data, "Q", *DESIGN, "--statistics", "mean", "-o", out, cwd=folder)
     assert_error(mean, 1, "'Q'", r"'NA' \(3 rows\)", r'codes = \{ "NA" = "missing" \}',
                  absent=(out,))
     weight = run_cli("estimate", data, "SLEEP", "--weight", "Q", "-o", out, cwd=folder)
