@@ -47,12 +47,15 @@ def scales_for(data: Dataset, names: Iterable[str]) -> dict[str, float]:
 
 
 def _largest(values: np.ndarray) -> float:
-    """Return the largest finite magnitude of a column (0 when none), tile by tile."""
+    """Return the largest magnitude of a column (NaN ignored), in one pass without copies.
+
+    Infinity gives infinity (such a column is not scaled).
+    """
     top = 0.0
     for tile in row_tiles(len(values)):  # loop over row tiles, not rows
-        part = np.abs(values[tile])
-        part = part[np.isfinite(part)]
-        top = max(top, float(part.max(initial=0.0)))
+        part = values[tile]
+        top = max(top, float(np.fmax.reduce(part, initial=-np.inf)),
+                  -float(np.fmin.reduce(part, initial=np.inf)))
     return top
 
 
