@@ -14,9 +14,9 @@ from wstats.errors import UsageError
 
 __all__ = [
     "OUTPUT_FORMATS", "Parser", "add_bounds_args", "add_codebook_args", "add_columns_args",
-    "add_convert_args", "add_demo_args", "add_estimate_args", "add_nonresponse_args",
-    "add_run_args", "add_table_args", "design_from", "format_for", "needed_columns",
-    "one_line", "parse_rows", "ratio_pair", "split_list",
+    "add_convert_args", "add_demo_args", "add_estimate_args", "add_look_args",
+    "add_nonresponse_args", "add_run_args", "add_table_args", "design_from", "format_for",
+    "needed_columns", "one_line", "parse_rows", "ratio_pair", "split_list",
 ]
 
 OUTPUT_FORMATS = ("table", "csv", "json", "markdown", "latex", "html")
@@ -253,6 +253,23 @@ def add_convert_args(p: argparse.ArgumentParser) -> None:
 
 def add_columns_args(p: argparse.ArgumentParser) -> None:
     p.add_argument("data", metavar="FILE", help="survey file")
+    p.add_argument("--search", nargs="+", metavar="WORD", default=[],
+                   help="show only columns whose name or label holds every WORD "
+                        "(case-insensitive)")
+    p.add_argument("--names-only", action="store_true",
+                   help="print the matching names, one a line, without reading the data")
+    p.add_argument("--encoding", default="utf-8", metavar="NAME",
+                   help="text encoding of a CSV file or of labels (e.g. latin-1)")
+    _add_output_options(p, ("table", "json", "csv"))
+
+
+def add_look_args(p: argparse.ArgumentParser) -> None:
+    _add_data_options(p)
+    p.add_argument("variables", metavar="VAR", nargs="+", help="columns to look at")
+    p.add_argument("--weight", metavar="COL",
+                   help="weights for the weighted mean, quartiles and chart (default: the "
+                        "codebook's [design] weight, else none)")
+    _add_output_options(p, ("table", "json"))
 
 
 def add_demo_args(p: argparse.ArgumentParser) -> None:

@@ -23,6 +23,7 @@ from wstats._cli_args import (
     add_convert_args,
     add_demo_args,
     add_estimate_args,
+    add_look_args,
     add_nonresponse_args,
     add_run_args,
     add_table_args,
@@ -298,11 +299,56 @@ def _run_convert(args: argparse.Namespace) -> int:
 
 
 def _run_columns(args: argparse.Namespace) -> int:
-    from wstats._readers import file_columns
+    if args.names_only:
+        from wstats.readers.overview import describe_columns
 
-    for name in file_columns(args.data):
-        print(name)
+        view = describe_columns(args.data, search=args.search, counts=False,
+                                encoding=args.encoding)
+        sys.stdout.write("".join(f"{c.name}\n" for c in view.columns))
+        return 0
+    _check_outputs(args, [args.data])
+    from wstats.readers.overview import describe_columns
+
+    view = describe_columns(args.data, search=args.search, encoding=args.encoding,
+                            progress=_progress_wanted(args))
+    _emit_text(view, "columns", args, [args.data])
     return 0
+
+
+def _run_look(args: argparse.Namespace) -> int:
+    parse_rows(args.rows)
+    _check_outputs(args, [args.data, args.codebook])
+    from wstats.reports.look import look
+
+    codebook = _load_codebook(args.codebook)
+    weight = args.weight or (getattr(codebook, "design", None) or {}).get("weight")
+    result = look(args.data, args.variables, codebook=codebook, weight=weight,
+                  rows=parse_rows(args.rows), encoding=args.encoding)
+    _emit_text(result, "look", args, [args.data])
+    return 0
+
+
+def _emit_text(obj: Any, kind: str, args: argparse.Namespace, inputs: Sequence[str]) -> None:
+    """Render a first-look result (plain text at the screen's width, or a file format)."""
+    import shutil
+
+    from wstats import render
+
+    registry: Mapping[str, Callable[..., str]] = getattr(render, f"{kind.upper()}_RENDERERS")
+    fmt = format_for(args)
+    if fmt == "table":
+        width = shutil.get_terminal_size((80, 24)).columns if not args.output else 80
+        text = registry["terminal"](obj, width=max(width, 40))
+    else:
+        text = registry[fmt](obj)
+    if args.output:
+        from wstats._io import atomic_write
+
+        _not_an_input(args.output, inputs)
+        atomic_write(Path(args.output), text, overwrite=args.overwrite)
+        print(f"wrote {args.output}", file=sys.stderr)
+    else:
+        sys.stdout.write(text)
 
 
 def _run_demo(args: argparse.Namespace) -> int:
@@ -340,8 +386,14 @@ COMMANDS: dict[str, Command] = {
         "convert a survey file to a Parquet cache that keeps labels and missing codes",
         "wstats convert survey.xpt survey.parquet", add_convert_args, _run_convert),
     "columns": Command(
-        "list the columns of a survey file (metadata only, fast)",
-        "wstats columns survey.xpt", add_columns_args, _run_columns),
+        "list the columns of a survey file: label, type, blanks, distinct values, declared "
+        "missing codes",
+        "wstats columns survey.xpt --search sleep", add_columns_args, _run_columns),
+    "look": Command(
+        "look at variables: raw codes with counts and labels, what decoding makes of them, a "
+        "summary and a chart",
+        "wstats look survey.xpt SLEEPHRS GENHLTH --codebook codebook.toml --weight FINALWT",
+        add_look_args, _run_look),
     "demo": Command(
         "write the built-in demo survey and show what wstats does with it",
         "wstats demo ./wstats-demo", add_demo_args, _run_demo),

@@ -27,7 +27,9 @@ if TYPE_CHECKING:
 
 __all__ = [
     "BOUNDS_RENDERERS",
+    "COLUMNS_RENDERERS",
     "ESTIMATE_RENDERERS",
+    "LOOK_RENDERERS",
     "FORMATS",
     "NONRESPONSE_RENDERERS",
     "TABLE_RENDERERS",
@@ -85,6 +87,12 @@ NONRESPONSE_RENDERERS: MutableMapping[str, Renderer] = _each_module("nonresponse
 TABLE_RENDERERS: MutableMapping[str, Renderer] = _each_module("table")
 BOUNDS_RENDERERS: MutableMapping[str, Renderer] = _Registry(
     {fmt: ("_bounds", f"bounds_{fmt}") for fmt in ("terminal", "markdown", "csv", "json")})
+#: ``wstats columns`` (a FileOverview): terminal text at a given width, JSON, CSV
+COLUMNS_RENDERERS: MutableMapping[str, Renderer] = _Registry(
+    {fmt: ("_columns", f"columns_{fmt}") for fmt in ("terminal", "json", "csv")})
+#: ``wstats look`` (a LookResult): terminal text at a given width, JSON
+LOOK_RENDERERS: MutableMapping[str, Renderer] = _Registry(
+    {fmt: ("_look", f"look_{fmt}") for fmt in ("terminal", "json")})
 
 
 def render_check(report: Any) -> Any:

@@ -1,0 +1,183 @@
+"""The pieces of a look (see :mod:`wstats.reports.look`): the code table and the summary."""
+
+from __future__ import annotations
+
+import numpy as np
+
+from wstats._column import DecodedColumn
+from wstats._readers import RawColumn
+from wstats.reports.look_types import CATEGORICAL, Bar, CodeRow, VariableLook
+
+__all__ = ["code_rows", "summary"]
+
+
+def code_rows(col: RawColumn, dec: DecodedColumn, ruled: np.ndarray, w: np.ndarray,
+              max_codes: int) -> tuple[CodeRow, ...]:
+    """Return one row per raw code (valid ordinary codes of a long list share one row)."""
+    if not col.numeric:
+        return _text_rows(col, dec, ruled, w)
+    x = np.asarray(col.data, dtype=np.float64)
+    nan = np.isnan(x)
+    kept = np.flatnonzero(~nan)
+    codes, first, inverse, counts = np.unique(x[kept], return_index=True, return_inverse=True,
+                                              return_counts=True)
+    weighted = np.bincount(inverse, weights=w[kept], minlength=len(codes))
+    rows = kept[first]
+    reasons = dec.reasons
+    names = dec.vocabulary.names
+    out = []
+    for i, code in enumerate(codes.tolist()):  # one step per distinct code, not per row
+        at = int(rows[i])
+        label = dec.value_labels.get(code) or col.value_labels.get(code)
+        reason = names[int(reasons[at])]
+        value = float(dec.values[at])
+        explained = bool(ruled[at]) or label is not None or (
+            reason == "valid" and dec.kind not in CATEGORICAL)
+        out.append(CodeRow(f"{code:g}", int(counts[i]), float(weighted[i]), label, reason,
+                           value, explained, bool(ruled[at])))
+    if len(out) > max_codes and dec.kind not in CATEGORICAL:
+        out = _collapse(out)
+    return (*out, *_gap_rows(col, dec, ruled, w, nan))
+
+
+def _gap_rows(col: RawColumn, dec: DecodedColumn, ruled: np.ndarray, w: np.ndarray,
+              nan: np.ndarray) -> list[CodeRow]:
+    """Return the rows of tagged missing values (by letter) and of blanks."""
+    gaps = np.flatnonzero(nan)
+    tags = (np.zeros(len(gaps), np.uint8) if col.tags is None
+            else np.asarray(col.tags, np.uint8)[gaps])
+    counts = np.bincount(tags, minlength=256)
+    weighted = np.bincount(tags, weights=w[gaps], minlength=256)
+    names = dec.vocabulary.names
+    reasons = dec.reasons
+    out = []
+    for t in [*(np.flatnonzero(counts[1:]) + 1).tolist(), *([0] if counts[0] else [])]:
+        at = int(gaps[np.argmax(tags == t)])
+        code = "blank" if t == 0 else f".{chr(t)}"
+        label = col.value_labels.get(chr(t)) if t else None
+        out.append(CodeRow(code, int(counts[t]), float(weighted[t]), label,
+                           names[int(reasons[at])], float("nan"), bool(ruled[at]),
+                           bool(ruled[at])))
+    return out
+
+
+def _collapse(rows: list[CodeRow]) -> list[CodeRow]:
+    """List labelled, ruled, non-valid and unexplained codes; the other valid codes share a row.
+
+    Values made by a conversion (a unit prefix) share the row too: no rule names them.
+    """
+    def plain(r: CodeRow) -> bool:
+        return r.reason == "valid" and r.label is None and r.explained and not r.ruled
+
+    merged = [r for r in rows if plain(r)]
+    if len(merged) < 2:
+        return rows
+    keep = [r for r in rows if not plain(r)]
+    low, high = merged[0].code, merged[-1].code
+    span = CodeRow(f"{low}..{high}", sum(r.rows for r in merged),
+                   float(sum(r.weighted for r in merged)), None, "valid", float("nan"), True,
+                   False, len(merged))
+    at = next((i for i, r in enumerate(keep) if _number(r.code) > float(low)), len(keep))
+    return [*keep[:at], span, *keep[at:]]
+
+
+def _number(code: str) -> float:
+    """Read a code row's code back as a number (the low end of a range)."""
+    return float(code.split("..")[0])
+
+
+def _text_rows(col: RawColumn, dec: DecodedColumn, ruled: np.ndarray,
+               w: np.ndarray) -> tuple[CodeRow, ...]:
+    """Return one row per distinct text (blank last)."""
+    import pandas as pd
+
+    text = pd.Series(np.asarray(col.data, dtype=object)).fillna("").astype(str)
+    codes, first, inverse, counts = np.unique(np.asarray(text, dtype=str), return_index=True,
+                                              return_inverse=True, return_counts=True)
+    weighted = np.bincount(inverse, weights=w, minlength=len(codes))
+    reasons = dec.reasons
+    names = dec.vocabulary.names
+    out = []
+    for i, code in enumerate(codes.tolist()):  # one step per distinct text, not per row
+        at = int(first[i])
+        label = col.value_labels.get(code)
+        reason = names[int(reasons[at])]
+        explained = bool(ruled[at]) or label is not None or reason == "valid"
+        out.append(CodeRow(code.strip() or "blank", int(counts[i]), float(weighted[i]),
+                           label, reason, float("nan"), explained, bool(ruled[at])))
+    return tuple(sorted(out, key=lambda r: r.code == "blank"))
+
+
+def summary(col: RawColumn, dec: DecodedColumn, codes: tuple[CodeRow, ...], w: np.ndarray,
+            bins: int) -> VariableLook:
+    """Summarise the decoded column: valid n, means, quartiles, range, reasons, chart."""
+    valid = dec.valid
+    reasons = {k: v for k, v in dec.reason_counts().items() if k != "valid" and v}
+    nan3 = (float("nan"),) * 3
+    stats: tuple[float, float, tuple[float, float, float], float, float] = (
+        float("nan"), float("nan"), nan3, float("nan"), float("nan"))
+    chart = "none"
+    bars: tuple[Bar, ...] = ()
+    if dec.numeric:
+        y, wv = dec.values[valid], w[valid]
+        stats = _moments(y, wv)
+        chart, bars = (("frequency", _levels(y, wv, dec.value_labels))
+                       if dec.kind in CATEGORICAL else ("histogram", _histogram(y, wv, bins)))
+    elif dec.kind in CATEGORICAL:
+        chart, bars = "frequency", _text_levels(np.asarray(dec.values)[valid], w[valid])
+    return VariableLook(dec.name, dec.label, dec.kind, "number" if col.numeric else "text",
+                        codes, len(dec), int(valid.sum()), stats[0], stats[1], stats[2],
+                        stats[3], stats[4], reasons, chart, bars)
+
+
+def _moments(y: np.ndarray, w: np.ndarray
+             ) -> tuple[float, float, tuple[float, float, float], float, float]:
+    """Return mean, weighted mean, weighted quartiles, min and max (NaN when empty)."""
+    nan = float("nan")
+    if not len(y):
+        return nan, nan, (nan, nan, nan), nan, nan
+    total = float(w.sum())
+    if total > 0:
+        wmean = float(np.dot(w, y) / total)
+        q = np.quantile(y, [0.25, 0.5, 0.75], weights=w, method="inverted_cdf")
+        quartiles = (float(q[0]), float(q[1]), float(q[2]))
+    else:
+        wmean, quartiles = nan, (nan, nan, nan)
+    return float(y.mean()), wmean, quartiles, float(y.min()), float(y.max())
+
+
+def _levels(y: np.ndarray, w: np.ndarray, labels: dict[float, str]) -> tuple[Bar, ...]:
+    """Return a bar per valid level: its label (else its code) and weighted share."""
+    levels, inverse, counts = np.unique(y, return_inverse=True, return_counts=True)
+    weighted = np.bincount(inverse, weights=w, minlength=len(levels))
+    total = float(weighted.sum()) or float("nan")
+    return tuple(Bar(labels.get(v) or f"{v:g}", v, v, float(s / total), int(k))
+                 for v, s, k in zip(levels.tolist(), weighted.tolist(), counts.tolist(),
+                                    strict=True))
+
+
+def _text_levels(text: np.ndarray, w: np.ndarray) -> tuple[Bar, ...]:
+    """Return a bar per valid text level."""
+    levels, inverse, counts = np.unique(text.astype(str), return_inverse=True,
+                                        return_counts=True)
+    weighted = np.bincount(inverse, weights=w, minlength=len(levels))
+    total = float(weighted.sum()) or float("nan")
+    nan = float("nan")
+    return tuple(Bar(v, nan, nan, float(s / total), int(k))
+                 for v, s, k in zip(levels.tolist(), weighted.tolist(), counts.tolist(),
+                                    strict=True))
+
+
+def _histogram(y: np.ndarray, w: np.ndarray, bins: int) -> tuple[Bar, ...]:
+    """Return a bar per value (few values) or per equal-width bin, weighted shares."""
+    if not len(y):
+        return ()
+    levels = np.unique(y)
+    if len(levels) <= bins:
+        return _levels(y, w, {})
+    weighted, edges = np.histogram(y, bins=bins, weights=w)
+    counts, _ = np.histogram(y, bins=edges)
+    total = float(weighted.sum()) or float("nan")
+    return tuple(Bar(f"{lo:.4g} to {hi:.4g}", float(lo), float(hi), float(s / total), int(k))
+                 for lo, hi, s, k in zip(edges[:-1].tolist(), edges[1:].tolist(),
+                                         weighted.tolist(), counts.tolist(), strict=True))
