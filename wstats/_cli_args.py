@@ -193,9 +193,10 @@ def add_nonresponse_args(p: argparse.ArgumentParser) -> None:
                    help="sort by item nonresponse rate, highest first")
     p.add_argument("--exclude-invalid", action="store_true",
                    help="do not count 'invalid' answers as nonresponse")
-    p.add_argument("--not-asked", default="skipped", metavar="REASONS",
+    p.add_argument("--not-asked", default="skipped,not_applicable", metavar="REASONS",
                    help="reasons that put a row outside the item's universe, like a skip "
-                        "(default skipped; e.g. skipped,not_applicable)")
+                        "(default skipped,not_applicable; 'skipped' alone counts "
+                        "not_applicable as nonresponse)")
     p.add_argument("--level", type=float, default=0.95, help="confidence level (default 0.95)")
     p.add_argument("--plot", metavar="FILE", help="also draw reasons per variable (.png/.svg)")
     _add_output_options(p, OUTPUT_FORMATS)

@@ -9,7 +9,8 @@ Order per variable (each step only sees rows no earlier step decided):
 4. range check (after conversion; substitutes are exempt) -> ``invalid``;
 5. blank / system missing -> the variable's ``blank`` (default ``[defaults] blank``).
 Codes declared by the file become one reason each (``7`` and ``9`` never merge), named after
-their value label when it clearly says don't know / refused / not asked / missing.
+their value label when it clearly says don't know / refused / not applicable / missing; a code
+the file labels with nothing but such words is that reason too (``wstats.decoding.label_reasons``).
 """
 
 from __future__ import annotations
@@ -25,6 +26,7 @@ import numpy as np
 from wstats._column import Dataset, DecodedColumn, row_tiles
 from wstats._decode_tiles import Decoded, NumberPlan, run_plan
 from wstats._reasons import VALID, Reasons
+from wstats.decoding.label_reasons import label_reason, only_reason_words
 from wstats.errors import CodebookError, ExpressionError, did_you_mean
 
 if TYPE_CHECKING:
@@ -42,22 +44,10 @@ __all__ = [
     "decode_column",
     "decode_table",
     "new_vocabulary",
+    "tag_label",
     "tag_reason",
     "unknown_input",
 ]
-
-# Label wording -> core reason. A label matching exactly one of these names the reason; a
-# label matching several ("Don't know/Refused") or none keeps a reason of its own.
-LABEL_PATTERNS: dict[str, re.Pattern[str]] = {
-    "dont_know": re.compile(r"\bdon['’]?t\s+know\b|\bdo not know\b|\bdk\b|\bnot sure\b"
-                            r"|\bunsure\b|\bcan['’]?t say\b", re.I),
-    "refused": re.compile(r"\brefus(ed|al|es?)\b|\brf\b|\bdeclined\b", re.I),
-    "skipped": re.compile(r"\bnot asked\b|\blegitimate(ly)?\s+skip|\bvalid skip\b|\binapplicable"
-                          r"\b|\bnot applicable\b|\bn/a\b|\bskipped\b", re.I),
-    "missing": re.compile(r"\bnot ascertained\b|\bno answer\b|\bmissing\b|\bno response\b",
-                          re.I),
-}
-
 
 @dataclass(frozen=True)
 class ColumnResult:
@@ -75,27 +65,45 @@ def _code_name(value: float) -> str:
 
 def declared_reason(value: float | str, label: str | None) -> str:
     """Name the reason of a code the file declares missing, from its label when clear."""
-    if label:
-        hits = [name for name, pat in LABEL_PATTERNS.items() if pat.search(label)]
-        if len(hits) == 1:
-            return hits[0]
+    named = label_reason(label)
+    if named is not None:
+        return named
     if isinstance(value, str):
         slug = re.sub(r"[^a-z0-9]+", "_", value.lower()).strip("_") or "blank"
         return f"declared_{slug}"[:40]
     return f"declared_{_code_name(value)}"[:40]
 
 
-def tag_reason(letter: str) -> str:
-    """Name a tagged missing value's reason: ``.a``/``.A`` -> tag_a, ``._`` -> tag_underscore."""
+def tag_reason(letter: str, label: str | None = None) -> str:
+    """Name a tagged missing value's reason: from its label when clear, else ``.a``/``.A`` ->
+    tag_a, ``._`` -> tag_underscore."""
+    named = label_reason(label)
+    if named is not None:
+        return named
     return "tag_underscore" if letter == "_" else f"tag_{letter.lower()}"
 
 
+def tag_label(col: RawColumn, byte: int) -> str | None:
+    """Return the file's value label of the tag letter *byte* (either case), or None."""
+    letter = chr(byte)
+    for key in (letter, letter.lower(), letter.upper(), f".{letter}", f".{letter.lower()}"):
+        label = col.value_labels.get(key)
+        if label is not None:
+            return label
+    return None
+
+
 def declared_codes(col: RawColumn) -> tuple[dict[float, Rule], list[tuple[float, float, Rule]]]:
-    """Return rules for the file's user-missing singles (and labelled codes inside ranges)."""
+    """Return rules for the file's user-missing singles (and labelled codes inside ranges),
+    and for codes whose label holds nothing but reason words (see ``label_reasons``)."""
     from wstats._codebook import Rule
 
     labels = {float(k): v for k, v in col.value_labels.items() if not isinstance(k, str)}
     singles: dict[float, Rule] = {}
+    for code, text in labels.items():
+        inferred = only_reason_words(text)
+        if inferred is not None:
+            singles[code] = Rule(inferred, None, "file label")
     ranges: list[tuple[float, float, Rule]] = []
     for item in col.user_missing:
         if isinstance(item, tuple):
@@ -162,7 +170,8 @@ def _numeric(col: RawColumn, cb: Codebook, spec: VariableSpec | None, vocab: Rea
             seen += np.bincount(tags[rows], minlength=256)
         for byte in (np.flatnonzero(seen[1:]) + 1).tolist():  # in byte order, as met
             letter = chr(byte).lower()
-            tag_rules.append((byte, codes.tags.get(letter) or _reason_rule(tag_reason(letter))))
+            tag_rules.append((byte, codes.tags.get(letter)
+                              or _reason_rule(tag_reason(letter, tag_label(col, byte)))))
     singles, ranges = declared_codes(col)
     table = {**singles, **codes.numeric}
     blank = (spec.blank if spec and spec.blank else None) or cb.blank

@@ -16,9 +16,10 @@ the engine's own domains (population row first, then the crossed by-cells).
 Conventions (each changes numbers; see ``docs/nonresponse.md``):
 
 - Asked = every row of the domain whose reason is not ``skipped`` (legitimate skip / not in
-  the item's universe) nor another reason the caller names in ``not_asked`` (e.g. a codebook's
-  ``not_applicable``). NCES Statistical Standards, Standard 1-3: item response rate =
-  responses / (unit respondents - legitimate skips).
+  the item's universe) nor another reason in ``not_asked`` (default
+  :data:`~wstats._reasons.NOT_ASKED`: ``skipped`` and ``not_applicable``; a caller's list
+  replaces it, ``skipped`` always stays). NCES Statistical Standards, Standard 1-3: item
+  response rate = responses / (unit respondents - legitimate skips).
 - Nonresponse = ``dont_know``, ``refused``, ``missing`` and every reason a codebook or file
   added (unless named in ``not_asked``); plus ``invalid`` when ``count_invalid`` (the
   default). With ``count_invalid=False`` an invalid answer counts as an answer (it is in the
@@ -37,7 +38,7 @@ from typing import TYPE_CHECKING, Any
 import numpy as np
 
 from wstats._column import Dataset, DecodedColumn
-from wstats._reasons import VALID
+from wstats._reasons import NOT_ASKED, VALID
 from wstats._reliability import NONRESPONSE_RULES
 from wstats._results import _plain
 from wstats.errors import EstimationError
@@ -128,7 +129,7 @@ class NonresponseTable:
 
 
 def nonresponse_reasons(data: Dataset, count_invalid: bool = True,
-                        not_asked: Sequence[str] = ("skipped",)) -> tuple[str, ...]:
+                        not_asked: Sequence[str] = NOT_ASKED) -> tuple[str, ...]:
     """Return the reasons counted as item nonresponse for *data*'s vocabulary.
 
     Parameters
@@ -162,7 +163,7 @@ def nonresponse(
     level: float = 0.95,
     count_invalid: bool = True,
     sort_worst: bool = False,
-    not_asked: Sequence[str] = ("skipped",),
+    not_asked: Sequence[str] = NOT_ASKED,
 ) -> NonresponseTable:
     """Count missing values by reason and estimate item nonresponse rates.
 
@@ -178,7 +179,9 @@ def nonresponse(
     sort_worst : order the variables by their population nonresponse rate, highest first
         (domains stay under their variable).
     not_asked : reasons that mean the item was not asked (out of its universe): left out of
-        the denominator like ``skipped``, which is always among them.
+        the denominator like ``skipped``, which is always among them. Default: ``skipped``
+        and ``not_applicable``; a list given replaces it (``("skipped",)`` counts
+        ``not_applicable`` as nonresponse).
 
     Returns
     -------
@@ -201,7 +204,9 @@ def nonresponse(
     from wstats._reliability import STANDARDS
 
     names = _check_variables(data, variables)
-    skip = tuple(dict.fromkeys(("skipped", *not_asked)))
+    # a default reason the data never met is left out; a name the caller gave must exist
+    skip = tuple(r for r in dict.fromkeys(("skipped", *not_asked))
+                 if r in data.vocabulary or r not in NOT_ASKED)
     counted = nonresponse_reasons(data, count_invalid, skip)
     codes = np.array([data.vocabulary.code(r) for r in counted], dtype=np.int8)
     skip_codes = np.array([data.vocabulary.code(r) for r in skip], dtype=np.int8)

@@ -14,6 +14,7 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
+from wstats._reasons import NOT_ASKED
 from wstats._tablespec import STATISTICS, RowSpec, TableSpec, load_table_spec
 from wstats.errors import AnalysisError, did_you_mean
 
@@ -289,7 +290,7 @@ def _methods(spec: TableSpec, est: EstimateTable, codebook: Codebook | None) -> 
         reasons = {k: int(v) for k, v in dict(rec["reasons"] or {}).items()}
         for k, v in reasons.items():
             totals[k] = totals.get(k, 0) + v
-        nonresp = sum(v for k, v in reasons.items() if k not in ("skipped", "valid"))
+        nonresp = sum(v for k, v in reasons.items() if k not in (*NOT_ASKED, "valid"))
         asked = int(rec["n"]) + nonresp
         if asked:
             rates.append(nonresp / asked)
