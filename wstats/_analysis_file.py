@@ -337,7 +337,19 @@ class _Parser(_Spec):
                                 f"use {', '.join(suffixes)} or add format = \"...\"")
             fmt = "terminal" if fmt == "text" and "terminal" in allowed else fmt
             out.append(Output(p, self.choice(fmt, f"{key} format", allowed), okey))
+            _library_for(fmt, self.fail, okey)
         return tuple(out)
+
+
+def _library_for(fmt: str, fail: Any, key: str) -> None:
+    """Refuse, while the file is read, an output whose format needs a missing package."""
+    from wstats.errors import OutputError
+    from wstats.render import check_available
+
+    try:
+        check_available(fmt)
+    except OutputError as exc:
+        raise fail(key, str(exc)) from None
 
 
 def _formats(kind: str) -> tuple[dict[str, str], list[str]]:

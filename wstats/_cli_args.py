@@ -21,7 +21,8 @@ __all__ = [
 
 OUTPUT_FORMATS = ("table", "csv", "json", "markdown", "latex", "html")
 _SUFFIX_FORMAT = {".csv": "csv", ".json": "json", ".md": "markdown", ".tex": "latex",
-                  ".html": "html", ".htm": "html", ".txt": "table", ".xlsx": "xlsx"}
+                  ".html": "html", ".htm": "html", ".txt": "table", ".xlsx": "xlsx",
+                  ".docx": "docx"}
 
 
 def _add_design_options(p: argparse.ArgumentParser) -> None:
@@ -217,7 +218,7 @@ def add_bounds_args(p: argparse.ArgumentParser) -> None:
 
 def add_table_args(p: argparse.ArgumentParser) -> None:
     p.add_argument("spec", metavar="SPEC.toml", help="publication table spec")
-    _add_output_options(p, (*OUTPUT_FORMATS, "xlsx"))
+    _add_output_options(p, (*OUTPUT_FORMATS, "xlsx", "docx"))
 
 
 def add_run_args(p: argparse.ArgumentParser) -> None:

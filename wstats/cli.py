@@ -229,10 +229,13 @@ def _run_bounds(args: argparse.Namespace) -> int:
 
 def _run_table(args: argparse.Namespace) -> int:
     from wstats._pubtable import build_table, load_table_spec
+    from wstats.render import check_available
 
     spec = load_table_spec(args.spec)
-    if args.format == "xlsx" and not args.output:
-        raise UsageError("xlsx output needs -o FILE.xlsx")
+    for fmt in (format_for(args), *(f for _, f in spec.outputs)):
+        check_available(fmt)  # a missing library is said before any work is done
+    if format_for(args) in ("xlsx", "docx") and not args.output:
+        raise UsageError(f"{format_for(args)} output needs -o FILE.{format_for(args)}")
     table = build_table(spec, progress=sys.stderr.isatty())
     if not args.output and not args.format and table.outputs:
         from wstats.render import write_table

@@ -4,7 +4,8 @@ One registry per result type maps a format name to ``f(table, provenance=None)``
 
 - :data:`ESTIMATE_RENDERERS` for :class:`~wstats._results.EstimateTable`,
 - :data:`NONRESPONSE_RENDERERS` for ``NonresponseTable``,
-- :data:`TABLE_RENDERERS` for ``PublicationTable``.
+- :data:`TABLE_RENDERERS` for ``PublicationTable`` (also ``docx``, a Word document),
+- :data:`COLUMNS_RENDERERS` and :data:`LOOK_RENDERERS` for the first-look results.
 
 Text formats return ``str``, ``xlsx`` returns ``bytes`` and ``terminal`` a rich renderable.
 Every written format carries the provenance record (``provenance=None`` falls back to the
@@ -33,6 +34,7 @@ __all__ = [
     "FORMATS",
     "NONRESPONSE_RENDERERS",
     "TABLE_RENDERERS",
+    "check_available",
     "render_check",
     "write_table",
 ]
@@ -84,7 +86,10 @@ def _each_module(kind: str) -> _Registry:
 
 ESTIMATE_RENDERERS: MutableMapping[str, Renderer] = _each_module("estimate")
 NONRESPONSE_RENDERERS: MutableMapping[str, Renderer] = _each_module("nonresponse")
-TABLE_RENDERERS: MutableMapping[str, Renderer] = _each_module("table")
+# Word tables are always offered: check_available() says how to install python-docx, and
+# the command line asks it before any work is done.
+TABLE_RENDERERS: MutableMapping[str, Renderer] = _Registry(
+    {**{fmt: (f"_{fmt}", f"table_{fmt}") for fmt in _FORMATS}, "docx": ("_docx", "table_docx")})
 BOUNDS_RENDERERS: MutableMapping[str, Renderer] = _Registry(
     {fmt: ("_bounds", f"bounds_{fmt}") for fmt in ("terminal", "markdown", "csv", "json")})
 #: ``wstats columns`` (a FileOverview): terminal text at a given width, JSON, CSV
@@ -109,7 +114,19 @@ FORMATS: tuple[str, ...] = tuple(TABLE_RENDERERS)
 SUFFIX_FORMATS: dict[str, str] = {
     ".md": "markdown", ".markdown": "markdown", ".tex": "latex", ".html": "html",
     ".htm": "html", ".csv": "csv", ".json": "json", ".xlsx": "xlsx", ".txt": "terminal",
+    ".docx": "docx",
 }
+
+
+def check_available(fmt: str) -> None:
+    """Raise OutputError (one line with the ``pip install`` to run) when *fmt* needs a package
+    that is not installed; call it before any work is done."""
+    if fmt == "docx":
+        from wstats.render._docx import missing_library
+
+        problem = missing_library()
+        if problem:
+            raise OutputError(problem)
 
 
 def write_table(table: PublicationTable, overwrite: bool = False) -> list[Path]:
@@ -127,6 +144,9 @@ def write_table(table: PublicationTable, overwrite: bool = False) -> list[Path]:
     """
     from wstats._io import atomic_write
 
+    for _path, fmt in table.outputs:
+        if fmt in TABLE_RENDERERS:
+            check_available(fmt)
     written = []
     for path, fmt in table.outputs:
         if fmt not in TABLE_RENDERERS:
