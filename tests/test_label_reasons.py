@@ -17,10 +17,10 @@ import pytest
 
 from conftest import run_wstats
 from wstats import Design, nonresponse, read
-from wstats._draft import draft_codebook
-from wstats._readers import read_raw
-from wstats._reasons import Reasons
+from wstats.decoding.draft import draft_codebook
 from wstats.decoding.label_reasons import LABEL_WORDS, label_reason, only_reason_words
+from wstats.decoding.reasons import Reasons
+from wstats.readers.dispatch import read_raw
 
 
 @pytest.mark.parametrize(("label", "strict", "loose"), [

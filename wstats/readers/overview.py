@@ -24,7 +24,8 @@ from typing import Any
 
 import numpy as np
 
-from wstats._readers import RawColumn, format_of, read_raw
+from wstats.readers.dispatch import format_of, read_raw
+from wstats.readers.raw import RawColumn
 
 __all__ = ["TILE_COLUMNS", "ColumnFacts", "FileOverview", "describe_columns",
            "declared_missing"]

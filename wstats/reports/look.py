@@ -30,11 +30,12 @@ from collections.abc import Sequence
 
 import numpy as np
 
-from wstats._codebook import Codebook
-from wstats._column import DecodedColumn
-from wstats._decode import decode_column, new_vocabulary
-from wstats._readers import RawColumn, read_raw
+from wstats.decoding.codebook import Codebook
+from wstats.decoding.columns import DecodedColumn
+from wstats.decoding.decode import decode_column, new_vocabulary
 from wstats.errors import ColumnError
+from wstats.readers.dispatch import read_raw
+from wstats.readers.raw import RawColumn
 from wstats.reports.look_parts import code_rows, summary
 from wstats.reports.look_types import LookResult, VariableLook
 
@@ -75,7 +76,7 @@ def look(path: str | os.PathLike[str], variables: Sequence[str], *,
     >>> result.variables[0].reasons  # doctest: +SKIP
     {'dont_know': 212, 'refused': 97}
     """
-    from wstats._codebook import load_codebook
+    from wstats.decoding.codebook import load_codebook
 
     book = (load_codebook(os.fspath(codebook)) if isinstance(codebook, (str, os.PathLike))
             else codebook or Codebook())

@@ -4,8 +4,8 @@ from __future__ import annotations
 
 import numpy as np
 
-from wstats._column import DecodedColumn
-from wstats._readers import RawColumn
+from wstats.decoding.columns import DecodedColumn
+from wstats.readers.raw import RawColumn
 from wstats.reports.look_types import CATEGORICAL, Bar, CodeRow, VariableLook
 
 __all__ = ["code_rows", "summary"]
