@@ -21,6 +21,7 @@ from collections.abc import Callable, Iterator, Mapping, MutableMapping
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
+from wstats.display import register as register_display
 from wstats.errors import OutputError
 
 if TYPE_CHECKING:
@@ -36,6 +37,8 @@ __all__ = [
     "TABLE_RENDERERS",
     "check_available",
     "render_check",
+    "show_html",
+    "show_text",
     "write_table",
 ]
 
@@ -170,3 +173,50 @@ def _plain_text(renderable: Any, width: int = 100) -> str:
     Console(file=buf, width=width, color_system=None, force_terminal=False,
             legacy_windows=False).print(renderable)
     return buf.getvalue()
+
+
+#: result type name -> registry key, for results that show themselves (wstats.display)
+_SHOWN = {"EstimateTable": "estimate", "NonresponseTable": "nonresponse",
+          "BoundsFrame": "bounds", "PublicationTable": "table", "LookResult": "look",
+          "FileOverview": "columns"}
+
+
+def _registry(kind: str) -> MutableMapping[str, Renderer]:
+    """Return the renderer registry of a result kind."""
+    registry: MutableMapping[str, Renderer] = globals()[f"{kind.upper()}_RENDERERS"]
+    return registry
+
+
+def show_text(obj: Any, width: int | None = None) -> str | None:
+    """Return a result drawn as the terminal shows it (None for an object of another type).
+
+    The width is the terminal's (100 when it cannot be told); text, not colour.
+    """
+    kind = _SHOWN.get(type(obj).__name__)
+    if kind is None:
+        return None
+    import shutil
+
+    width = width or shutil.get_terminal_size((100, 24)).columns
+    drawn = _registry(kind)["terminal"](obj, **({"width": width} if kind in ("look", "columns")
+                                                 else {}))
+    text = drawn if isinstance(drawn, str) else _plain_text(drawn, width)
+    return text.rstrip("\n")
+
+
+def show_html(obj: Any) -> str | None:
+    """Return a result as the ``--format html`` renderer draws it (pre-formatted terminal text
+    for results that have no HTML format); None for an object of another type."""
+    kind = _SHOWN.get(type(obj).__name__)
+    if kind is None:
+        return None
+    registry = _registry(kind)
+    if "html" in registry:
+        html: str = registry["html"](obj)
+        return html
+    import html as escape
+
+    return f"<pre>{escape.escape(show_text(obj) or '')}</pre>"
+
+
+register_display(show_text, show_html)

@@ -5,6 +5,8 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 from typing import Any
 
+from wstats.display import as_text
+
 __all__ = ["CATEGORICAL", "Bar", "CodeRow", "LookResult", "VariableLook"]
 
 #: kinds whose chart is a bar per level and whose unlabelled codes are unexplained
@@ -116,6 +118,10 @@ class LookResult:
     def records(self) -> list[dict[str, Any]]:
         """Return one JSON-ready dict per variable (NaN as None)."""
         return [_record(v) for v in self.variables]
+
+    def __repr__(self) -> str:
+        """Show the look as the terminal does."""
+        return as_text(self, f"LookResult({self.path}: {[v.name for v in self.variables]})")
 
 
 def _record(v: VariableLook) -> dict[str, Any]:

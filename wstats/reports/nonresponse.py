@@ -39,6 +39,7 @@ import numpy as np
 
 from wstats.decoding.columns import Dataset, DecodedColumn
 from wstats.decoding.reasons import NOT_ASKED, VALID
+from wstats.display import as_html, as_text
 from wstats.errors import EstimationError
 from wstats.estimation.reliability import NONRESPONSE_RULES
 from wstats.estimation.results import _plain
@@ -89,6 +90,15 @@ class NonresponseTable:
     level: float = 0.95
     design: Mapping[str, Any] = field(default_factory=dict)
     settings: Mapping[str, Any] = field(default_factory=dict)
+
+    def __repr__(self) -> str:
+        """Show the table as the terminal does, with its design line."""
+        return as_text(self, f"NonresponseTable({len(self.frame)} rows; variables "
+                             f"{sorted(set(self.frame['variable']))})")
+
+    def _repr_html_(self) -> str | None:
+        """Show the table as the ``--format html`` renderer does (notebooks)."""
+        return as_html(self)
 
     def to_pandas(self) -> pd.DataFrame:
         """Return a copy of the frame."""

@@ -14,6 +14,7 @@ from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
 from wstats.decoding.reasons import NOT_ASKED
+from wstats.display import as_html, as_text
 from wstats.errors import AnalysisError, did_you_mean
 from wstats.reports.table_layout import TableColumn, _is_na, _label, _Layout, _records
 from wstats.reports.table_specs import STATISTICS, RowSpec, TableSpec, load_table_spec
@@ -69,6 +70,14 @@ class PublicationTable:
     provenance: Mapping[str, Any]
     outputs: tuple[tuple[Path, str], ...] = ()
     spec: TableSpec | None = None
+
+    def __repr__(self) -> str:
+        """Show the table as the terminal does (methods paragraph below)."""
+        return as_text(self, f"PublicationTable({self.title!r}, {len(self.cells)} rows)")
+
+    def _repr_html_(self) -> str | None:
+        """Show the table as the ``--format html`` renderer does (notebooks)."""
+        return as_html(self)
 
 
 def build_table(
