@@ -18,7 +18,7 @@ from __future__ import annotations
 
 import os
 from collections.abc import Iterator, Sequence
-from concurrent.futures import ThreadPoolExecutor
+from concurrent.futures import Future, ThreadPoolExecutor
 from dataclasses import dataclass
 from typing import Any
 
@@ -143,13 +143,15 @@ def describe_columns(path: str | os.PathLike[str], search: Sequence[str] = (),
     n_rows, reader = None, head.reader
     if counts and chosen:
         with ThreadPoolExecutor(1) as counter:  # counts a tile while the next one is read
-            pending = []
+            pending: Future[list[Any]] | None = None
             for table in _tiles(path, [c.name for c in chosen], encoding, progress):
                 n_rows, reader = table.n_rows, table.reader
-                pending.append(counter.submit(_count_tile, table.columns))
+                if pending is not None:  # at most two tiles in memory: one read, one counted
+                    _update(facts, pending.result(), n_rows)
+                pending = counter.submit(_count_tile, table.columns)
                 del table
-            for done in pending:
-                _update(facts, done.result(), n_rows)
+            if pending is not None:
+                _update(facts, pending.result(), n_rows)
     shown = tuple(facts[c.name] for c in chosen)
     return FileOverview(str(path), head.format, reader, n_rows, len(head.file_columns),
                         tuple(w for w in search if w.strip()), shown)
