@@ -244,3 +244,14 @@ def test_look_command(sav: tuple[Path, pd.DataFrame]) -> None:
     bad = run_wstats("look", path, "HELTH")
     assert bad.returncode != 0 and "did you mean 'HEALTH'" in bad.stderr
     assert len(bad.stderr.strip().splitlines()) == 1
+
+
+def test_look_at_a_derived_variable_names_its_inputs(tmp_path: Path) -> None:
+    from wstats.errors import ColumnError
+
+    path = tmp_path / "d.csv"
+    pd.DataFrame({"H": [1.0, 2.0], "W": [3.0, 4.0]}).to_csv(path, index=False)
+    book = tmp_path / "book.toml"
+    book.write_text('[derived.R]\nexpr = "W / H"\n', encoding="utf-8")
+    with pytest.raises(ColumnError, match=r"R is a derived variable .* inputs \(H, W\)"):
+        look(path, ["R"], codebook=book)

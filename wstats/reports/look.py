@@ -83,6 +83,11 @@ def look(path: str | os.PathLike[str], variables: Sequence[str], *,
     names = list(dict.fromkeys(variables))
     if not names:
         raise ColumnError("look needs at least one variable; name a column of the file")
+    for name in names:
+        if name in book.derived:
+            inputs = ", ".join(sorted(book.derived[name].expression.inputs)) or "none"
+            raise ColumnError(f"{name} is a derived variable of the codebook and has no raw "
+                              f"codes; look at its inputs ({inputs}) instead")
     raw = read_raw(path, columns=list(dict.fromkeys([*names, *([weight] if weight else [])])),
                    rows=rows, encoding=encoding)
     w, left_out = _weights(raw.columns[weight], book) if weight else (np.ones(raw.n_rows), 0)
