@@ -26,15 +26,15 @@ def look_terminal(result: Any, width: int = 80) -> str:
         lines.append(cut(f"{result.unweighted_rows:,} rows have no positive weight and count "
                          "0 in weighted figures", width))
     for var in result.variables:
-        lines += ["", *_variable(var, width)]
+        lines += ["", *_variable(var, width, bool(result.weight))]
     return "\n".join(lines) + "\n"
 
 
-def _variable(var: Any, width: int) -> list[str]:
+def _variable(var: Any, width: int, weighted: bool) -> list[str]:
     """Return the lines of one variable."""
     head = cut(f"{var.name}  {var.label or ''}".rstrip() + f"  ({var.kind})", width)
-    return [head, "=" * min(len(head), width), *_codes(var, width), "", *_summary(var, width),
-            *_chart(var, width)]
+    return [head, "=" * min(len(head), width), *_codes(var, width), "",
+            *_summary(var, width, weighted), *_chart(var, width, weighted)]
 
 
 def _codes(var: Any, width: int) -> list[str]:
@@ -59,25 +59,27 @@ def _becomes(code: Any) -> str:
     return f"value {code.value:g}"
 
 
-def _summary(var: Any, width: int) -> list[str]:
+def _summary(var: Any, width: int, weighted: bool) -> list[str]:
     """Return the summary lines: valid n, means, quartiles, range, reasons."""
     out = [f"valid {var.n_valid:,} of {var.n_rows:,} rows"]
     if var.mean == var.mean:  # not NaN
-        out.append(f"mean {number(var.mean, 3)}   weighted mean {number(var.weighted_mean, 3)}")
+        out.append(f"mean {number(var.mean, 3)}" + (
+            f"   weighted mean {number(var.weighted_mean, 3)}" if weighted else ""))
         q1, q2, q3 = (number(q) for q in var.quartiles)
-        out.append(f"min {number(var.minimum)}   weighted quartiles {q1} | {q2} | {q3}   "
-                   f"max {number(var.maximum)}")
+        out.append(f"min {number(var.minimum)}   {'weighted ' if weighted else ''}quartiles "
+                   f"{q1} | {q2} | {q3}   max {number(var.maximum)}")
     if var.reasons:
         out.append("not valid: " + ", ".join(f"{k} {v:,}" for k, v in var.reasons.items()))
     return [cut(line, width) for line in out]
 
 
-def _chart(var: Any, width: int) -> list[str]:
+def _chart(var: Any, width: int, weighted: bool) -> list[str]:
     """Return the chart: one line per level or bin, a bar and the weighted percentage."""
     if not var.bars:
         return []
-    title = ("weighted share of valid rows per level" if var.chart == "frequency"
-             else "weighted distribution of valid values")
+    title = ("share of valid rows per level" if var.chart == "frequency"
+             else "distribution of valid values")
+    title = f"weighted {title}" if weighted else title
     text_w = min(max(len(b.text) for b in var.bars), 24)
     room = max(width - text_w - 10, 5)
     peak = max(b.share for b in var.bars) or 1.0
