@@ -152,3 +152,11 @@ def test_not_applicable_is_outside_the_universe_by_default(tmp_path: Path) -> No
     cli = run_wstats("nonresponse", path, "Q1", "--weight", "W", "--not-asked", "skipped",
                      "--format", "json")
     assert json.loads(cli.stdout)["results"][0]["asked"] == len(frame)
+
+
+def test_a_codebook_may_use_not_applicable_without_declaring_it(tmp_path: Path) -> None:
+    from wstats.decoding.codebook import load_codebook
+
+    book = tmp_path / "book.toml"
+    book.write_text('[variables.Q]\ncodes = { 8 = "not_applicable" }\n', encoding="utf-8")
+    assert load_codebook(book).variables["Q"].codes.numeric[8.0].reason == "not_applicable"
