@@ -24,7 +24,6 @@ from typing import Any
 
 import numpy as np
 
-from wstats.display import as_text
 from wstats.readers.dispatch import format_of, read_raw
 from wstats.readers.raw import RawColumn
 
@@ -101,10 +100,6 @@ class FileOverview:
             row["has_value_labels"] = c.value_labels > 0
             out.append(row)
         return out
-
-    def __repr__(self) -> str:
-        """Show the overview as the terminal does."""
-        return as_text(self, f"FileOverview({self.path}: {len(self.columns)} columns)")
 
 
 def describe_columns(path: str | os.PathLike[str], search: Sequence[str] = (),

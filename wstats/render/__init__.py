@@ -21,8 +21,8 @@ from collections.abc import Callable, Iterator, Mapping, MutableMapping
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
-from wstats.display import register as register_display
 from wstats.errors import OutputError
+from wstats.estimation.display import register as register_display
 
 if TYPE_CHECKING:
     from wstats.reports.tables import PublicationTable
@@ -175,7 +175,8 @@ def _plain_text(renderable: Any, width: int = 100) -> str:
     return buf.getvalue()
 
 
-#: result type name -> registry key, for results that show themselves (wstats.display)
+#: result type name -> registry key, for results that show themselves
+#: (see wstats.estimation.display)
 _SHOWN = {"EstimateTable": "estimate", "NonresponseTable": "nonresponse",
           "BoundsFrame": "bounds", "PublicationTable": "table", "LookResult": "look",
           "FileOverview": "columns"}

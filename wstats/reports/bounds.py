@@ -14,7 +14,7 @@ import numpy as np
 
 from wstats.decoding.columns import Dataset, DecodedColumn
 from wstats.decoding.reasons import VALID
-from wstats.display import as_html, as_text
+from wstats.estimation.display import as_html, as_text
 from wstats.estimation.results import _plain
 from wstats.reports.nonresponse import _UNKNOWN, _augmented, _check_variables, _indicator, _rows
 

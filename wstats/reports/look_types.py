@@ -5,7 +5,7 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 from typing import Any
 
-from wstats.display import as_text
+from wstats.estimation.display import as_text
 
 __all__ = ["CATEGORICAL", "Bar", "CodeRow", "LookResult", "VariableLook"]
 

@@ -39,8 +39,8 @@ import numpy as np
 
 from wstats.decoding.columns import Dataset, DecodedColumn
 from wstats.decoding.reasons import NOT_ASKED, VALID
-from wstats.display import as_html, as_text
 from wstats.errors import EstimationError
+from wstats.estimation.display import as_html, as_text
 from wstats.estimation.reliability import NONRESPONSE_RULES
 from wstats.estimation.results import _plain
 

@@ -1,14 +1,14 @@
 """How results show themselves in a Python session: as the terminal table, or as HTML.
 
-Results (estimate, nonresponse and bounds tables, the first-look results) live in layers
-below the renderers, so they cannot import them. Instead the render layer registers, when it
-is imported, one function that draws any result as terminal text and one that draws it as
-HTML; a result's ``__repr__`` and ``_repr_html_`` ask here. The public door
-(``wstats/__init__.py``) imports the render layer as soon as any public name is used, so a
-session that came in through ``import wstats`` always has them. Without them (a module
-imported directly, render never loaded) a result shows a one-line summary instead.
+Results (estimate tables here; nonresponse, bounds, publication tables and looks in the
+reports layer) live below the renderers, so they cannot import them. Instead the render
+layer registers, when it is imported, one function that draws any result as terminal text
+and one that draws it as HTML; a result's ``__repr__`` and ``_repr_html_`` ask here. The
+public door (``wstats/__init__.py``) imports the render layer as soon as any public name is
+used, so a session that came in through ``import wstats`` always has them. Without them (a
+module imported directly, render never loaded) a result shows a one-line summary instead.
 
-This module imports nothing from wstats: it is the bottom of the house.
+This module imports nothing from wstats.
 """
 
 from __future__ import annotations
