@@ -255,3 +255,19 @@ def test_look_at_a_derived_variable_names_its_inputs(tmp_path: Path) -> None:
     book.write_text('[derived.R]\nexpr = "W / H"\n', encoding="utf-8")
     with pytest.raises(ColumnError, match=r"R is a derived variable .* inputs \(H, W\)"):
         look(path, ["R"], codebook=book)
+
+
+def test_look_many_distinct_values_and_texts_share_rows(tmp_path: Path) -> None:
+    rng = np.random.default_rng(5)
+    n = 5000
+    frame = pd.DataFrame({"W": rng.uniform(0.5, 2.0, n),  # every value distinct
+                          "NOTE": [f"note {i}" for i in range(n - 10)] + ["REFUSED"] * 10})
+    path = tmp_path / "wide.csv"
+    frame.to_csv(path, index=False)
+    book = tmp_path / "b.toml"
+    book.write_text('[variables.NOTE]\ncodes = { "REFUSED" = "refused" }\n', encoding="utf-8")
+    weight, note = look(path, ["W", "NOTE"], codebook=book).variables
+    (span,) = weight.codes
+    assert span.codes == frame["W"].nunique() and span.rows == n and span.explained
+    assert [c.code for c in note.codes] == ["REFUSED", f"{n - 10:,} other texts"]
+    assert note.codes[0].reason == "refused" and note.codes[1].rows == n - 10

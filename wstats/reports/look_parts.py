@@ -2,9 +2,12 @@
 
 from __future__ import annotations
 
+from dataclasses import dataclass
+
 import numpy as np
 
 from wstats.decoding.columns import DecodedColumn
+from wstats.decoding.reasons import VALID
 from wstats.readers.raw import RawColumn
 from wstats.reports.look_types import CATEGORICAL, Bar, CodeRow, VariableLook
 
@@ -13,31 +16,68 @@ __all__ = ["code_rows", "summary"]
 
 def code_rows(col: RawColumn, dec: DecodedColumn, ruled: np.ndarray, w: np.ndarray,
               max_codes: int) -> tuple[CodeRow, ...]:
-    """Return one row per raw code (valid ordinary codes of a long list share one row)."""
+    """Return one row per raw code (valid ordinary codes of a long list share one row).
+
+    The choice is made on arrays of distinct codes, so a column of 400,000 distinct values
+    costs one sort, not 400,000 rows.
+    """
     if not col.numeric:
-        return _text_rows(col, dec, ruled, w)
+        return _text_rows(col, dec, ruled, w, max_codes)
     x = np.asarray(col.data, dtype=np.float64)
     nan = np.isnan(x)
     kept = np.flatnonzero(~nan)
     codes, first, inverse, counts = np.unique(x[kept], return_index=True, return_inverse=True,
                                               return_counts=True)
     weighted = np.bincount(inverse, weights=w[kept], minlength=len(codes))
-    rows = kept[first]
-    reasons = dec.reasons
-    names = dec.vocabulary.names
-    out = []
-    for i, code in enumerate(codes.tolist()):  # one step per distinct code, not per row
-        at = int(rows[i])
-        label = dec.value_labels.get(code) or col.value_labels.get(code)
-        reason = names[int(reasons[at])]
-        value = float(dec.values[at])
-        explained = bool(ruled[at]) or label is not None or (
-            reason == "valid" and dec.kind not in CATEGORICAL)
-        out.append(CodeRow(f"{code:g}", int(counts[i]), float(weighted[i]), label, reason,
-                           value, explained, bool(ruled[at])))
-    if len(out) > max_codes and dec.kind not in CATEGORICAL:
-        out = _collapse(out)
+    at = kept[first]
+    facts = _CodeFacts(codes, counts, weighted, dec.reasons[at], dec.values[at], ruled[at])
+    labels = {**{k: v for k, v in col.value_labels.items() if not isinstance(k, str)},
+              **dec.value_labels}
+    plain = ((facts.reasons == VALID) & ~facts.ruled
+             & ~np.isin(codes, np.array(list(labels), dtype=np.float64)))
+    merge = len(codes) > max_codes and int(plain.sum()) >= 2
+    listed = np.flatnonzero(~plain) if merge else np.arange(len(codes))
+    out = [_code_row(facts, i, labels, dec) for i in listed.tolist()]  # distinct codes only
+    if merge:
+        out = _with_span(out, facts, np.flatnonzero(plain), dec.kind not in CATEGORICAL)
     return (*out, *_gap_rows(col, dec, ruled, w, nan))
+
+
+@dataclass(frozen=True)
+class _CodeFacts:
+    """Per distinct code: the code, rows, weight, and what its first row became."""
+
+    codes: np.ndarray
+    counts: np.ndarray
+    weighted: np.ndarray
+    reasons: np.ndarray
+    values: np.ndarray
+    ruled: np.ndarray
+
+
+def _code_row(f: _CodeFacts, i: int, labels: dict[float, str], dec: DecodedColumn) -> CodeRow:
+    """Build the row of the *i*-th distinct code."""
+    code = float(f.codes[i])
+    label = labels.get(code)
+    reason = dec.vocabulary.names[int(f.reasons[i])]
+    explained = bool(f.ruled[i]) or label is not None or (
+        reason == "valid" and dec.kind not in CATEGORICAL)
+    return CodeRow(f"{code:g}", int(f.counts[i]), float(f.weighted[i]), label, reason,
+                   float(f.values[i]), explained, bool(f.ruled[i]))
+
+
+def _with_span(rows: list[CodeRow], f: _CodeFacts, merged: np.ndarray,
+               explained: bool) -> list[CodeRow]:
+    """Insert one ``low..high`` row for the *merged* codes, in code order.
+
+    Values made by a conversion (a unit prefix) share the row too: no rule names them.
+    """
+    low, high = float(f.codes[merged[0]]), float(f.codes[merged[-1]])
+    span = CodeRow(f"{low:g}..{high:g}", int(f.counts[merged].sum()),
+                   float(f.weighted[merged].sum()), None, "valid", float("nan"), explained,
+                   False, len(merged))
+    at = next((i for i, r in enumerate(rows) if float(r.code) > low), len(rows))
+    return [*rows[:at], span, *rows[at:]]
 
 
 def _gap_rows(col: RawColumn, dec: DecodedColumn, ruled: np.ndarray, w: np.ndarray,
@@ -61,50 +101,32 @@ def _gap_rows(col: RawColumn, dec: DecodedColumn, ruled: np.ndarray, w: np.ndarr
     return out
 
 
-def _collapse(rows: list[CodeRow]) -> list[CodeRow]:
-    """List labelled, ruled, non-valid and unexplained codes; the other valid codes share a row.
-
-    Values made by a conversion (a unit prefix) share the row too: no rule names them.
-    """
-    def plain(r: CodeRow) -> bool:
-        return r.reason == "valid" and r.label is None and r.explained and not r.ruled
-
-    merged = [r for r in rows if plain(r)]
-    if len(merged) < 2:
-        return rows
-    keep = [r for r in rows if not plain(r)]
-    low, high = merged[0].code, merged[-1].code
-    span = CodeRow(f"{low}..{high}", sum(r.rows for r in merged),
-                   float(sum(r.weighted for r in merged)), None, "valid", float("nan"), True,
-                   False, len(merged))
-    at = next((i for i, r in enumerate(keep) if _number(r.code) > float(low)), len(keep))
-    return [*keep[:at], span, *keep[at:]]
-
-
-def _number(code: str) -> float:
-    """Read a code row's code back as a number (the low end of a range)."""
-    return float(code.split("..")[0])
-
-
 def _text_rows(col: RawColumn, dec: DecodedColumn, ruled: np.ndarray,
-               w: np.ndarray) -> tuple[CodeRow, ...]:
-    """Return one row per distinct text (blank last)."""
+               w: np.ndarray, max_codes: int) -> tuple[CodeRow, ...]:
+    """Return one row per distinct text (blank last); valid unlabelled texts of a long list
+    share one row."""
     import pandas as pd
 
     text = pd.Series(np.asarray(col.data, dtype=object)).fillna("").astype(str)
     codes, first, inverse, counts = np.unique(np.asarray(text, dtype=str), return_index=True,
                                               return_inverse=True, return_counts=True)
     weighted = np.bincount(inverse, weights=w, minlength=len(codes))
-    reasons = dec.reasons
-    names = dec.vocabulary.names
+    reasons, rule = dec.reasons[first], ruled[first]
+    labelled = np.isin(codes, [k for k in col.value_labels if isinstance(k, str)])
+    plain = (reasons == VALID) & ~rule & ~labelled & (np.char.strip(codes) != "")
+    merge = len(codes) > max_codes and int(plain.sum()) >= 2
     out = []
-    for i, code in enumerate(codes.tolist()):  # one step per distinct text, not per row
-        at = int(first[i])
+    for i in (np.flatnonzero(~plain) if merge else range(len(codes))):  # distinct texts
+        code = str(codes[i])
         label = col.value_labels.get(code)
-        reason = names[int(reasons[at])]
-        explained = bool(ruled[at]) or label is not None or reason == "valid"
+        reason = dec.vocabulary.names[int(reasons[i])]
+        explained = bool(rule[i]) or label is not None or reason == "valid"
         out.append(CodeRow(code.strip() or "blank", int(counts[i]), float(weighted[i]),
-                           label, reason, float("nan"), explained, bool(ruled[at])))
+                           label, reason, float("nan"), explained, bool(rule[i])))
+    if merge:
+        out.append(CodeRow(f"{int(plain.sum()):,} other texts", int(counts[plain].sum()),
+                           float(weighted[plain].sum()), None, "valid", float("nan"), True,
+                           False, int(plain.sum())))
     return tuple(sorted(out, key=lambda r: r.code == "blank"))
 
 
