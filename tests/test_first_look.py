@@ -271,3 +271,12 @@ def test_look_many_distinct_values_and_texts_share_rows(tmp_path: Path) -> None:
     assert span.codes == frame["W"].nunique() and span.rows == n and span.explained
     assert [c.code for c in note.codes] == ["REFUSED", f"{n - 10:,} other texts"]
     assert note.codes[0].reason == "refused" and note.codes[1].rows == n - 10
+
+
+def test_columns_of_a_file_without_rows_says_so(tmp_path: Path) -> None:
+    from wstats.errors import ReadError
+
+    path = tmp_path / "empty.csv"
+    path.write_text("A,B\n", encoding="utf-8")
+    with pytest.raises(ReadError, match=r"empty\.csv' has no rows; nothing to analyse"):
+        overview.describe_columns(path)

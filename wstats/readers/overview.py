@@ -24,7 +24,8 @@ from typing import Any
 
 import numpy as np
 
-from wstats.readers.dispatch import format_of, read_raw
+from wstats.errors import ReadError
+from wstats.readers.dispatch import file_columns, format_of, read_raw
 from wstats.readers.raw import RawColumn
 
 __all__ = ["TILE_COLUMNS", "ColumnFacts", "FileOverview", "describe_columns",
@@ -131,7 +132,7 @@ def describe_columns(path: str | os.PathLike[str], search: Sequence[str] = (),
     >>> [(c.name, c.distinct) for c in view.columns]  # doctest: +SKIP
     [('SLEEPHRS', 26)]
     """
-    head = read_raw(path, rows=(0, 1), encoding=encoding)
+    head = _first_row(path, encoding)
     words = tuple(w.casefold() for w in search if w.strip())
     chosen = [c for c in head.columns.values() if _matches(c, words)]
     facts = {c.name: _facts(i, c, None) for i, c in enumerate(head.columns.values(), 1)}
@@ -150,6 +151,16 @@ def describe_columns(path: str | os.PathLike[str], search: Sequence[str] = (),
     shown = tuple(facts[c.name] for c in chosen)
     return FileOverview(str(path), head.format, reader, n_rows, len(head.file_columns),
                         tuple(w for w in search if w.strip()), shown)
+
+
+def _first_row(path: str | os.PathLike[str], encoding: str) -> Any:
+    """Read the metadata (and the first row) of every column."""
+    try:
+        return read_raw(path, rows=(0, 1), encoding=encoding)
+    except ReadError:
+        # a file without rows: say so as a read of the whole file does, not of "row 0"
+        read_raw(path, columns=file_columns(path, encoding)[:1], encoding=encoding)
+        raise
 
 
 def _matches(col: RawColumn, words: tuple[str, ...]) -> bool:
