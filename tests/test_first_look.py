@@ -17,6 +17,7 @@ import pytest
 
 import wstats.readers.overview as overview
 from conftest import run_wstats
+from test_render import check_golden
 from wstats.render._columns import columns_csv, columns_json, columns_terminal
 from wstats.render._look import look_json, look_terminal
 from wstats.reports.look import look
@@ -280,3 +281,16 @@ def test_columns_of_a_file_without_rows_says_so(tmp_path: Path) -> None:
     path.write_text("A,B\n", encoding="utf-8")
     with pytest.raises(ReadError, match=r"empty\.csv' has no rows; nothing to analyse"):
         overview.describe_columns(path)
+
+
+@pytest.mark.parametrize("width", [80, 120])
+def test_first_look_screens_golden(sav: tuple[Path, pd.DataFrame], width: int,
+                                   monkeypatch: pytest.MonkeyPatch) -> None:
+    path, _ = sav
+    monkeypatch.chdir(path.parent)  # the screens name the file as given: keep it short
+    columns = columns_terminal(overview.describe_columns(path.name), width=width)
+    looked = look_terminal(look(path.name, ["SLEEP_HRS", "HEALTH", "TOWN"], weight="WT"),
+                           width=width)
+    for name, text in (("columns", columns), ("look", looked)):
+        assert max(len(line) for line in text.splitlines()) <= width
+        check_golden(f"first_look_{name}_{width}.txt", text)

@@ -32,7 +32,10 @@ def look_terminal(result: Any, width: int = 80) -> str:
 
 def _variable(var: Any, width: int, weighted: bool) -> list[str]:
     """Return the lines of one variable."""
-    head = cut(f"{var.name}  {var.label or ''}".rstrip() + f"  ({var.kind})", width)
+    kind = f"({var.kind})"
+    room = width - len(var.name) - len(kind) - 4
+    label = f"  {cut(var.label, room)}" if var.label and room > 3 else ""
+    head = cut(f"{var.name}{label}  {kind}", width)  # the kind stays; the label gives way
     return [head, "=" * min(len(head), width), *_codes(var, width), "",
             *_summary(var, width, weighted), *_chart(var, width, weighted)]
 
