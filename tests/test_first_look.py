@@ -14,6 +14,8 @@ import numpy as np
 import pandas as pd
 import pyreadstat
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 
 import wstats.readers.overview as overview
 from conftest import run_wstats
@@ -294,3 +296,16 @@ def test_first_look_screens_golden(sav: tuple[Path, pd.DataFrame], width: int,
     for name, text in (("columns", columns), ("look", looked)):
         assert max(len(line) for line in text.splitlines()) <= width
         check_golden(f"first_look_{name}_{width}.txt", text)
+
+
+@settings(max_examples=60, deadline=None)
+@given(st.lists(st.tuples(st.integers(0, 30), st.floats(0.01, 50.0)), min_size=1, max_size=60))
+def test_quartiles_agree_with_numpy(pairs: list[tuple[int, float]]) -> None:
+    from wstats.reports.look_parts import _Distribution
+
+    y = np.array([float(a) for a, _ in pairs])
+    w = np.array([b for _, b in pairs])
+    # the lower weighted quantile min{y : F(y) >= p}: numpy's inverted_cdf with weights
+    # (numpy documentation, numpy.quantile; Hyndman & Fan 1996, definition 1)
+    want = np.quantile(y, [0.25, 0.5, 0.75], weights=w, method="inverted_cdf")
+    assert _Distribution.of(y, w).quantiles([0.25, 0.5, 0.75]) == tuple(want.tolist())

@@ -142,9 +142,11 @@ def summary(col: RawColumn, dec: DecodedColumn, codes: tuple[CodeRow, ...], w: n
     bars: tuple[Bar, ...] = ()
     if dec.numeric:
         y, wv = dec.values[valid], w[valid]
-        stats = _moments(y, wv)
-        chart, bars = (("frequency", _levels(y, wv, dec.value_labels))
-                       if dec.kind in CATEGORICAL else ("histogram", _histogram(y, wv, bins)))
+        dist = _Distribution.of(y, wv)  # one sort serves the quartiles and the chart
+        stats = _moments(y, wv, dist)
+        chart, bars = (("frequency", _levels(dist, dec.value_labels))
+                       if dec.kind in CATEGORICAL else ("histogram", _histogram(y, wv, dist,
+                                                                               bins)))
     elif dec.kind in CATEGORICAL:
         chart, bars = "frequency", _text_levels(np.asarray(dec.values)[valid], w[valid])
     return VariableLook(dec.name, dec.label, dec.kind, "number" if col.numeric else "text",
@@ -152,7 +154,29 @@ def summary(col: RawColumn, dec: DecodedColumn, codes: tuple[CodeRow, ...], w: n
                         stats[3], stats[4], reasons, chart, bars)
 
 
-def _moments(y: np.ndarray, w: np.ndarray
+@dataclass(frozen=True)
+class _Distribution:
+    """The distinct valid values with their rows and weights, in increasing order."""
+
+    levels: np.ndarray
+    counts: np.ndarray
+    weighted: np.ndarray
+
+    @classmethod
+    def of(cls, y: np.ndarray, w: np.ndarray) -> _Distribution:
+        """Sort *y* once and sum the weights per distinct value."""
+        levels, inverse, counts = np.unique(y, return_inverse=True, return_counts=True)
+        return cls(levels, counts, np.bincount(inverse, weights=w, minlength=len(levels)))
+
+    def quantiles(self, probabilities: list[float]) -> tuple[float, ...]:
+        """Return min{y : F(y) >= p} per p, F the weighted distribution function (cumulative
+        weights compared with a relative tolerance of 1e-10, as the estimates do)."""
+        cum = np.cumsum(self.weighted)
+        at = np.searchsorted(cum, np.asarray(probabilities) * cum[-1] * (1 - 1e-10))
+        return tuple(float(v) for v in self.levels[np.minimum(at, len(self.levels) - 1)])
+
+
+def _moments(y: np.ndarray, w: np.ndarray, dist: _Distribution
              ) -> tuple[float, float, tuple[float, float, float], float, float]:
     """Return mean, weighted mean, weighted quartiles, min and max (NaN when empty)."""
     nan = float("nan")
@@ -161,21 +185,19 @@ def _moments(y: np.ndarray, w: np.ndarray
     total = float(w.sum())
     if total > 0:
         wmean = float(np.dot(w, y) / total)
-        q = np.quantile(y, [0.25, 0.5, 0.75], weights=w, method="inverted_cdf")
-        quartiles = (float(q[0]), float(q[1]), float(q[2]))
+        q1, q2, q3 = dist.quantiles([0.25, 0.5, 0.75])
+        quartiles = (q1, q2, q3)
     else:
         wmean, quartiles = nan, (nan, nan, nan)
-    return float(y.mean()), wmean, quartiles, float(y.min()), float(y.max())
+    return float(y.mean()), wmean, quartiles, float(dist.levels[0]), float(dist.levels[-1])
 
 
-def _levels(y: np.ndarray, w: np.ndarray, labels: dict[float, str]) -> tuple[Bar, ...]:
+def _levels(dist: _Distribution, labels: dict[float, str]) -> tuple[Bar, ...]:
     """Return a bar per valid level: its label (else its code) and weighted share."""
-    levels, inverse, counts = np.unique(y, return_inverse=True, return_counts=True)
-    weighted = np.bincount(inverse, weights=w, minlength=len(levels))
-    total = float(weighted.sum()) or float("nan")
+    total = float(dist.weighted.sum()) or float("nan")
     return tuple(Bar(labels.get(v) or f"{v:g}", v, v, float(s / total), int(k))
-                 for v, s, k in zip(levels.tolist(), weighted.tolist(), counts.tolist(),
-                                    strict=True))
+                 for v, s, k in zip(dist.levels.tolist(), dist.weighted.tolist(),
+                                    dist.counts.tolist(), strict=True))
 
 
 def _text_levels(text: np.ndarray, w: np.ndarray) -> tuple[Bar, ...]:
@@ -190,13 +212,13 @@ def _text_levels(text: np.ndarray, w: np.ndarray) -> tuple[Bar, ...]:
                                     strict=True))
 
 
-def _histogram(y: np.ndarray, w: np.ndarray, bins: int) -> tuple[Bar, ...]:
+def _histogram(y: np.ndarray, w: np.ndarray, dist: _Distribution,
+               bins: int) -> tuple[Bar, ...]:
     """Return a bar per value (few values) or per equal-width bin, weighted shares."""
     if not len(y):
         return ()
-    levels = np.unique(y)
-    if len(levels) <= bins:
-        return _levels(y, w, {})
+    if len(dist.levels) <= bins:
+        return _levels(dist, {})
     weighted, edges = np.histogram(y, bins=bins, weights=w)
     counts, _ = np.histogram(y, bins=edges)
     total = float(weighted.sum()) or float("nan")
