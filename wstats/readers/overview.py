@@ -138,19 +138,29 @@ def describe_columns(path: str | os.PathLike[str], search: Sequence[str] = (),
     facts = {c.name: _facts(i, c, None) for i, c in enumerate(head.columns.values(), 1)}
     n_rows, reader = None, head.reader
     if counts and chosen:
-        with ThreadPoolExecutor(1) as counter:  # counts a tile while the next one is read
-            pending: Future[list[Any]] | None = None
-            for table in _tiles(path, [c.name for c in chosen], encoding, progress):
-                n_rows, reader = table.n_rows, table.reader
-                if pending is not None:  # at most two tiles in memory: one read, one counted
-                    _update(facts, pending.result(), n_rows)
-                pending = counter.submit(_count_tile, table.columns)
-                del table
-            if pending is not None:
-                _update(facts, pending.result(), n_rows)
+        n_rows, reader = _count_columns(path, [c.name for c in chosen], facts, encoding,
+                                        progress)
     shown = tuple(facts[c.name] for c in chosen)
     return FileOverview(str(path), head.format, reader, n_rows, len(head.file_columns),
                         tuple(w for w in search if w.strip()), shown)
+
+
+def _count_columns(path: str | os.PathLike[str], names: list[str],
+                   facts: dict[str, ColumnFacts], encoding: str, progress: bool
+                   ) -> tuple[int | None, str]:
+    """Count the named columns tile by tile into *facts*; return the rows and the reader."""
+    n_rows, reader = None, ""
+    with ThreadPoolExecutor(1) as counter:  # counts a tile while the next one is read
+        pending: Future[list[Any]] | None = None
+        for table in _tiles(path, names, encoding, progress):
+            n_rows, reader = table.n_rows, table.reader
+            if pending is not None:  # at most two tiles in memory: one read, one counted
+                _update(facts, pending.result(), n_rows)
+            pending = counter.submit(_count_tile, table.columns)
+            del table
+        if pending is not None:
+            _update(facts, pending.result(), n_rows)
+    return n_rows, reader
 
 
 def _first_row(path: str | os.PathLike[str], encoding: str) -> Any:
@@ -191,7 +201,8 @@ def _metadata_of(col: RawColumn) -> RawColumn:
     """Return *col* without its data (an empty array of the same type)."""
     import dataclasses
 
-    return dataclasses.replace(col, data=col.data[:0], tags=None)
+    # a fresh empty array: a slice would keep the whole column alive through its base
+    return dataclasses.replace(col, data=np.empty(0, dtype=col.data.dtype), tags=None)
 
 
 def _update(facts: dict[str, ColumnFacts],
