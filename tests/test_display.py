@@ -16,9 +16,9 @@ from wstats.render import (
     BOUNDS_RENDERERS,
     ESTIMATE_RENDERERS,
     NONRESPONSE_RENDERERS,
-    _plain_text,
-    show_text,
+    plain_text,
 )
+from wstats.render._show import show_text
 
 
 @pytest.fixture(scope="module")
@@ -31,6 +31,7 @@ def results(tmp_path_factory: pytest.TempPathFactory) -> dict[str, object]:
     data = wstats.read(path, ["SLEEP", "SMOKE", "WT", "STRAT", "PSU"], codebook=book)
     design = wstats.Design("WT", strata="STRAT", psu="PSU")
     return {"estimate": wstats.estimate(data, design, ["SLEEP", "SMOKE"]),
+            "compare": wstats.compare(data, design, ["SLEEP"], by="SMOKE"),
             "nonresponse": wstats.nonresponse(data, design, ["SLEEP"]),
             "bounds": wstats.bounds(data, design, "SMOKE")}
 
@@ -39,8 +40,8 @@ def test_estimate_repr_is_the_terminal_table_with_the_design_line(results: dict)
     table = results["estimate"]
     text = repr(table)
     assert text == show_text(table)
-    assert show_text(table, width=100) == _plain_text(ESTIMATE_RENDERERS["terminal"](table),
-                                                      100).rstrip("\n")
+    assert show_text(table, width=100) == plain_text(ESTIMATE_RENDERERS["terminal"](table),
+                                                     None, 100).rstrip("\n")
     assert "Design: weight WT" in text and "SLEEP" in text and "array(" not in text
     assert table._repr_html_() == ESTIMATE_RENDERERS["html"](table)
 
@@ -48,7 +49,7 @@ def test_estimate_repr_is_the_terminal_table_with_the_design_line(results: dict)
 def test_nonresponse_repr_and_html(results: dict) -> None:
     table = results["nonresponse"]
     assert repr(table) == show_text(table)
-    assert "Design: weight WT" in repr(table) and "Nonresponse" in repr(table)
+    assert "Design: weight WT" in repr(table) and "nonresponse" in repr(table)
     assert table._repr_html_() == NONRESPONSE_RENDERERS["html"](table)
 
 
@@ -62,6 +63,12 @@ def test_bounds_frame_shows_the_bounds_table_and_stays_a_frame(results: dict) ->
     part = frame.head(1)  # a slice is a plain frame again, with pandas' own repr
     assert type(part) is pd.DataFrame and "estimate" in repr(part)
     assert part["estimate"].iloc[0] == frame["estimate"].iloc[0]
+
+
+def test_comparison_shows_itself(results: dict) -> None:
+    comparison = results["compare"]
+    assert repr(comparison) == show_text(comparison) and "SLEEP" in repr(comparison)
+    assert comparison._repr_html_().startswith("<pre>")  # no html format: the text
 
 
 def test_without_the_render_layer_a_result_shows_a_summary(

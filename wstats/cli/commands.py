@@ -15,6 +15,7 @@ from wstats.cli.args import (
     add_bounds_args,
     add_codebook_args,
     add_columns_args,
+    add_compare_args,
     add_convert_args,
     add_demo_args,
     add_estimate_args,
@@ -36,10 +37,11 @@ from wstats.cli.common import (
     _load_codebook,
     _not_an_input,
     _print_rich,
+    _provenance,
     _read,
 )
 from wstats.cli.first_look import run_columns, run_look
-from wstats.errors import UsageError
+from wstats.errors import UsageError, require_package
 
 __all__ = ["COMMANDS"]
 
@@ -52,20 +54,54 @@ def _run_estimate(args: argparse.Namespace) -> int:
     design = design_from(args, codebook)
     ratios = [ratio_pair(r) for r in args.ratio]
     variables = list(args.variables)
-    needed = needed_columns([*variables, *[x for r in ratios for x in r], *args.by],
+    if not variables and not ratios:
+        raise UsageError("wstats estimate: name at least one VAR or give --ratio NUM/DEN "
+                         "(see 'wstats estimate --help')")
+    age = [args.age_adjust] if args.age_adjust else []
+    needed = needed_columns([*variables, *[x for r in ratios for x in r], *args.by, *age],
                             design, args.where, args.data)
     data = _read(args, codebook, needed)
     table = estimate(
-        data, design, variables, statistics=split_list([args.stats]) or None, by=args.by,
+        data, design, variables, statistics=split_list([args.statistics]) or None, by=args.by,
         where=args.where, categorical=args.categorical, ratios=ratios,
         quantiles=[float(q) for q in split_list([args.quantiles])], level=args.level,
-        proportion_ci=args.proportion_ci, reliability=_standard(args.standard),
+        proportion_ci=args.proportion_ci, reliability=_standard(_reliability_name(args)),
+        margins=args.margins, age_adjust=args.age_adjust,
+        standard=args.standard if args.age_adjust else None,
     )
     _emit(table, "estimate", args, [args.data], args.codebook)
     if args.plot:
         from wstats.reports.plots import plot_domains
 
-        plot_domains(table, Path(args.plot), overwrite=args.overwrite)
+        plot_domains(table, Path(args.plot), overwrite=args.overwrite,
+                     provenance=_provenance(table, [args.data], args.codebook))
+    return 0
+
+
+def _reliability_name(args: argparse.Namespace) -> str:
+    """Return the reliability standard: --reliability, else --standard without --age-adjust."""
+    if args.reliability:
+        return str(args.reliability)
+    if args.standard and not args.age_adjust:
+        return str(args.standard)
+    return "nchs-2017"
+
+
+def _run_compare(args: argparse.Namespace) -> int:
+    parse_rows(args.rows)
+    _check_outputs(args, [args.data, args.codebook, args.standard])
+    from wstats.reports.compare import compare
+
+    codebook = _load_codebook(args.codebook)
+    design = design_from(args, codebook)
+    age = [args.age_adjust] if args.age_adjust else []
+    needed = needed_columns([*args.variables, args.by, *age], design, args.where, args.data)
+    data = _read(args, codebook, needed)
+    result = compare(data, design, args.variables, by=args.by, reference=args.reference,
+                     pairs=args.pairs, adjust_p=args.adjust_p, trend=args.trend,
+                     reasons=args.reasons, where=args.where, categorical=args.categorical,
+                     level=args.level, age_adjust=args.age_adjust, standard=args.standard)
+    _emit(result, "compare", args, [args.data], args.codebook)
     return 0
 
 
@@ -73,8 +109,9 @@ def _standard(name: str) -> Any:
     from wstats.estimation.reliability import STANDARDS
 
     if name not in STANDARDS:
-        raise UsageError(f"--standard '{name}' is unknown; choose one of "
-                         f"{', '.join(STANDARDS)}")
+        raise UsageError(f"reliability standard '{name}' is unknown; choose one of "
+                         f"{', '.join(STANDARDS)} (a standard population for age adjustment "
+                         "needs --age-adjust AGEVAR)")
     return STANDARDS[name]
 
 
@@ -90,11 +127,13 @@ def _run_nonresponse(args: argparse.Namespace) -> int:
     table = nonresponse(data, design, args.variables, by=args.by, where=args.where,
                         level=args.level, count_invalid=not args.exclude_invalid,
                         sort_worst=args.worst_first, not_asked=tuple(split_list([args.not_asked])))
-    _emit(table, "nonresponse", args, [args.data], args.codebook)
+    _emit(table.showing_shares() if args.shares else table, "nonresponse", args, [args.data],
+          args.codebook)
     if args.plot:
         from wstats.reports.plots import plot_reasons
 
-        plot_reasons(table, Path(args.plot), overwrite=args.overwrite)
+        plot_reasons(table, Path(args.plot), overwrite=args.overwrite,
+                     provenance=_provenance(table, [args.data], args.codebook))
     return 0
 
 
@@ -108,21 +147,22 @@ def _run_bounds(args: argparse.Namespace) -> int:
     data = _read(args, codebook, needed_columns([*args.variables, *args.by], design,
                                                 args.where, args.data))
     frame = bounds(data, design, args.variables, by=args.by, where=args.where,
-                   level=args.level, reasons=tuple(split_list([args.unknown])))
-    frame.attrs.setdefault("design", design.bind(data).summary())
+                   level=args.level, reasons=tuple(split_list([args.unknown])),
+                   reliability=_standard(args.standard))
     _emit(frame, "bounds", args, [args.data], args.codebook)
     return 0
 
 
 def _run_table(args: argparse.Namespace) -> int:
-    from wstats.render import check_available
     from wstats.reports.tables import build_table, load_table_spec
 
     spec = load_table_spec(args.spec)
-    for fmt in (format_for(args), *(f for _, f in spec.outputs)):
-        check_available(fmt)  # a missing library is said before any work is done
     if format_for(args) in ("xlsx", "docx") and not args.output:
         raise UsageError(f"{format_for(args)} output needs -o FILE.{format_for(args)}")
+    wanted = {format_for(args)} if args.output or args.format else {f for _, f in spec.outputs}
+    for fmt, feature in (("xlsx", "xlsx files"), ("docx", "Word files")):
+        if fmt in wanted:
+            require_package(feature, str(args.spec))  # before any work is done
     table = build_table(spec, progress=sys.stderr.isatty())
     if not args.output and not args.format and table.outputs:
         from wstats.render import write_table
@@ -202,6 +242,10 @@ COMMANDS: dict[str, Command] = {
         "wstats estimate survey.xpt sl_hours hs_rate --weight wt_final --strata ds_strat "
         "--psu ds_psu --by dm_age5 --codebook codebook.toml",
         add_estimate_args, _run_estimate),
+    "compare": Command(
+        "differences between groups with design-based SEs, Rao-Scott and Wald tests, trends",
+        "wstats compare survey.xpt bd_bmi hs_rate --by dm_age5 --codebook codebook.toml",
+        add_compare_args, _run_compare),
     "nonresponse": Command(
         "counts and weighted shares of every missing reason; item nonresponse rates",
         "wstats nonresponse survey.xpt sl_hours fd_fruit --codebook codebook.toml --worst-first",

@@ -5,12 +5,18 @@ One registry per result type maps a format name to ``f(table, provenance=None)``
 - :data:`ESTIMATE_RENDERERS` for :class:`~wstats.estimation.results.EstimateTable`,
 - :data:`NONRESPONSE_RENDERERS` for ``NonresponseTable``,
 - :data:`TABLE_RENDERERS` for ``PublicationTable`` (also ``docx``, a Word document),
+- :data:`COMPARE_RENDERERS` for a ``Comparison``,
 - :data:`COLUMNS_RENDERERS` and :data:`LOOK_RENDERERS` for the first-look results.
+
+Results show themselves in a Python session through these registries: importing this
+package registers :func:`wstats.render._show.show_text` and ``show_html`` with
+:mod:`wstats.estimation.display`.
 
 Text formats return ``str``, ``xlsx`` returns ``bytes`` and ``terminal`` a rich renderable.
 Every written format carries the provenance record (``provenance=None`` falls back to the
 table's own, or to a minimal record). The ``xlsx`` entries are absent when openpyxl is not
-installed. Nothing here prints; the command line does.
+installed; ``docx`` is always listed (the command line says how to install python-docx
+before any work is done). Nothing here prints; the command line does.
 """
 
 from __future__ import annotations
@@ -22,7 +28,6 @@ from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
 from wstats.errors import OutputError
-from wstats.estimation.display import register as register_display
 
 if TYPE_CHECKING:
     from wstats.reports.tables import PublicationTable
@@ -30,15 +35,15 @@ if TYPE_CHECKING:
 __all__ = [
     "BOUNDS_RENDERERS",
     "COLUMNS_RENDERERS",
+    "COMPARE_RENDERERS",
     "ESTIMATE_RENDERERS",
-    "LOOK_RENDERERS",
     "FORMATS",
+    "LOOK_RENDERERS",
     "NONRESPONSE_RENDERERS",
     "TABLE_RENDERERS",
-    "check_available",
+    "plain_text",
     "render_check",
-    "show_html",
-    "show_text",
+    "with_provenance",
     "write_table",
 ]
 
@@ -89,10 +94,11 @@ def _each_module(kind: str) -> _Registry:
 
 ESTIMATE_RENDERERS: MutableMapping[str, Renderer] = _each_module("estimate")
 NONRESPONSE_RENDERERS: MutableMapping[str, Renderer] = _each_module("nonresponse")
-# Word tables are always offered: check_available() says how to install python-docx, and
-# the command line asks it before any work is done.
 TABLE_RENDERERS: MutableMapping[str, Renderer] = _Registry(
     {**{fmt: (f"_{fmt}", f"table_{fmt}") for fmt in _FORMATS}, "docx": ("_docx", "table_docx")})
+#: renderers of a comparison (``wstats.compare``)
+COMPARE_RENDERERS: MutableMapping[str, Renderer] = _Registry(
+    {fmt: ("_compare", f"compare_{fmt}") for fmt in ("terminal", "markdown", "csv", "json")})
 BOUNDS_RENDERERS: MutableMapping[str, Renderer] = _Registry(
     {fmt: ("_bounds", f"bounds_{fmt}") for fmt in ("terminal", "markdown", "csv", "json")})
 #: ``wstats columns`` (a FileOverview): terminal text at a given width, JSON, CSV
@@ -121,17 +127,6 @@ SUFFIX_FORMATS: dict[str, str] = {
 }
 
 
-def check_available(fmt: str) -> None:
-    """Raise OutputError (one line with the ``pip install`` to run) when *fmt* needs a package
-    that is not installed; call it before any work is done."""
-    if fmt == "docx":
-        from wstats.render._docx import missing_library
-
-        problem = missing_library()
-        if problem:
-            raise OutputError(problem)
-
-
 def write_table(table: PublicationTable, overwrite: bool = False) -> list[Path]:
     """Write a publication table to every output its spec names.
 
@@ -145,11 +140,11 @@ def write_table(table: PublicationTable, overwrite: bool = False) -> list[Path]:
     list of Path
         The files written, in spec order.
     """
+    from wstats.errors import require_package
     from wstats.readers.output import atomic_write
 
-    for _path, fmt in table.outputs:
-        if fmt in TABLE_RENDERERS:
-            check_available(fmt)
+    if any(fmt == "docx" for _, fmt in table.outputs):
+        require_package("Word files", "", OutputError)  # before any file is written
     written = []
     for path, fmt in table.outputs:
         if fmt not in TABLE_RENDERERS:
@@ -157,14 +152,26 @@ def write_table(table: PublicationTable, overwrite: bool = False) -> list[Path]:
                               "not installed (xlsx: pip install openpyxl)")
         data = TABLE_RENDERERS[fmt](table, provenance=table.provenance)
         if fmt == "terminal":
-            data = _plain_text(data)
+            data = plain_text(data, table.provenance)
         atomic_write(Path(path), data, overwrite=overwrite)
         written.append(Path(path))
     return written
 
 
-def _plain_text(renderable: Any, width: int = 100) -> str:
-    """Return a rich renderable drawn as plain text at a fixed width."""
+def plain_text(renderable: Any, provenance: Mapping[str, Any] | None = None,
+               width: int = 100) -> str:
+    """Return a rich renderable drawn as plain text at a fixed width, provenance below.
+
+    Parameters
+    ----------
+    renderable : what a ``terminal`` renderer returned.
+    provenance : the record to append (None: none, for the screen).
+    width : columns of the drawing.
+
+    Returns
+    -------
+    str
+    """
     import io
 
     from rich.console import Console
@@ -172,52 +179,46 @@ def _plain_text(renderable: Any, width: int = 100) -> str:
     buf = io.StringIO()
     Console(file=buf, width=width, color_system=None, force_terminal=False,
             legacy_windows=False).print(renderable)
-    return buf.getvalue()
+    return with_provenance(buf.getvalue(), "text", provenance)
 
 
-#: result type name -> registry key, for results that show themselves
-#: (see wstats.estimation.display)
-_SHOWN = {"EstimateTable": "estimate", "NonresponseTable": "nonresponse",
-          "BoundsFrame": "bounds", "PublicationTable": "table", "LookResult": "look",
-          "FileOverview": "columns"}
+def with_provenance(text: str, fmt: str, provenance: Mapping[str, Any] | None) -> str:
+    """Return *text* carrying its provenance the way its format allows comments.
 
-
-def _registry(kind: str) -> MutableMapping[str, Renderer]:
-    """Return the renderer registry of a result kind."""
-    registry: MutableMapping[str, Renderer] = globals()[f"{kind.upper()}_RENDERERS"]
-    return registry
-
-
-def show_text(obj: Any, width: int | None = None) -> str | None:
-    """Return a result drawn as the terminal shows it (None for an object of another type).
-
-    The width is the terminal's (100 when it cannot be told); text, not colour.
+    ``text``: a block after a blank line; ``markdown``: an HTML comment first; ``latex``:
+    ``%`` lines first. No provenance: *text* unchanged.
     """
-    kind = _SHOWN.get(type(obj).__name__)
-    if kind is None:
-        return None
-    import shutil
+    from wstats.render._grid import provenance_lines
 
-    width = width or shutil.get_terminal_size((100, 24)).columns
-    drawn = _registry(kind)["terminal"](obj, **({"width": width} if kind in ("look", "columns")
-                                                 else {}))
-    text = drawn if isinstance(drawn, str) else _plain_text(drawn, width)
-    return text.rstrip("\n")
-
-
-def show_html(obj: Any) -> str | None:
-    """Return a result as the ``--format html`` renderer draws it (pre-formatted terminal text
-    for results that have no HTML format); None for an object of another type."""
-    kind = _SHOWN.get(type(obj).__name__)
-    if kind is None:
-        return None
-    registry = _registry(kind)
-    if "html" in registry:
-        html: str = registry["html"](obj)
-        return html
-    import html as escape
-
-    return f"<pre>{escape.escape(show_text(obj) or '')}</pre>"
+    if not provenance:
+        return text
+    lines = ["wstats provenance", *provenance_lines(provenance)]
+    if fmt == "markdown":
+        return "\n".join(["<!--", *(ln.replace("--", "- -") for ln in lines), "-->", ""]) + text
+    if fmt == "latex":
+        return "".join(f"% {ln}\n" for ln in lines) + text
+    return text.rstrip("\n") + "\n\n" + "".join(f"  {ln}\n" for ln in lines)
 
 
-register_display(show_text, show_html)
+def _show_text(obj: Any) -> str | None:
+    """Draw a result as terminal text (the module is imported on the first ``repr``)."""
+    from wstats.render._show import show_text
+
+    return show_text(obj)
+
+
+def _show_html(obj: Any) -> str | None:
+    """Draw a result as HTML (the module is imported on the first notebook display)."""
+    from wstats.render._show import show_html
+
+    return show_html(obj)
+
+
+def _register_display() -> None:
+    """Let results show themselves (see :mod:`wstats.estimation.display`)."""
+    from wstats.estimation.display import register
+
+    register(_show_text, _show_html)
+
+
+_register_display()

@@ -100,6 +100,12 @@ class NonresponseTable:
         """Show the table as the ``--format html`` renderer does (notebooks)."""
         return as_html(self)
 
+    def showing_shares(self) -> NonresponseTable:
+        """Return the same table set to display weighted shares instead of row counts."""
+        import dataclasses
+
+        return dataclasses.replace(self, settings={**self.settings, "display": "shares"})
+
     def to_pandas(self) -> pd.DataFrame:
         """Return a copy of the frame."""
         return self.frame.copy()
@@ -268,7 +274,7 @@ def _reason_sums(data: Dataset, design: Design, names: list[str], by: Sequence[s
     The domains are the estimation engine's own (same rows, same order as its estimates):
     row 0 the population, then the crossed by-cells.
     """
-    from wstats.estimation.estimate import _domains
+    from wstats.estimation.domain_setup import build_domains as _domains
 
     bound = design.bind(data)
     domains, _ = _domains(data, bound, list(by), where)
@@ -356,7 +362,8 @@ def _settings(counted: tuple[str, ...], skip: tuple[str, ...], count_invalid: bo
             "not_asked": list(skip), "denominator": f"asked (not {', '.join(skip)})",
             "weight": design.weight,
             "proportion_ci": "korn-graubard", "level": est.level, "df_rule":
-            est.settings.get("df_rule"), "definition": definition,
+            est.settings.get("df_rule"), "df_range": est.settings.get("df_range"),
+            "where": est.settings.get("where"), "definition": definition,
             "title": "Item nonresponse", "threshold": NCES_MIN_RESPONSE}
 
 
