@@ -309,3 +309,17 @@ def test_quartiles_agree_with_numpy(pairs: list[tuple[int, float]]) -> None:
     # (numpy documentation, numpy.quantile; Hyndman & Fan 1996, definition 1)
     want = np.quantile(y, [0.25, 0.5, 0.75], weights=w, method="inverted_cdf")
     assert _Distribution.of(y, w).quantiles([0.25, 0.5, 0.75]) == tuple(want.tolist())
+
+
+def test_histogram_bins_have_round_edges(tmp_path: Path) -> None:
+    rng = np.random.default_rng(9)
+    path = tmp_path / "ages.csv"
+    ages = rng.integers(18, 100, 2000).astype(float)
+    pd.DataFrame({"AGE": ages}).to_csv(path, index=False)
+    (var,) = look(path, ["AGE"]).variables
+    lows = [b.low for b in var.bars]
+    assert lows == [10.0, 20.0, 30.0, 40.0, 50.0, 60.0, 70.0, 80.0, 90.0]
+    assert var.bars[-1].high == 100.0 and var.bars[0].text == "10 to 20"
+    # rows per bin [a, b), counted here with numpy (common practice, no source)
+    assert [b.rows for b in var.bars] == np.histogram(ages, bins=np.arange(10, 101, 10))[0].tolist()
+    assert "holds a up to, not including, b" in look_terminal(look(path, ["AGE"]))

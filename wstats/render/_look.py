@@ -91,6 +91,9 @@ def _chart(var: Any, width: int, weighted: bool) -> list[str]:
         share = f"{100 * b.share:5.1f}%" if b.share == b.share else "    -"
         lines.append(f"{cut(b.text, text_w).ljust(text_w)}  {share}  "
                      f"{bar(b.share / peak, room)}".rstrip())
+    if any(b.low < b.high for b in var.bars):  # bins, not single values (nor texts)
+        lines.append(cut("a bin 'a to b' holds a up to, not including, b (the last holds b)",
+                         width))
     return lines
 
 

@@ -219,9 +219,29 @@ def _histogram(y: np.ndarray, w: np.ndarray, dist: _Distribution,
         return ()
     if len(dist.levels) <= bins:
         return _levels(dist, {})
-    weighted, edges = np.histogram(y, bins=bins, weights=w)
+    edges = _round_edges(float(dist.levels[0]), float(dist.levels[-1]), bins)
+    weighted, _ = np.histogram(y, bins=edges, weights=w)
     counts, _ = np.histogram(y, bins=edges)
     total = float(weighted.sum()) or float("nan")
-    return tuple(Bar(f"{lo:.4g} to {hi:.4g}", float(lo), float(hi), float(s / total), int(k))
+    return tuple(Bar(f"{lo:g} to {hi:g}", float(lo), float(hi), float(s / total), int(k))
                  for lo, hi, s, k in zip(edges[:-1].tolist(), edges[1:].tolist(),
                                          weighted.tolist(), counts.tolist(), strict=True))
+
+
+def _round_edges(low: float, high: float, bins: int) -> np.ndarray:
+    """Return equal-width bin edges of a round width (1, 2, 2.5 or 5 times a power of ten),
+    at most *bins* bins, covering [low, high]; each bin is [a, b), the last [a, b]."""
+    raw = (high - low) / bins
+    power = 10.0 ** np.floor(np.log10(raw))
+    step = next(f * power for f in (1.0, 2.0, 2.5, 5.0, 10.0) if f * power >= raw)
+    start = np.floor(low / step) * step
+    count = max(int(np.ceil((high - start) / step)), 1)
+    while start + (count - 1) * step > high:  # no empty bin past the top
+        count -= 1
+    if count > bins:  # the floor of low moved the edges down: one step wider
+        step = next(f * power for f in (2.0, 2.5, 5.0, 10.0, 20.0) if f * power > step)
+        start = np.floor(low / step) * step
+        count = max(int(np.ceil((high - start) / step)), 1)
+    edges: np.ndarray = start + step * np.arange(count + 1)
+    return edges
+
