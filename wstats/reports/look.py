@@ -20,7 +20,7 @@ Conventions:
   ``method="inverted_cdf"`` and weights), the definition the estimates use.
 - Chart: a weighted share per level for categorical, binary and text variables; otherwise a
   weighted histogram of the valid values (one bar per value when there are at most
-  :data:`HISTOGRAM_BINS` distinct values, else that many equal-width bins).
+  :data:`HISTOGRAM_BINS` distinct values, else at most that many bins of a round width).
 """
 
 from __future__ import annotations
