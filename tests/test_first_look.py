@@ -323,3 +323,11 @@ def test_histogram_bins_have_round_edges(tmp_path: Path) -> None:
     # rows per bin [a, b), counted here with numpy (common practice, no source)
     assert [b.rows for b in var.bars] == np.histogram(ages, bins=np.arange(10, 101, 10))[0].tolist()
     assert "holds a up to, not including, b" in look_terminal(look(path, ["AGE"]))
+
+
+def test_look_refuses_a_text_weight(sav: tuple[Path, pd.DataFrame]) -> None:
+    from wstats.errors import WeightError
+
+    path, _ = sav
+    with pytest.raises(WeightError, match=r"weight column 'TOWN' holds text"):
+        look(path, ["HEALTH"], weight="TOWN")

@@ -33,7 +33,7 @@ import numpy as np
 from wstats.decoding.codebook import Codebook
 from wstats.decoding.columns import DecodedColumn
 from wstats.decoding.decode import decode_column, new_vocabulary
-from wstats.errors import ColumnError
+from wstats.errors import ColumnError, WeightError
 from wstats.readers.dispatch import read_raw
 from wstats.readers.raw import RawColumn
 from wstats.reports.look_parts import code_rows, summary
@@ -76,18 +76,8 @@ def look(path: str | os.PathLike[str], variables: Sequence[str], *,
     >>> result.variables[0].reasons  # doctest: +SKIP
     {'dont_know': 212, 'refused': 97}
     """
-    from wstats.decoding.codebook import load_codebook
-
-    book = (load_codebook(os.fspath(codebook)) if isinstance(codebook, (str, os.PathLike))
-            else codebook or Codebook())
-    names = list(dict.fromkeys(variables))
-    if not names:
-        raise ColumnError("look needs at least one variable; name a column of the file")
-    for name in names:
-        if name in book.derived:
-            inputs = ", ".join(sorted(book.derived[name].expression.inputs)) or "none"
-            raise ColumnError(f"{name} is a derived variable of the codebook and has no raw "
-                              f"codes; look at its inputs ({inputs}) instead")
+    book = _codebook_of(codebook)
+    names = _names(variables, book)
     raw = read_raw(path, columns=list(dict.fromkeys([*names, *([weight] if weight else [])])),
                    rows=rows, encoding=encoding)
     w, left_out = _weights(raw.columns[weight], book) if weight else (np.ones(raw.n_rows), 0)
@@ -96,10 +86,35 @@ def look(path: str | os.PathLike[str], variables: Sequence[str], *,
                       left_out, looks)
 
 
+def _codebook_of(codebook: Codebook | str | os.PathLike[str] | None) -> Codebook:
+    """Return the codebook given, loaded from its path, or an empty one."""
+    from wstats.decoding.codebook import load_codebook
+
+    if isinstance(codebook, (str, os.PathLike)):
+        return load_codebook(os.fspath(codebook))
+    return codebook or Codebook()
+
+
+def _names(variables: Sequence[str], book: Codebook) -> list[str]:
+    """Return the variables, each once, refusing none at all and derived variables."""
+    names = list(dict.fromkeys(variables))
+    if not names:
+        raise ColumnError("look needs at least one variable; name a column of the file")
+    for name in names:
+        if name in book.derived:
+            inputs = ", ".join(sorted(book.derived[name].expression.inputs)) or "none"
+            raise ColumnError(f"{name} is a derived variable of the codebook and has no raw "
+                              f"codes; look at its inputs ({inputs}) instead")
+    return names
+
+
 def _weights(col: RawColumn, book: Codebook) -> tuple[np.ndarray, int]:
     """Return the weights (0 where not a positive number) and how many rows that is."""
+    if not col.numeric:
+        raise WeightError(f"weight column '{col.name}' holds text, not numbers; give a "
+                          "numeric column to --weight")
     values = decode_column(col, book, new_vocabulary(book), ruled=False).column.values
-    w = np.asarray(values, dtype=np.float64) if col.numeric else np.zeros(len(values))
+    w = np.asarray(values, dtype=np.float64)
     bad = ~(np.isfinite(w) & (w > 0))
     return np.where(bad, 0.0, w), int(bad.sum())
 
