@@ -331,3 +331,14 @@ def test_look_refuses_a_text_weight(sav: tuple[Path, pd.DataFrame]) -> None:
     path, _ = sav
     with pytest.raises(WeightError, match=r"weight column 'TOWN' holds text"):
         look(path, ["HEALTH"], weight="TOWN")
+
+
+def test_rows_without_a_positive_weight_count_zero_and_are_reported(tmp_path: Path) -> None:
+    path = tmp_path / "w.csv"
+    pd.DataFrame({"Y": [1.0, 2.0, 3.0, 4.0], "W": [1.0, 0.0, "", 3.0]}).to_csv(path, index=False)
+    res = look(path, ["Y"], weight="W")
+    assert res.unweighted_rows == 2
+    # weighted mean over the rows with a positive weight: (1*1 + 4*3) / 4 (by hand)
+    assert res.variables[0].weighted_mean == pytest.approx(13 / 4)
+    assert res.variables[0].mean == pytest.approx(2.5)
+    assert "2 rows have no positive weight" in look_terminal(res)
