@@ -180,4 +180,3 @@ def _bounds_type() -> type[pd.DataFrame]:
             return as_html(self)
 
     return BoundsFrame
-
