@@ -32,6 +32,8 @@ from wstats.readers.dispatch import read_raw
     ("Inapplicable - not asked", "not_applicable", "not_applicable"),
     ("No answer", "missing", "missing"),
     ("Trifft nicht zu", "not_applicable", "not_applicable"),
+    ("NS/NC", "dont_know", "dont_know"),                # no sabe / no contesta: missing
+    ("Don't know / no answer", "dont_know", "dont_know"),  # gives way to the specific one
     ("Don't know how to use it", None, "dont_know"),   # words besides: not special unless
     ("Refused / Don't know", None, None),               # declared; two reasons: none
     ("Yes", None, None),

@@ -40,7 +40,7 @@ LABEL_WORDS: dict[str, dict[str, tuple[str, ...]]] = {
                "prefer not to say", "prefer not to answer"),
         "de": ("verweigert", "antwort verweigert"),
         "fr": ("refus", "refuse de répondre"),
-        "es": ("rechaza", "se niega", "no responde"),
+        "es": ("rechaza", "se niega", "no quiere responder"),
         "nl": ("weigert", "geweigerd"),
     },
     "not_applicable": {
@@ -57,7 +57,7 @@ LABEL_WORDS: dict[str, dict[str, tuple[str, ...]]] = {
                "unknown", "nonresponse", "non-response"),
         "de": ("keine antwort", "keine angabe", "fehlend", "fehlender wert"),
         "fr": ("non réponse", "non-réponse", "pas de réponse", "non renseigné"),
-        "es": ("sin respuesta", "no contesta", "sin dato"),
+        "es": ("sin respuesta", "no contesta", "no responde", "sin dato", "nc", "nr"),
         "nl": ("geen antwoord", "ontbrekend"),
     },
 }
