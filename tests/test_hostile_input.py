@@ -490,13 +490,15 @@ def test_rows_and_encoding_checked_before_reading(run_cli: Run, folder: Path) ->
 # ---------------------------------------------------------------- 6. special files
 
 @pytest.mark.skipif(not hasattr(os, "mkfifo"), reason="no FIFOs here")
-@pytest.mark.parametrize("command", ["estimate", "columns", "nonresponse", "convert", "draft"])
+@pytest.mark.parametrize("command", ["estimate", "columns", "look", "nonresponse", "convert",
+                                     "draft"])
 def test_fifo_refused_before_opening(run_cli: Run, folder: Path, command: str) -> None:
     fifo = folder / "pipe.csv"
     os.mkfifo(fifo)
     out = folder / "out.parquet"
     argv = {"estimate": ["estimate", fifo, "SLEEP", *DESIGN],
             "columns": ["columns", fifo],
+            "look": ["look", fifo, "SLEEP"],
             "nonresponse": ["nonresponse", fifo, "SLEEP", *DESIGN],
             "convert": ["convert", fifo, out],
             "draft": ["codebook", "draft", fifo]}[command]
