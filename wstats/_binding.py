@@ -23,6 +23,8 @@ from wstats._replicates import (
     replicate_scale,
     resolve_replicate_columns,
 )
+from wstats.design.pooled_binding import Pool, pool_of
+from wstats.design.pooling import file_strata
 from wstats.errors import DesignError, SingletonStratumError, WeightError, did_you_mean
 
 if TYPE_CHECKING:
@@ -54,11 +56,16 @@ def singleton_error(labels: Sequence[str]) -> SingletonStratumError:
 def bind(design: Design, data: Dataset) -> BoundDesign:
     """Validate *design* against *data* and build the BoundDesign (see ``Design.bind``)."""
     src = data.source or "the data"
+    pool = pool_of(design, data)
     cols = _design_columns(design, data, src)
     keep = _complete_rows(design, cols, data.n_rows)
     rows = None if keep is None else np.flatnonzero(keep)
     w = _check_weights(_take(cols["weight"].values, rows), design.weight, rows)
+    if pool is not None:
+        w = pool.rescale(w, rows)
     stratum, labels = _codes(cols.get("strata"), rows, len(w))
+    if pool is not None and not design.shared_psus:
+        stratum, labels = file_strata(stratum, labels, pool.rows(rows), pool.files.stems)
     psu_codes = _codes(cols["psu"], rows, len(w))[0] if design.psu else None
     psu, psu_stratum = _psu_index(stratum, psu_codes)
     n_h = np.bincount(psu_stratum, minlength=len(labels)).astype(np.int64)
@@ -72,11 +79,13 @@ def bind(design: Design, data: Dataset) -> BoundDesign:
             )
         psu_stratum, n_h, f_h, labels = _singletons(design.singleton, psu_stratum, n_h, f_h,
                                                      labels)
-    reps = _replicates(design, data, rows, w, stratum, n_h, src)
+    reps = _replicates(design, data, rows, w, stratum, n_h, src, pool)
     df = float(len(psu_stratum) - len(n_h))
     if reps is not None:
         named = design.strata is not None or design.psu is not None
-        df = replicate_df(design.replicate_method or "", reps[0].shape[1], df if named else None)
+        k = 1 if pool is None or named else pool.files.n_files  # blocks' df add up
+        df = k * replicate_df(design.replicate_method or "", len(reps[1]),
+                              df if named else None)
     return BoundDesign(
         design=design, rows=rows, weights=w, psu=psu, psu_stratum=psu_stratum, n_h=n_h,
         f_h=f_h, stratum_labels=tuple(labels), singleton_strata=singles,
@@ -85,6 +94,7 @@ def bind(design: Design, data: Dataset) -> BoundDesign:
         scale=1.0 if reps is None else reps[2], factors=None if reps is None else reps[3],
         df=df, dropped_rows=0 if rows is None else data.n_rows - len(rows),
         zero_weights=_count(w, lambda part: part == 0),
+        pool=None if pool is None else pool.summary(rows),
     )
 
 
@@ -347,8 +357,13 @@ def _collapse_groups(single: npt.NDArray[np.bool_]) -> Index:
 
 
 def _replicates(design: Design, data: Dataset, rows: Index | None, w: Array, stratum: Codes,
-                n_h: Index, src: str) -> tuple[Array, tuple[str, ...], float, Array] | None:
-    """Return (matrix, columns, scale, factors) of a replicate design, or None."""
+                n_h: Index, src: str, pool: Pool | None
+                ) -> tuple[Array, tuple[str, ...], float, Array] | None:
+    """Return (matrix, columns, scale, factors) of a replicate design, or None.
+
+    Pooled files give one block of replicates per file, each with its own coefficients
+    (folded into the factors; the scale is then 1).
+    """
     if design.replicates is None:
         return None
     names = resolve_replicate_columns(design.replicates, list(data.columns), src)
@@ -365,6 +380,14 @@ def _replicates(design: Design, data: Dataset, rows: Index | None, w: Array, str
             f"replicate-weight column '{names[c]}' has a missing, infinite or negative value "
             f"(row {_row_no(rows, int(r))}); replicate weights must be finite and >= 0"
         )
+    if pool is not None:
+        rep *= pool.factors(rows)[pool.rows(rows)][:, None]  # each file's weight factor
+
+        def factors_of(part: Array, wk: Array, hk: Codes) -> Array:
+            return _replicate_factors(design, part, wk, hk, n_h)
+
+        blocks, coef = pool.replicates(rep, w, rows, stratum, factors_of)
+        return blocks, tuple(names), 1.0, coef
     factors = _replicate_factors(design, rep, w, stratum, n_h)
     method = design.replicate_method or ""
     scale = replicate_scale(method, len(names), design.fay_rho, design.replicate_scale)

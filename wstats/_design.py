@@ -25,6 +25,7 @@ from typing import TYPE_CHECKING, Any
 import numpy as np
 
 from wstats._replicates import resolve_replicate_columns
+from wstats.design.pooling import check_pool_rule
 from wstats.errors import DesignError, did_you_mean
 
 if TYPE_CHECKING:
@@ -76,6 +77,12 @@ class Design:
     drop_incomplete : drop rows with a missing weight/stratum/PSU (reported) instead of failing.
     domain_df : ``design`` (PSUs - strata of the whole design, default) or ``domain`` (only
         strata and PSUs holding domain members).
+    pool : for data pooled from several files: how each file's weights are rescaled,
+        ``equal`` (1/K, default), ``rows`` (n_k/n) or factors summing to 1, one per file
+        (see :mod:`wstats.design.pooling`). Ignored for one file.
+    shared_psus : for pooled files: the files reuse the same strata and PSUs (same codes,
+        same clusters), so the covariance between periods is estimated; by default strata
+        are keyed by (file, stratum) and the periods are independent.
 
     Examples
     --------
@@ -97,6 +104,8 @@ class Design:
     drop_incomplete: bool = False
     domain_df: str = "design"
     extra: dict[str, str] = field(default_factory=dict)
+    pool: str | Sequence[float] = "equal"
+    shared_psus: bool = False
 
     def __post_init__(self) -> None:
         """Check the options that do not need data."""
@@ -105,6 +114,7 @@ class Design:
         _one_of("singleton", self.singleton, SINGLETON_TREATMENTS)
         _one_of("replicate_center", self.replicate_center, ("full", "mean"))
         _one_of("domain_df", self.domain_df, ("design", "domain"))
+        check_pool_rule(self.pool)
         if self.replicates is None:
             if self.replicate_method is not None:
                 raise DesignError(
@@ -201,6 +211,8 @@ class BoundDesign:
     df : design degrees of freedom.
     dropped_rows : rows dropped for a missing weight/stratum/PSU/FPC (``drop_incomplete``).
     zero_weights : rows with weight exactly 0 (kept; they count in n_h but add nothing).
+    pool : how several files were pooled (:func:`wstats.design.pooling.pool_summary`), or
+        None for one file.
     """
 
     design: Design
@@ -219,6 +231,7 @@ class BoundDesign:
     df: float
     dropped_rows: int
     zero_weights: int
+    pool: dict[str, Any] | None = None
 
     @property
     def n_rows(self) -> int:
@@ -269,4 +282,5 @@ class BoundDesign:
             "dropped_rows": self.dropped_rows,
             "zero_weights": self.zero_weights,
             "domain_df": d.domain_df,
+            **({"pool": self.pool} if self.pool is not None else {}),
         }
