@@ -15,7 +15,7 @@ from wstats.errors import UsageError
 __all__ = [
     "OUTPUT_FORMATS", "Parser", "add_bounds_args", "add_codebook_args", "add_columns_args",
     "add_convert_args", "add_demo_args", "add_estimate_args", "add_nonresponse_args",
-    "add_run_args", "add_table_args", "design_from", "format_for", "needed_columns",
+    "add_run_args", "add_table_args", "data_paths", "design_from", "format_for", "needed_columns",
     "one_line", "parse_rows", "ratio_pair", "split_list",
 ]
 
@@ -50,11 +50,18 @@ def _add_design_options(p: argparse.ArgumentParser) -> None:
                    help="drop (and report) rows with a missing weight, stratum or PSU")
     g.add_argument("--domain-df", choices=("design", "domain"), default="design",
                    help="degrees of freedom: whole design (default) or domain strata/PSUs")
+    g.add_argument("--pool", default="equal", metavar="RULE",
+                   help="several files: rescale each file's weights by equal (1/K, default), "
+                        "rows (its share of the rows) or factors F1,F2,... summing to 1")
+    g.add_argument("--shared-psus", action="store_true",
+                   help="several files: they reuse the same strata and PSUs (same codes, same "
+                        "clusters); default: strata are distinct per file")
 
 
 def _add_data_options(p: argparse.ArgumentParser) -> None:
     p.add_argument("data", metavar="DATA", help="survey file (.xpt .sas7bdat .sav .zsav .por "
-                   ".dta .csv .tsv .parquet)")
+                   ".dta .csv .tsv .parquet); several files pool as one analysis: a quoted "
+                   "glob ('period*.xpt'), a folder, or more paths before the variables")
     p.add_argument("--codebook", metavar="FILE", help="codebook TOML applied before estimation")
     p.add_argument("--rows", metavar="START:STOP", help="read only this row range (first look)")
     p.add_argument("--encoding", default="utf-8", metavar="NAME",
@@ -100,6 +107,7 @@ def format_for(args: argparse.Namespace) -> str:
 
 def design_from(args: argparse.Namespace, codebook: Any) -> Any:
     from wstats._design import Design
+    from wstats.design.pooling import parse_pool
 
     base: dict[str, Any] = dict(getattr(codebook, "design", None) or {})
     for key in ("weight", "strata", "psu", "fpc", "singleton", "replicates"):
@@ -123,7 +131,39 @@ def design_from(args: argparse.Namespace, codebook: Any) -> Any:
         replicate_factors=[float(f) for f in factors] if factors else None,
         replicate_center="mean" if args.center_on_replicate_mean else "full",
         drop_incomplete=args.drop_incomplete, domain_df=args.domain_df,
+        pool=parse_pool(args.pool), shared_psus=args.shared_psus,
     )
+
+
+def data_paths(args: argparse.Namespace) -> list[str]:
+    """Return the data files of a command: DATA plus any paths given before the variables.
+
+    A leading VAR that is a path with a data file's suffix, a glob or a folder is a data
+    file; a glob or folder is expanded. *args.data* is set to the list (one file: the path).
+    """
+    from wstats.decoding.stacking import expand_paths, is_several
+
+    extra: list[str] = []
+    names = list(getattr(args, "variables", []) or [])
+    while names and _is_data_path(names[0]):
+        extra.append(names.pop(0))
+    if extra and not names:
+        raise UsageError(f"no variable follows the data files {', '.join(extra)}; name the "
+                         "variables after the files")
+    if hasattr(args, "variables"):
+        args.variables = names
+    given = [args.data, *extra]
+    paths = expand_paths(given) if extra or is_several(args.data) else given
+    args.data = paths if len(given) > 1 or is_several(args.data) else paths[0]
+    return paths
+
+
+def _is_data_path(text: str) -> bool:
+    """Tell whether a positional argument names data (a file with a data suffix, a glob...)."""
+    from wstats._readers import FORMATS
+
+    p = Path(text)
+    return p.suffix.lower() in FORMATS or any(c in text for c in "*?[") or p.is_dir()
 
 
 def add_estimate_args(p: argparse.ArgumentParser) -> None:
@@ -177,8 +217,8 @@ def needed_columns(names: Sequence[str], design: Any, where: str | None, data: s
     if design.replicates is not None:
         from wstats._readers import file_columns
 
-        available = file_columns(data)
-    cols.extend(design.columns(available, source=data))
+        available = file_columns(data if isinstance(data, str) else data[0])
+    cols.extend(design.columns(available, source=data if isinstance(data, str) else data[0]))
     return list(dict.fromkeys(cols))
 
 

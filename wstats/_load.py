@@ -58,7 +58,7 @@ def read(
 
     if is_several(path):
         return _read_several(path, columns, codebook, rows, progress, encoding)
-    if isinstance(codebook, list | tuple):
+    if not (codebook is None or isinstance(codebook, Codebook | str | Path)):
         raise ColumnError("a list of codebooks needs a list of files; give one codebook")
     assert not isinstance(path, list | tuple)
     cb = load_codebook(codebook) if isinstance(codebook, str | Path) else codebook
@@ -117,8 +117,9 @@ def _read_several(path: str | Path | Sequence[str | Path], columns: Sequence[str
         parts.append(read(p, own, cb, rows, progress, encoding))
     for name in wanted or ():
         if not any(name in d.columns for d in parts):
+            known = parts[0].metadata.get("file_columns", [])
             raise ColumnError(f"variable '{name}' is in none of the {len(paths)} files nor a "
-                              f"derived variable{did_you_mean(name, parts[0].metadata.get('file_columns', []))}")
+                              f"derived variable{did_you_mean(name, known)}")
     labels = next((b.labels_for(FILE_COLUMN) for b in books if b and b.labels_for(FILE_COLUMN)),
                   None)
     return stack_datasets(parts, paths, wanted, labels, books)

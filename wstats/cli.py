@@ -26,6 +26,7 @@ from wstats._cli_args import (
     add_nonresponse_args,
     add_run_args,
     add_table_args,
+    data_paths,
     design_from,
     format_for,
     needed_columns,
@@ -157,7 +158,8 @@ def _rich_to_text(renderable: Any) -> str:
 
 def _run_estimate(args: argparse.Namespace) -> int:
     parse_rows(args.rows)  # usage mistakes first, before any file is touched
-    _check_outputs(args, [args.data, args.codebook])
+    paths = data_paths(args)
+    _check_outputs(args, [*paths, args.codebook])
     from wstats._estimate import estimate
 
     codebook = _load_codebook(args.codebook)
@@ -173,7 +175,7 @@ def _run_estimate(args: argparse.Namespace) -> int:
         quantiles=[float(q) for q in split_list([args.quantiles])], level=args.level,
         proportion_ci=args.proportion_ci, reliability=_standard(args.standard),
     )
-    _emit(table, "estimate", args, [args.data], args.codebook)
+    _emit(table, "estimate", args, paths, args.codebook)
     if args.plot:
         from wstats._plots import plot_domains
 
@@ -192,7 +194,8 @@ def _standard(name: str) -> Any:
 
 def _run_nonresponse(args: argparse.Namespace) -> int:
     parse_rows(args.rows)
-    _check_outputs(args, [args.data, args.codebook])
+    paths = data_paths(args)
+    _check_outputs(args, [*paths, args.codebook])
     from wstats._nonresponse import nonresponse
 
     codebook = _load_codebook(args.codebook)
@@ -202,7 +205,7 @@ def _run_nonresponse(args: argparse.Namespace) -> int:
     table = nonresponse(data, design, args.variables, by=args.by, where=args.where,
                         level=args.level, count_invalid=not args.exclude_invalid,
                         sort_worst=args.worst_first, not_asked=tuple(split_list([args.not_asked])))
-    _emit(table, "nonresponse", args, [args.data], args.codebook)
+    _emit(table, "nonresponse", args, paths, args.codebook)
     if args.plot:
         from wstats._plots import plot_reasons
 
@@ -212,7 +215,8 @@ def _run_nonresponse(args: argparse.Namespace) -> int:
 
 def _run_bounds(args: argparse.Namespace) -> int:
     parse_rows(args.rows)
-    _check_outputs(args, [args.data, args.codebook])
+    paths = data_paths(args)
+    _check_outputs(args, [*paths, args.codebook])
     from wstats._nonresponse import bounds
 
     codebook = _load_codebook(args.codebook)
@@ -222,7 +226,7 @@ def _run_bounds(args: argparse.Namespace) -> int:
     frame = bounds(data, design, args.variables, by=args.by, where=args.where,
                    level=args.level, reasons=tuple(split_list([args.unknown])))
     frame.attrs.setdefault("design", design.bind(data).summary())
-    _emit(frame, "bounds", args, [args.data], args.codebook)
+    _emit(frame, "bounds", args, paths, args.codebook)
     return 0
 
 

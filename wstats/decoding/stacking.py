@@ -52,6 +52,12 @@ class PeriodFiles:
     rows : rows read from each file.
     """
 
+    @property
+    def names(self) -> tuple[str, ...]:
+        """The files' names without their folder (with the folder when two names repeat)."""
+        names = tuple(Path(p).name for p in self.paths)
+        return names if len(set(names)) == len(names) else self.paths
+
     paths: tuple[str, ...]
     stems: tuple[str, ...]
     labels: tuple[str, ...]
@@ -120,8 +126,11 @@ def stack_datasets(parts: Sequence[Dataset], paths: Sequence[str],
             vocab.add(extra)
     if any(n not in d.columns for d in parts for n in names):
         vocab.add(NOT_IN_FILE)
-    _warn_codebooks(codebooks, stems)
-    cols = {n: _stack_column(n, parts, stems, vocab, codebooks) for n in names}
+    shown = [Path(p).name for p in paths]  # messages name the files
+    if len(set(shown)) != len(shown):
+        shown = list(paths)
+    _warn_codebooks(codebooks, shown)
+    cols = {n: _stack_column(n, parts, shown, vocab, codebooks) for n in names}
     labels = {float(k + 1): s for k, s in enumerate(stems)}
     labels.update(file_labels or {})
     rows = [d.n_rows for d in parts]

@@ -123,8 +123,8 @@ def _check_every_file(design: Design, data: Dataset, index: Codes,
         absent = col.reasons == code
         if not absent.any():
             continue
-        lacking = sorted({files.stems[int(k)] for k in np.unique(index[absent])})
-        having = [s for s in files.stems if s not in lacking]
+        lacking = sorted({files.names[int(k)] for k in np.unique(index[absent])})
+        having = [s for s in files.names if s not in lacking]
         if name in reps:
             raise DesignError(
                 f"{', '.join(lacking)} has no replicate weight '{name}' but {', '.join(having)} "

@@ -166,8 +166,8 @@ def warn_weight_sums(weights: Array, file_index: Codes, files: PeriodFiles) -> A
     lo, hi = int(np.argmin(sums)), int(np.argmax(sums))
     if sums[lo] > 0 and sums[hi] / sums[lo] > _WEIGHT_SPREAD:
         warnings.warn(
-            f"weights of {files.stems[hi]} sum to {sums[hi]:.6g} but those of "
-            f"{files.stems[lo]} to {sums[lo]:.6g} (more than {_WEIGHT_SPREAD:g}-fold); check "
+            f"weights of {files.names[hi]} sum to {sums[hi]:.6g} but those of "
+            f"{files.names[lo]} to {sums[lo]:.6g} (more than {_WEIGHT_SPREAD:g}-fold); check "
             "that every file's weights estimate the same population",
             WstatsWarning, stacklevel=2)
     return np.asarray(sums, dtype=np.float64)
