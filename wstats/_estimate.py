@@ -99,9 +99,6 @@ def estimate(
     >>> round(float(t.frame["estimate"][0]), 4)
     2.8333
     """
-    from wstats._reliability import DEFAULT_STANDARD, assess
-    from wstats._results import EstimateTable, object_column
-
     stats = _check_options(statistics, level, proportion_ci, quantiles)
     _check_names(data, [*variables, *by, *categorical, *(v for r in ratios for v in r)])
     bound = design.bind(data)
@@ -110,19 +107,34 @@ def estimate(
     ctx = Context(WeightedSums(bound, domains), columns, data.vocabulary, level,
                   per_domain_df=design.domain_df == "domain")
     pieces = _run(ctx, variables, stats, set(categorical), ratios, quantiles, proportion_ci)
-    rows = _columns(pieces, list(by), by_levels, data.vocabulary.names, level)
     _warn(data, bound, variables, domains, by_levels)
+    df_rule = "replicates" if bound.uses_replicates else design.domain_df
+    return table_of(pieces, by, by_levels, data.vocabulary.names, level, proportion_ci,
+                    reliability, bound.summary(), {"df_rule": df_rule})
+
+
+def table_of(pieces: list[Piece], by: Sequence[str],
+             by_levels: list[tuple[list[Any], list[Any]]], reason_names: Sequence[str],
+             level: float, proportion_ci: str, reliability: ReliabilityStandard | None,
+             design_summary: dict[str, Any], settings: dict[str, Any]) -> EstimateTable:
+    """Return the EstimateTable of *pieces*: tidy columns, intervals, reliability flags.
+
+    Shared by the in-memory engine and the engine that works from summed partitions.
+    """
+    from wstats._reliability import DEFAULT_STANDARD, assess
+    from wstats._results import EstimateTable, object_column
+
+    rows = _columns(pieces, list(by), by_levels, reason_names, level)
     standard = reliability or DEFAULT_STANDARD
     same_kg = proportion_ci == "korn-graubard" and level == standard.kg_level
     flags, suppress = assess(rows, standard, level,
                              (rows["ci_low"], rows["ci_high"]) if same_kg else None)
     rows["flags"] = object_column(flags)
     rows["suppress"] = suppress
-    settings = {"proportion_ci": proportion_ci, "mean_ci": "wald-t", "quantile_ci": "woodruff",
-                "df_rule": "replicates" if bound.uses_replicates else design.domain_df,
-                "level": level, "reliability": standard.name,
-                "deff_srs": "with-replacement"}
-    return EstimateTable(rows, tuple(by), level, bound.summary(), settings)
+    return EstimateTable(rows, tuple(by), level, design_summary, {
+        "proportion_ci": proportion_ci, "mean_ci": "wald-t", "quantile_ci": "woodruff",
+        "df_rule": settings.get("df_rule"), "level": level, "reliability": standard.name,
+        "deff_srs": "with-replacement", **settings})
 
 
 def _warn(data: Dataset, bound: BoundDesign, variables: Sequence[str], domains: Domains,

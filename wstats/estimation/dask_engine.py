@@ -1,0 +1,242 @@
+"""The Dask engine: estimates from data processed partition by partition on a cluster.
+
+Each partition (a file, or a range of rows of a Parquet file) is read and reduced to sums by
+(file, stratum, PSU, domain) on a worker (:mod:`wstats.estimation.partition_sums`); the sums
+are added pairwise on the workers, and the client makes the estimates from the total
+(:mod:`wstats.estimation.from_sums`). Rows never travel: memory per worker follows the
+partition, not the data.
+
+Available: means, totals and proportions, overall and by domains, ``where``, Taylor
+linearization (strata, PSUs; singleton treatments) and replicate weights, pooled files.
+Refused with a message naming what is missing: ratios, quantiles (an exact quantile needs
+every value of a domain sorted together), FPC, ``drop_incomplete``, domain df, jackknife-strata
+without given factors, a linearization design without PSUs.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Iterator, Sequence
+from contextlib import contextmanager
+from pathlib import Path
+from typing import TYPE_CHECKING, Any
+
+from wstats.decoding.stacking import FILE_COLUMN, PeriodFiles, expand_paths, is_several
+from wstats.errors import EngineError
+
+if TYPE_CHECKING:
+    from wstats._codebook import Codebook
+    from wstats._design import Design
+    from wstats._reliability import ReliabilityStandard
+    from wstats._results import EstimateTable
+    from wstats.estimation.from_sums import Summed
+    from wstats.estimation.partition_sums import PartSums, Request, Task
+
+__all__ = ["ENGINES", "PARTITION_ROWS", "estimate_dask", "need_dask"]
+
+ENGINES = ("memory", "dask")
+#: rows per partition of a Parquet file (other formats: one partition per file)
+PARTITION_ROWS = 1_000_000
+
+
+def need_dask() -> None:
+    """Raise EngineError with the install hint when dask.distributed is absent."""
+    try:
+        import dask  # noqa: F401
+        import distributed  # noqa: F401
+    except ImportError:
+        raise EngineError("the Dask engine needs dask.distributed: pip install "
+                          "'wstats[dask]'") from None
+
+
+def estimate_dask(
+    data: str | Path | Sequence[str | Path], design: Design, variables: Sequence[str], *,
+    codebook: Codebook | str | Path | None = None, statistics: str | Sequence[str] | None = None,
+    by: Sequence[str] = (), where: str | None = None, categorical: Sequence[str] = (),
+    level: float = 0.95, proportion_ci: str = "korn-graubard",
+    reliability: ReliabilityStandard | None = None, scheduler: str | None = None,
+    encoding: str = "utf-8", partition_rows: int = PARTITION_ROWS, workers: int | None = None,
+) -> EstimateTable:
+    """Estimate means, totals and proportions on a Dask cluster (see the module docstring).
+
+    Parameters are those of :func:`wstats.estimate` with the data given as files (a path,
+    a glob, a folder or a list; several files are pooled), plus *codebook*, *scheduler* (the
+    address of a running ``dask.distributed`` scheduler; None starts a local cluster sized
+    to the machine for the duration of the call), *partition_rows* (rows per partition of a
+    Parquet file) and *workers* (local cluster size; None: one per CPU).
+    """
+    need_dask()
+    from wstats._estimate import _check_options, table_of
+    from wstats.estimation.summed_design import check_summable, summed_design
+
+    stats = _check_options(statistics, level, proportion_ci, ())
+    check_summable(design, stats or [])
+    paths = expand_paths(data) if is_several(data) else [str(data)]
+    cb = _codebook(codebook)
+    files = _period_files(paths, cb) if len(paths) > 1 else None
+    req, numeric, cats, ambiguous = _request(paths, design, variables, stats, by, where,
+                                             categorical, cb, encoding)
+    with _client(scheduler, workers) as client:
+        total = _reduce(client, _tasks(paths, partition_rows), req)
+    if files is not None:
+        total.labels[FILE_COLUMN] = {float(k + 1): s for k, s in enumerate(files.labels)}
+    bound, lam = summed_design(total.main, design, files, len(req.replicates))
+    from wstats.estimation.from_sums import pieces_from_sums
+
+    summed = pieces_from_sums(total, bound, design, lam, by, level)
+    pieces = _pieces(summed, total, req, variables, stats, numeric, cats, ambiguous,
+                     proportion_ci, design, files, by)
+    summary = bound.summary()
+    summary["n_rows"] = int(total.main["rows"].sum())
+    df_rule = "replicates" if req.replicates else design.domain_df
+    return table_of(pieces, by, summed.by_levels, summed.vocabulary.names, level,
+                    proportion_ci, reliability, summary, {"df_rule": df_rule,
+                                                          "engine": "dask"})
+
+
+def _codebook(codebook: Codebook | str | Path | None) -> Codebook | None:
+    """Return the codebook loaded (workers get the object)."""
+    if isinstance(codebook, str | Path):
+        from wstats._codebook import load_codebook
+
+        return load_codebook(codebook)
+    return codebook
+
+
+def _period_files(paths: list[str], cb: Codebook | None) -> PeriodFiles:
+    """Return the pooled files (rows are counted from the sums later)."""
+    stems = [Path(p).stem for p in paths]
+    if len(set(stems)) != len(stems):
+        stems = list(paths)
+    labels = dict((cb.labels_for(FILE_COLUMN) or {}) if cb else {})
+    shown = [labels.get(float(k + 1), s) for k, s in enumerate(stems)]
+    return PeriodFiles(tuple(paths), tuple(stems), tuple(shown), tuple(0 for _ in paths))
+
+
+def _request(paths: list[str], design: Design, variables: Sequence[str],
+             stats: list[str] | None, by: Sequence[str], where: str | None,
+             categorical: Sequence[str], cb: Codebook | None, encoding: str
+             ) -> tuple[Request, list[str], list[str], list[str]]:
+    """Return what partitions sum, and which variables are numeric, categorical, either."""
+    from wstats._load import read
+    from wstats._readers import file_columns
+    from wstats.estimation.partition_sums import Request
+
+    own = [v for v in dict.fromkeys([*variables, *by]) if v != FILE_COLUMN]
+    first = read(paths[0], own, cb, (0, 1), False, encoding)
+    numeric, cats, ambiguous = [], [], []
+    for name in variables:
+        col = first.columns[name]
+        if stats:
+            if any(s in ("mean", "total") for s in stats):
+                numeric.append(name)
+            if "proportion" in stats:
+                cats.append(name)
+        elif name in categorical or col.kind in ("categorical", "binary", "text"):
+            cats.append(name)
+        else:
+            numeric.append(name)
+            if col.value_labels:  # fully labelled data is categorical: decided on the sums
+                cats.append(name)
+                ambiguous.append(name)
+    extra: list[str] = []
+    if where:
+        from wstats._expr import expression_names
+
+        extra = expression_names(where)
+    columns = [*own, *extra, *design.columns(file_columns(paths[0]), paths[0])]
+    reps = tuple(design.columns(file_columns(paths[0]), paths[0])[
+        len([c for c in (design.weight, design.strata, design.psu, design.fpc) if c]):])
+    req = Request(design.weight, design.strata, design.psu, reps if design.replicates else (),
+                  tuple(by), where, tuple(numeric), tuple(cats),
+                  tuple(c for c in dict.fromkeys(columns) if c != FILE_COLUMN), cb, encoding)
+    return req, numeric, cats, ambiguous
+
+
+def _tasks(paths: list[str], partition_rows: int) -> list[Task]:
+    """Return the partitions: Parquet files in row ranges, other files whole."""
+    from wstats.estimation.partition_sums import Task
+
+    tasks: list[Task] = []
+    for k, path in enumerate(paths):  # loop over files
+        if Path(path).suffix.lower() != ".parquet":
+            tasks.append(Task(path, k))
+            continue
+        import pyarrow.parquet as pq
+
+        n = pq.ParquetFile(path).metadata.num_rows
+        starts = range(0, max(n, 1), max(partition_rows, 1))
+        tasks.extend(Task(path, k, (s, min(s + partition_rows, n))) for s in starts)
+    return tasks
+
+
+@contextmanager
+def _client(scheduler: str | None, workers: int | None) -> Iterator[Any]:
+    """Yield a client of the given scheduler, or of a local cluster closed afterwards."""
+    import logging
+    import os
+
+    import distributed
+
+    Client: Any = distributed.Client
+    LocalCluster: Any = distributed.LocalCluster
+
+    if scheduler:
+        try:
+            client = Client(scheduler, timeout=30)
+        except OSError as exc:
+            raise EngineError(f"cannot reach the Dask scheduler at {scheduler} ({exc}); check "
+                              "the address (e.g. tcp://10.0.0.5:8786)") from exc
+        with client:
+            yield client
+        return
+    n = workers or os.cpu_count() or 1
+    with LocalCluster(n_workers=n, threads_per_worker=1, processes=True,
+                      dashboard_address=None, silence_logs=logging.ERROR) as cluster, \
+            Client(cluster) as client:
+        yield client
+
+
+def _reduce(client: Any, tasks: list[Task], req: Request) -> PartSums:
+    """Sum every partition on the workers and add the sums pairwise there; return the total."""
+    from wstats.estimation.partition_sums import add_sums, partition_sums
+
+    futures = client.map(partition_sums, tasks, req=req, pure=False)
+    while len(futures) > 1:  # a tree of additions: log2(partitions) rounds
+        paired = [client.submit(add_sums, a, b, pure=False)
+                  for a, b in zip(futures[::2], futures[1::2], strict=False)]
+        futures = paired + ([futures[-1]] if len(futures) % 2 else [])
+    total: PartSums = futures[0].result()
+    return total
+
+
+def _pieces(s: Summed, total: PartSums, req: Request, variables: Sequence[str],
+            stats: list[str] | None, numeric: list[str], cats: list[str],
+            ambiguous: list[str], ci: str, design: Design, files: PeriodFiles | None,
+            by: Sequence[str]) -> list[Any]:
+    """Return the Pieces of every variable and statistic, in the order asked."""
+    from wstats.estimation.from_sums import mean_or_total, proportion
+    from wstats.estimation.variable_sums import categorical_parts, replicate_parts
+
+    pieces = []
+    order = [*req.numeric, *req.categorical]
+    reps = replicate_parts(s, total, req, design, files, by) if req.replicates else None
+    for name in variables:  # loop over variables and statistics only
+        wanted = stats or (["proportion"] if name in cats and name not in ambiguous
+                           else ["mean"])
+        if name in ambiguous:  # numbers whose every value is labelled are categories
+            seen = categorical_parts(s, total, name, order.index(name, len(req.numeric)))[3]
+            labelled = total.labels.get(name, {})
+            if seen and all(float(v) in labelled for v in seen):
+                wanted = ["proportion"]
+        for stat in wanted:
+            if stat in ("mean", "total"):
+                j = order.index(name)
+                var = reps.mean_or_total(j, stat) if reps else None
+                pieces.append(mean_or_total(s, name, j, stat, var))
+            elif stat == "proportion":
+                j = order.index(name, len(req.numeric))
+                values, labels, matrix, _ = categorical_parts(s, total, name, j)
+                var = reps.proportion(j, values, matrix) if reps else None
+                pieces.append(proportion(s, name, j, ci, matrix, (values, labels), var))
+    return pieces
+

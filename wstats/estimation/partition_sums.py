@@ -1,0 +1,248 @@
+"""What one partition of the data contributes: weighted sums by (file, stratum, PSU, domain).
+
+A worker of the Dask engine (:mod:`wstats.estimation.dask_engine`) reads one partition (a
+file, or a range of rows of a Parquet file), decodes it with the codebook and reduces it to
+sums grouped by the raw key (file, stratum value, PSU value, inside the ``where`` domain,
+by-variable values). Sums of different partitions add up; the estimates are made from the
+added sums (:mod:`wstats.estimation.from_sums`), so no partition's rows ever meet another's.
+
+Weights are not rescaled here: a pooled file's factor multiplies its sums afterwards (sums
+linear in w by lambda, sums of w^2 by lambda^2).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from typing import TYPE_CHECKING, Any
+
+import numpy as np
+
+from wstats.decoding.stacking import FILE_COLUMN
+from wstats.errors import DesignError, WeightError
+
+if TYPE_CHECKING:
+    import numpy.typing as npt
+    import pandas as pd
+
+    from wstats._column import Dataset
+
+    Array = npt.NDArray[np.float64]
+
+__all__ = ["KEYS", "PartSums", "Request", "Task", "by_key", "partition_sums"]
+
+#: key columns of every partition's sums (by-variables follow as b0, b1, ...)
+KEYS = ("_file", "_s", "_p", "_in")
+
+
+def by_key(j: int) -> str:
+    """Return the key column of the j-th by-variable."""
+    return f"b{j}"
+
+
+@dataclass(frozen=True)
+class Task:
+    """One partition: a file (or a row range of it) and the file's place in the pool."""
+
+    path: str
+    file: int
+    rows: tuple[int, int | None] | None = None
+
+
+@dataclass(frozen=True)
+class Request:
+    """What every partition sums (the same for all partitions of a run)."""
+
+    weight: str
+    strata: str | None
+    psu: str | None
+    replicates: tuple[str, ...]
+    by: tuple[str, ...]
+    where: str | None
+    numeric: tuple[str, ...]
+    categorical: tuple[str, ...]
+    columns: tuple[str, ...]
+    codebook: Any = None
+    encoding: str = "utf-8"
+
+
+@dataclass
+class PartSums:
+    """Sums of one partition (or of several, added).
+
+    Attributes
+    ----------
+    main : grouped by KEYS + by-keys: ``rows``, ``zero_w`` and per variable j ``y{j}``
+        (sum w y), ``w{j}`` (sum w), ``q{j}`` (sum w y^2), ``n{j}`` (rows), ``s{j}``
+        (sum w^2) over its valid rows, and ``r{j}:{reason}`` (rows per not-valid reason).
+    levels : per categorical variable j: grouped by the keys and ``value``: ``w`` (sum w).
+    reps : replicate designs: grouped by ``_file``, ``_in`` and by-keys: ``R{r}y{j}``,
+        ``R{r}w{j}`` (sums of replicate weight r times y, times 1, over valid rows) and, per
+        categorical variable, ``R{r}l{j}:{value}``.
+    labels : per variable (and by-variable): value labels, first partition's wording first.
+    kinds : per variable: its kind and whether it holds text.
+    reasons : every reason name met, in the order met.
+    """
+
+    main: pd.DataFrame
+    levels: dict[int, pd.DataFrame]
+    reps: pd.DataFrame | None
+    labels: dict[str, dict[float, str]] = field(default_factory=dict)
+    kinds: dict[str, tuple[str, bool]] = field(default_factory=dict)
+    reasons: list[str] = field(default_factory=list)
+
+
+def partition_sums(task: Task, req: Request) -> PartSums:
+    """Read and decode one partition and return its sums (runs on a worker)."""
+    import pandas as pd
+
+    from wstats._load import read
+
+    data = read(task.path, list(req.columns), req.codebook, task.rows, False, req.encoding)
+    keys = _keys(data, task, req)
+    names = [*KEYS, *(by_key(j) for j in range(len(req.by)))]
+    w = _weights(data, req.weight, task.path)
+    cols: dict[str, Any] = {"rows": np.ones(data.n_rows), "zero_w": (w == 0).astype(float)}
+    for j, name in enumerate((*req.numeric, *req.categorical)):
+        cols.update(_variable_columns(data, name, j, w, name in req.numeric))
+    frame = pd.DataFrame({**keys, **cols})
+    main = frame.groupby(names, dropna=False, sort=False).sum().reset_index()
+    levels = {j: _level_sums(data, name, keys, names, w)
+              for j, name in enumerate(req.categorical, start=len(req.numeric))}
+    reps = _replicate_sums(data, req, keys, names) if req.replicates else None
+    own = [n for n in (*req.by, *req.numeric, *req.categorical) if n != FILE_COLUMN]
+    labels = {n: dict(data.columns[n].value_labels) for n in own}
+    kinds = {n: (data.columns[n].kind, not data.columns[n].numeric) for n in own}
+    return PartSums(main, levels, reps, labels, kinds, list(data.vocabulary.names))
+
+
+def _keys(data: Dataset, task: Task, req: Request) -> dict[str, Any]:
+    """Return the key columns of the partition's rows (by-values NaN where not valid)."""
+    n = data.n_rows
+    out: dict[str, Any] = {"_file": np.full(n, task.file, dtype=np.int64)}
+    for key, name in (("_s", req.strata), ("_p", req.psu)):
+        if name is None:
+            out[key] = np.zeros(n)
+            continue
+        col = data.columns[name]
+        if not bool(col.valid.all()):
+            raise DesignError(f"{key == '_s' and 'strata' or 'psu'} column '{name}' is missing "
+                              f"in {int((~col.valid).sum())} rows of {task.path}; the Dask "
+                              "engine needs complete design columns")
+        out[key] = col.values
+    out["_in"] = _inside(data, req.where)
+    for j, name in enumerate(req.by):
+        if name == FILE_COLUMN:  # the file's place in the pool: codes 1..K
+            out[by_key(j)] = np.where(out["_in"], task.file + 1.0, np.nan)
+            continue
+        col = data.columns[name]
+        values = col.values if col.numeric else col.values.astype(str)
+        blank: Any = np.nan if col.numeric else None
+        out[by_key(j)] = np.where(col.valid & out["_in"], values, blank)
+    return out
+
+
+def _inside(data: Dataset, where: str | None) -> npt.NDArray[np.bool_]:
+    """Return the rows of the population domain (the ``where`` condition holds)."""
+    if where is None:
+        return np.ones(data.n_rows, dtype=bool)
+    from wstats._expr import parse_expression
+    from wstats._reasons import VALID
+
+    expr = parse_expression(where, list(data.columns), "where")
+    values, reasons = expr.evaluate(data.columns, data.vocabulary, data.n_rows)
+    return np.asarray((reasons == VALID) & (np.nan_to_num(values, nan=0.0) != 0))
+
+
+def _weights(data: Dataset, name: str, path: str) -> Array:
+    """Return the weights, checked finite and >= 0."""
+    w = np.asarray(data.columns[name].values, dtype=np.float64)
+    bad = ~np.isfinite(w) | (w < 0)
+    if bad.any():
+        raise WeightError(f"weight column '{name}' has {int(bad.sum())} missing, infinite or "
+                          f"negative values in {path}; weights must be finite and >= 0")
+    return w
+
+
+def _variable_columns(data: Dataset, name: str, j: int, w: Array, numeric: bool
+                      ) -> dict[str, Any]:
+    """Return the per-row columns whose sums a variable needs."""
+    col = data.columns[name]
+    valid = col.valid
+    wv = np.where(valid, w, 0.0)
+    out: dict[str, Any] = {f"w{j}": wv, f"n{j}": valid.astype(float), f"s{j}": wv * w}
+    if numeric:
+        y = np.where(valid, col.values, 0.0)
+        out[f"y{j}"] = wv * y
+        out[f"q{j}"] = wv * y * y
+    names = data.vocabulary.names
+    reasons = col.reasons
+    for code in np.unique(reasons[~valid]).tolist():  # loop over reasons met, not rows
+        out[f"r{j}:{names[int(code)]}"] = (reasons == code).astype(float)
+    return out
+
+
+def _level_sums(data: Dataset, name: str, keys: dict[str, Any], names: list[str], w: Array
+                ) -> pd.DataFrame:
+    """Return sums of w by the keys and the categorical variable's value (valid rows)."""
+    import pandas as pd
+
+    col = data.columns[name]
+    valid = col.valid
+    frame = pd.DataFrame({k: v[valid] for k, v in keys.items()})
+    frame["value"] = col.values[valid] if col.numeric else col.values[valid].astype(str)
+    frame["w"] = w[valid]
+    return frame.groupby([*names, "value"], dropna=False, sort=False).sum().reset_index()
+
+
+def _replicate_sums(data: Dataset, req: Request, keys: dict[str, Any], names: list[str]
+                    ) -> pd.DataFrame:
+    """Return replicate-weighted sums by file, domain and by-values."""
+    import pandas as pd
+
+    rep = np.column_stack([np.asarray(data.columns[c].values, dtype=np.float64)
+                           for c in req.replicates])
+    if not (np.isfinite(rep).all() and (rep >= 0).all()):
+        raise WeightError("a replicate weight is missing, infinite or negative; replicate "
+                          "weights must be finite and >= 0")
+    group = [n for n in names if n not in ("_s", "_p")]
+    cols: dict[str, Any] = {}
+    for j, name in enumerate((*req.numeric, *req.categorical)):
+        col = data.columns[name]
+        valid = col.valid
+        if name in req.numeric:
+            y = np.where(valid, col.values, 0.0)
+            for r in range(rep.shape[1]):  # loop over replicates, not rows
+                cols[f"R{r}y{j}"] = rep[:, r] * y
+        for r in range(rep.shape[1]):
+            cols[f"R{r}w{j}"] = np.where(valid, rep[:, r], 0.0)
+        if name in req.categorical:
+            values = col.values if col.numeric else col.values.astype(str)
+            for v in np.unique(values[valid]).tolist():  # loop over levels
+                hit = valid & (values == v)
+                for r in range(rep.shape[1]):
+                    cols[f"R{r}l{j}:{v!r}"] = np.where(hit, rep[:, r], 0.0)
+    frame = pd.DataFrame({**{k: keys[k] for k in group}, **cols})
+    return frame.groupby(group, dropna=False, sort=False).sum().reset_index()
+
+
+def add_sums(a: PartSums, b: PartSums) -> PartSums:
+    """Return the sums of two partitions (or groups of partitions) added."""
+    import pandas as pd
+
+    def add(x: pd.DataFrame | None, y: pd.DataFrame | None, keys: list[str]
+            ) -> pd.DataFrame | None:
+        if x is None or y is None:
+            return x if y is None else y
+        both = pd.concat([x, y], ignore_index=True).fillna({c: 0.0 for c in x.columns
+                                                             if c not in keys})
+        return both.groupby(keys, dropna=False, sort=False).sum().reset_index()
+
+    keys = [c for c in a.main.columns if c in KEYS or c.startswith("b") and c[1:].isdigit()]
+    main = add(a.main, b.main, keys)
+    assert main is not None
+    levels = {j: add(a.levels[j], b.levels[j], [*keys, "value"]) for j in a.levels}
+    rep_keys = [k for k in keys if k not in ("_s", "_p")]
+    labels = {n: {**b.labels.get(n, {}), **lab} for n, lab in a.labels.items()}
+    reasons = list(dict.fromkeys([*a.reasons, *b.reasons]))
+    return PartSums(main, {j: v for j, v in levels.items() if v is not None},
+                    add(a.reps, b.reps, rep_keys), labels, {**b.kinds, **a.kinds}, reasons)
