@@ -191,6 +191,13 @@ def add_estimate_args(p: argparse.ArgumentParser) -> None:
     g.add_argument("--standard", default="nchs-2017", metavar="NAME",
                    help="reliability standard: nchs-2017 (default), rse-30, none")
     g.add_argument("--plot", metavar="FILE", help="also draw estimates across domains (.png/.svg)")
+    e = p.add_argument_group("engine")
+    e.add_argument("--engine", choices=("memory", "dask"), default="memory",
+                   help="memory (default), or dask: partitions summed on a Dask cluster "
+                        "(means, totals, proportions; pip install 'wstats[dask]')")
+    e.add_argument("--scheduler", metavar="ADDRESS",
+                   help="with --engine dask: a running scheduler (e.g. tcp://10.0.0.5:8786); "
+                        "default: a local cluster for this command")
     _add_output_options(p, OUTPUT_FORMATS)
 
 

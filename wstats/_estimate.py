@@ -11,10 +11,12 @@ from __future__ import annotations
 
 import itertools
 from collections.abc import Callable, Sequence
+from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
+from wstats._column import Dataset
 from wstats._reasons import VALID
 from wstats._stats import (
     Context,
@@ -31,11 +33,13 @@ from wstats._stats import (
 )
 from wstats._sums import Domains, WeightedSums, no_cell
 from wstats.errors import EstimationError, did_you_mean
+from wstats.estimation.dask_engine import ENGINES, estimate_dask
 
 if TYPE_CHECKING:
     import numpy.typing as npt
 
-    from wstats._column import Dataset, DecodedColumn
+    from wstats._codebook import Codebook
+    from wstats._column import DecodedColumn
     from wstats._design import BoundDesign, Design
     from wstats._reliability import ReliabilityStandard
     from wstats._results import EstimateTable
@@ -50,7 +54,7 @@ MAX_CELLS = 10_000  # crossed by-cells allowed in one call
 
 
 def estimate(
-    data: Dataset,
+    data: Dataset | str | Path | Sequence[str | Path],
     design: Design,
     variables: Sequence[str],
     *,
@@ -63,12 +67,17 @@ def estimate(
     level: float = 0.95,
     proportion_ci: str = "korn-graubard",
     reliability: ReliabilityStandard | None = None,
+    engine: str = "memory",
+    codebook: Codebook | str | Path | None = None,
+    scheduler: str | None = None,
 ) -> EstimateTable:
     """Estimate design-based statistics of survey variables, overall and by domain.
 
     Parameters
     ----------
-    data : decoded dataset (values and reasons).
+    data : decoded dataset (values and reasons); or the data files (a path, a glob, a
+        folder or a list; several files are pooled, see :func:`wstats.read`), read with
+        *codebook*.
     design : the sample design; bound and checked against *data*.
     variables : variables to analyse.
     statistics : None (mean for continuous/count, proportion for categorical/binary), one
@@ -83,6 +92,12 @@ def estimate(
     proportion_ci : interval for proportions, a key of ``PROPORTION_INTERVALS``.
     reliability : reliability standard for flags and suppression (None: the default,
         ``nchs-2017``; pass ``STANDARDS["none"]`` to switch the rules off).
+    engine : ``memory`` (default) or ``dask``: the data files processed partition by
+        partition on a Dask cluster (means, totals and proportions; see
+        :mod:`wstats.estimation.dask_engine`); needs ``pip install 'wstats[dask]'``.
+    codebook : the codebook for data given as files.
+    scheduler : engine ``dask``: address of a running scheduler (None: a local cluster that
+        starts and stops with the call).
 
     Returns
     -------
@@ -99,6 +114,23 @@ def estimate(
     >>> round(float(t.frame["estimate"][0]), 4)
     2.8333
     """
+    if engine not in ENGINES:
+        raise EstimationError(f"engine '{engine}' is not one of {', '.join(ENGINES)}"
+                              f"{did_you_mean(engine, ENGINES)}")
+    if engine == "dask":
+        if isinstance(data, Dataset):
+            raise EstimationError("engine 'dask' reads the data files itself; give their paths "
+                                  "(and codebook=...), not a Dataset")
+        if ratios:
+            raise EstimationError("ratios are not available on the Dask engine; run them "
+                                  "with engine='memory'")
+        return estimate_dask(data, design, variables, codebook=codebook,
+                             statistics=statistics, by=by, where=where,
+                             categorical=categorical, level=level, proportion_ci=proportion_ci,
+                             reliability=reliability, scheduler=scheduler)
+    if not isinstance(data, Dataset):
+        data = _read_files(data, design, [*variables, *by, *categorical,
+                                          *(v for r in ratios for v in r)], where, codebook)
     stats = _check_options(statistics, level, proportion_ci, quantiles)
     _check_names(data, [*variables, *by, *categorical, *(v for r in ratios for v in r)])
     bound = design.bind(data)
@@ -135,6 +167,23 @@ def table_of(pieces: list[Piece], by: Sequence[str],
         "proportion_ci": proportion_ci, "mean_ci": "wald-t", "quantile_ci": "woodruff",
         "df_rule": settings.get("df_rule"), "level": level, "reliability": standard.name,
         "deff_srs": "with-replacement", **settings})
+
+
+def _read_files(data: str | Path | Sequence[str | Path], design: Design, names: list[str],
+                where: str | None, codebook: Codebook | str | Path | None) -> Dataset:
+    """Read the variables, the condition's inputs and the design columns from files."""
+    from wstats._load import read
+    from wstats._readers import file_columns
+    from wstats.decoding.stacking import expand_paths, is_several
+
+    first = expand_paths(data)[0] if is_several(data) else str(data)
+    cols = list(names)
+    if where:
+        from wstats._expr import expression_names
+
+        cols.extend(expression_names(where))
+    cols.extend(design.columns(file_columns(first), first))
+    return read(data, list(dict.fromkeys(cols)), codebook)
 
 
 def _warn(data: Dataset, bound: BoundDesign, variables: Sequence[str], domains: Domains,

@@ -166,11 +166,17 @@ def _run_estimate(args: argparse.Namespace) -> int:
     design = design_from(args, codebook)
     ratios = [ratio_pair(r) for r in args.ratio]
     variables = list(args.variables)
-    needed = needed_columns([*variables, *[x for r in ratios for x in r], *args.by],
-                            design, args.where, args.data)
-    data = _read(args, codebook, needed)
+    if args.scheduler and args.engine != "dask":
+        raise UsageError("--scheduler needs --engine dask")
+    if args.engine == "dask":
+        data: Any = args.data  # the files: the workers read them
+    else:
+        needed = needed_columns([*variables, *[x for r in ratios for x in r], *args.by],
+                                design, args.where, args.data)
+        data = _read(args, codebook, needed)
     table = estimate(
-        data, design, variables, statistics=split_list([args.stats]) or None, by=args.by,
+        data, design, variables, engine=args.engine, codebook=codebook,
+        scheduler=args.scheduler, statistics=split_list([args.stats]) or None, by=args.by,
         where=args.where, categorical=args.categorical, ratios=ratios,
         quantiles=[float(q) for q in split_list([args.quantiles])], level=args.level,
         proportion_ci=args.proportion_ci, reliability=_standard(args.standard),

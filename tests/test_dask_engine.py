@@ -1,0 +1,161 @@
+"""The Dask engine gives the in-memory engine's numbers (to 1e-10 relative) or refuses.
+
+Oracle: the in-memory engine itself (tested elsewhere against published formulas); the
+Dask engine sums partitions and must agree with it up to the order of the additions.
+One small local cluster (2 worker processes) serves every test of this module.
+"""
+
+from __future__ import annotations
+
+import sys
+import warnings
+from collections.abc import Iterator
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+import pytest
+
+pytest.importorskip("distributed")
+
+from demo.periods import write_periods  # noqa: E402
+from wstats import Design, estimate, read  # noqa: E402
+from wstats.errors import DesignError, EngineError  # noqa: E402
+
+NUMBERS = ("estimate", "se", "ci_low", "ci_high", "df", "deff", "deff_weight", "n_eff", "n",
+           "weighted_n", "cv")
+DEMO = Design("FINALWT", strata="STRAT_ID", psu="CLUST_ID")
+
+
+@pytest.fixture(scope="module")
+def cluster() -> Iterator[str]:
+    import logging
+
+    from distributed import LocalCluster
+
+    with LocalCluster(n_workers=2, threads_per_worker=1, processes=True,
+                      dashboard_address=None, silence_logs=logging.ERROR) as c:
+        yield str(c.scheduler_address)
+
+
+@pytest.fixture(scope="module")
+def periods(tmp_path_factory: pytest.TempPathFactory) -> Path:
+    folder = tmp_path_factory.mktemp("dask_periods")
+    write_periods(folder, periods=2, rows=3000)
+    return folder
+
+
+def _same(memory: Any, dask: Any) -> None:
+    a, b = memory.frame, dask.frame
+    assert list(a.columns) == list(b.columns)
+    assert len(a) == len(b)
+    for col in NUMBERS:
+        np.testing.assert_allclose(b[col].to_numpy(float), a[col].to_numpy(float),
+                                   rtol=1e-10, atol=0, equal_nan=True, err_msg=col)
+    for col in ("variable", "statistic", "level", "reasons", "flags", "suppress"):
+        assert a[col].tolist() == b[col].tolist(), col
+    for by in memory.by:
+        assert a[by].tolist() == b[by].tolist()
+
+
+def _both(files: Any, design: Design, variables: list[str], scheduler: str,
+          codebook: Path | None, **options: Any) -> None:
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")  # the data-sanity lines are the in-memory engine's
+        memory = estimate(files, design, variables, codebook=codebook, **options)
+    dask = estimate(files, design, variables, codebook=codebook, engine="dask",
+                    scheduler=scheduler, **options)
+    _same(memory, dask)
+    assert dask.settings["engine"] == "dask"
+
+
+def test_demo_means_and_proportions_by_domain(periods: Path, cluster: str) -> None:
+    cb = periods / "tbchs_codebook.toml"
+    _both(periods / "period1.xpt", DEMO, ["SLEEPHRS", "GENHLTH", "PHYSDAYS"], cluster, cb,
+          by=["AGE_GRP", "SEX"], where="AGE_YRS >= 30")
+
+
+def test_demo_totals_and_centred_singletons(periods: Path, cluster: str) -> None:
+    cb = periods / "tbchs_codebook.toml"
+    design = Design("FINALWT", strata="STRAT_ID", psu="CLUST_ID", singleton="certainty")
+    _both(periods / "period2.xpt", design, ["SLEEPHRS", "MENTDAYS"], cluster, cb,
+          statistics="total", by=["DISTRICT"])
+
+
+def test_pooled_periods_by_file(periods: Path, cluster: str) -> None:
+    cb = periods / "tbchs_codebook.toml"
+    files = str(periods / "period*.xpt")
+    _both(files, DEMO, ["SLEEPHRS", "GENHLTH"], cluster, cb, by=["_file"])
+    shared = Design("FINALWT", strata="STRAT_ID", psu="CLUST_ID", shared_psus=True,
+                    pool="rows")
+    _both(files, shared, ["SLEEPHRS"], cluster, cb, by=["_file", "AGE_GRP"])
+
+
+def _replicate_file(folder: Path, seed: int, name: str) -> Path:
+    """A small survey with delete-one-cluster jackknife replicates, as Parquet."""
+    import pandas as pd
+
+    rng = np.random.default_rng(seed)
+    n = 600
+    cluster = np.repeat(np.arange(12), n // 12)
+    w = rng.uniform(1, 4, n)
+    frame = {"W": w, "C": cluster.astype(float), "y": rng.normal(10, 3, n),
+             "g": rng.integers(1, 4, n).astype(float), "d": rng.integers(1, 3, n).astype(float)}
+    frame["y"][rng.uniform(size=n) < 0.05] = np.nan
+    for r in range(12):
+        frame[f"RW{r + 1:02d}"] = np.where(cluster == r, 0.0, w * 12 / 11)
+    path = folder / name
+    pd.DataFrame(frame).to_parquet(path)
+    return path
+
+
+def test_replicate_design_in_partitions(tmp_path: Path, cluster: str) -> None:
+    # REFERENCES §8 jackknife; a Parquet file cut into 3 partitions of 200 rows
+    path = _replicate_file(tmp_path, 1, "reps.parquet")
+    design = Design("W", replicates="RW*", replicate_method="jackknife")
+    memory = estimate(path, design, ["y", "g"], categorical=["g"], by=["d"])
+    from wstats.estimation.dask_engine import estimate_dask
+
+    dask = estimate_dask(path, design, ["y", "g"], categorical=["g"], by=["d"],
+                         scheduler=cluster, partition_rows=200)
+    _same(memory, dask)
+
+
+def test_pooled_replicate_files_in_blocks(tmp_path: Path, cluster: str) -> None:
+    # REFERENCES §16: one block of replicates per file
+    _replicate_file(tmp_path, 2, "year1.parquet")
+    _replicate_file(tmp_path, 3, "year2.parquet")
+    design = Design("W", replicates="RW*", replicate_method="jackknife")
+    files = str(tmp_path / "year*.parquet")
+    _both(files, design, ["y"], cluster, None, by=["_file"], statistics=["mean", "total"])
+
+
+@pytest.mark.parametrize(("options", "message"), [
+    ({"statistics": "quantile"}, "statistic 'quantile' is not available on the Dask engine "
+     r"\(an exact quantile needs every value of a domain sorted together\)"),
+    ({"design": Design("FINALWT", strata="STRAT_ID", psu="CLUST_ID", fpc="STRAT_ID")},
+     "the Dask engine does not support fpc yet"),
+    ({"design": Design("FINALWT")}, "a linearization design without a PSU column"),
+])
+def test_what_the_engine_cannot_do_is_refused(periods: Path, options: dict[str, Any],
+                                              message: str) -> None:
+    design = options.pop("design", DEMO)
+    with pytest.raises(DesignError, match=message):
+        estimate(periods / "period1.xpt", design, ["SLEEPHRS"], engine="dask",
+                 codebook=periods / "tbchs_codebook.toml", scheduler="tcp://127.0.0.1:1",
+                 **options)
+
+
+def test_without_dask_the_engine_says_how_to_install(monkeypatch: pytest.MonkeyPatch,
+                                                     periods: Path) -> None:
+    monkeypatch.setitem(sys.modules, "distributed", None)
+    with pytest.raises(EngineError, match=r"pip install 'wstats\[dask\]'"):
+        estimate(periods / "period1.xpt", DEMO, ["SLEEPHRS"], engine="dask")
+
+
+def test_a_dataset_is_not_given_to_the_dask_engine(periods: Path) -> None:
+    from wstats.errors import EstimationError
+
+    data = read(periods / "period1.xpt", ["SLEEPHRS", "FINALWT", "STRAT_ID", "CLUST_ID"])
+    with pytest.raises(EstimationError, match="give their paths"):
+        estimate(data, DEMO, ["SLEEPHRS"], engine="dask")
