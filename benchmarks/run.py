@@ -13,7 +13,7 @@ default ~/.cache/wstats-bench; several minutes the first time), its Parquet cach
   A  wstats estimate FILE.xpt, 10 variables, weight/strata/PSU, codebook, JSON out
   B  pyreadstat.read_xport(FILE, usecols=the raw columns A reads)
   C  cat FILE > /dev/null
-  D  wstats estimate FILE.xpt on every item variable by the 5-level AGE_GRP domain
+  D  wstats estimate FILE.xpt on every item variable by the 5-level dm_age5 domain
   E  pyreadstat.read_xport(FILE) (every column; fewer runs, no warm-up: it is slow)
   F  A on the Parquet cache
   A2 A on the 2x-rows file (memory must not grow beyond the selected columns: A and A2 run
@@ -43,14 +43,14 @@ HERE = Path(__file__).resolve().parent
 ROOT = HERE.parent
 # A realistic mix: a categorical item (proportions per level), 1/2/3-digit don't-know and
 # refused codes (7/9, 77/99, 777/999), "none" codes (88/888 = 0), a unit-prefixed frequency
-# (FRUIT: 1xx/day ... 4xx/year), a skip-pattern follow-up (TOB_NOW), a measurement with
-# "not measured" blanks (SYS_BP) and a derived variable (BMI from WT_KG and HT_CM).
-TEN = ["GENHLTH", "SLEEPHRS", "PHYSDAYS", "FRUIT", "VIG_DAYS", "BMI", "SYS_BP", "TOB_NOW",
-       "INCOME", "ALC_DAYS"]
-WEIGHT, STRATA, PSU = "FINALWT", "STRAT_ID", "CLUST_ID"
+# (fd_fruit: 1xx/day ... 4xx/year), a skip-pattern follow-up (tc_now), a measurement with
+# "not measured" blanks (mx_sys) and a derived variable (bd_bmi from bd_mass and bd_hgt).
+TEN = ["hs_rate", "sl_hours", "hs_body", "fd_fruit", "pa_hday", "bd_bmi", "mx_sys", "tc_now",
+       "dm_incbd", "al_days"]
+WEIGHT, STRATA, PSU = "wt_final", "ds_strat", "ds_psu"
 DESIGN = ["--weight", WEIGHT, "--strata", STRATA, "--psu", PSU]
-DOMAIN = "AGE_GRP"  # 5 levels
-NOT_ITEMS = {"RESP_ID", "BASEWT", WEIGHT, STRATA, PSU, DOMAIN}  # design/id columns, domain
+DOMAIN = "dm_age5"  # 5 levels
+NOT_ITEMS = {"id_resp", "wt_base", WEIGHT, STRATA, PSU, DOMAIN}  # design/id columns, domain
 TARGETS = {"A/B": 0.10, "A/C": 5.0, "D/E": 0.20, "F/B": None}
 
 
@@ -147,7 +147,7 @@ def reason_bytes(files: dict[str, Path], raw_a: list[str]) -> int:
     A decoded number column keeps one reason code (1 byte) for each value that is missing.
     """
     sys.path.insert(0, str(ROOT))
-    from wstats._load import read
+    from wstats.decoding.load import read
 
     data = read(files["xpt"], columns=raw_a, codebook=files["codebook"])
     return sum(int(col.missing_codes.nbytes) for col in data.columns.values())
@@ -156,8 +156,8 @@ def reason_bytes(files: dict[str, Path], raw_a: list[str]) -> int:
 def columns_of(xpt: Path, codebook: Path) -> tuple[list[str], list[str]]:
     """Return (the raw columns A reads, the item variables of D)."""
     sys.path.insert(0, str(ROOT))
-    from wstats._codebook import load_codebook
-    from wstats._readers import file_columns
+    from wstats.decoding.codebook import load_codebook
+    from wstats.readers.dispatch import file_columns
 
     raw_a = [*load_codebook(codebook).raw_columns_for(TEN), WEIGHT, STRATA, PSU]
     items = [c for c in file_columns(xpt) if c not in NOT_ITEMS]

@@ -24,7 +24,7 @@ from wstats.errors import DesignError, EngineError  # noqa: E402
 
 NUMBERS = ("estimate", "se", "ci_low", "ci_high", "df", "deff", "deff_weight", "n_eff", "n",
            "weighted_n", "cv")
-DEMO = Design("FINALWT", strata="STRAT_ID", psu="CLUST_ID")
+DEMO = Design("wt_final", strata="ds_strat", psu="ds_psu")
 
 
 @pytest.fixture(scope="module")
@@ -71,24 +71,24 @@ def _both(files: Any, design: Design, variables: list[str], scheduler: str,
 
 def test_demo_means_and_proportions_by_domain(periods: Path, cluster: str) -> None:
     cb = periods / "tbchs_codebook.toml"
-    _both(periods / "period1.xpt", DEMO, ["SLEEPHRS", "GENHLTH", "PHYSDAYS"], cluster, cb,
-          by=["AGE_GRP", "SEX"], where="AGE_YRS >= 30")
+    _both(periods / "period1.xpt", DEMO, ["sl_hours", "hs_rate", "hs_body"], cluster, cb,
+          by=["dm_age5", "dm_sex"], where="dm_age >= 30")
 
 
 def test_demo_totals_and_centred_singletons(periods: Path, cluster: str) -> None:
     cb = periods / "tbchs_codebook.toml"
-    design = Design("FINALWT", strata="STRAT_ID", psu="CLUST_ID", singleton="certainty")
-    _both(periods / "period2.xpt", design, ["SLEEPHRS", "MENTDAYS"], cluster, cb,
-          statistics="total", by=["DISTRICT"])
+    design = Design("wt_final", strata="ds_strat", psu="ds_psu", singleton="certainty")
+    _both(periods / "period2.xpt", design, ["sl_hours", "hs_mood"], cluster, cb,
+          statistics="total", by=["ar_dist"])
 
 
 def test_pooled_periods_by_file(periods: Path, cluster: str) -> None:
     cb = periods / "tbchs_codebook.toml"
     files = str(periods / "period*.xpt")
-    _both(files, DEMO, ["SLEEPHRS", "GENHLTH"], cluster, cb, by=["_file"])
-    shared = Design("FINALWT", strata="STRAT_ID", psu="CLUST_ID", shared_psus=True,
+    _both(files, DEMO, ["sl_hours", "hs_rate"], cluster, cb, by=["_file"])
+    shared = Design("wt_final", strata="ds_strat", psu="ds_psu", shared_psus=True,
                     pool="rows")
-    _both(files, shared, ["SLEEPHRS"], cluster, cb, by=["_file", "AGE_GRP"])
+    _both(files, shared, ["sl_hours"], cluster, cb, by=["_file", "dm_age5"])
 
 
 def _replicate_file(folder: Path, seed: int, name: str) -> Path:
@@ -133,15 +133,15 @@ def test_pooled_replicate_files_in_blocks(tmp_path: Path, cluster: str) -> None:
 @pytest.mark.parametrize(("options", "message"), [
     ({"statistics": "quantile"}, "statistic 'quantile' is not available on the Dask engine "
      r"\(an exact quantile needs every value of a domain sorted together\)"),
-    ({"design": Design("FINALWT", strata="STRAT_ID", psu="CLUST_ID", fpc="STRAT_ID")},
+    ({"design": Design("wt_final", strata="ds_strat", psu="ds_psu", fpc="ds_strat")},
      "the Dask engine does not support fpc yet"),
-    ({"design": Design("FINALWT")}, "a linearization design without a PSU column"),
+    ({"design": Design("wt_final")}, "a linearization design without a PSU column"),
 ])
 def test_what_the_engine_cannot_do_is_refused(periods: Path, options: dict[str, Any],
                                               message: str) -> None:
     design = options.pop("design", DEMO)
     with pytest.raises(DesignError, match=message):
-        estimate(periods / "period1.xpt", design, ["SLEEPHRS"], engine="dask",
+        estimate(periods / "period1.xpt", design, ["sl_hours"], engine="dask",
                  codebook=periods / "tbchs_codebook.toml", scheduler="tcp://127.0.0.1:1",
                  **options)
 
@@ -150,12 +150,12 @@ def test_without_dask_the_engine_says_how_to_install(monkeypatch: pytest.MonkeyP
                                                      periods: Path) -> None:
     monkeypatch.setitem(sys.modules, "distributed", None)
     with pytest.raises(EngineError, match=r"pip install 'wstats\[dask\]'"):
-        estimate(periods / "period1.xpt", DEMO, ["SLEEPHRS"], engine="dask")
+        estimate(periods / "period1.xpt", DEMO, ["sl_hours"], engine="dask")
 
 
 def test_a_dataset_is_not_given_to_the_dask_engine(periods: Path) -> None:
     from wstats.errors import EstimationError
 
-    data = read(periods / "period1.xpt", ["SLEEPHRS", "FINALWT", "STRAT_ID", "CLUST_ID"])
+    data = read(periods / "period1.xpt", ["sl_hours", "wt_final", "ds_strat", "ds_psu"])
     with pytest.raises(EstimationError, match="give their paths"):
-        estimate(data, DEMO, ["SLEEPHRS"], engine="dask")
+        estimate(data, DEMO, ["sl_hours"], engine="dask")

@@ -12,9 +12,9 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from wstats._column import Dataset, DecodedColumn
-from wstats._expr import expression_names, parse_expression
-from wstats._reasons import DONT_KNOW, INVALID, REFUSED, SKIPPED, VALID, Reasons
+from wstats.decoding.columns import Dataset, DecodedColumn
+from wstats.decoding.expressions import expression_names, parse_expression
+from wstats.decoding.reasons import DONT_KNOW, INVALID, REFUSED, SKIPPED, VALID, Reasons
 from wstats.errors import ExpressionError
 
 NAN = np.nan
@@ -88,7 +88,7 @@ def test_undefined_arithmetic_is_invalid() -> None:
 
 
 def test_reasons_combine_with_documented_precedence() -> None:
-    # precedence refused > dont_know > invalid > missing > skipped (wstats/_reasons.py)
+    # precedence refused > dont_know > invalid > missing > skipped (wstats/decoding/reasons.py)
     cols = data(A=([1, 1, 1, 1], [REFUSED, DONT_KNOW, SKIPPED, VALID]),
                 B=([1, 1, 1, 1], [DONT_KNOW, SKIPPED, INVALID, VALID]))
     values, reasons = run("A + B", cols)
@@ -136,8 +136,8 @@ def test_constant_expression_needs_row_count() -> None:
 
 
 def test_inputs_and_names() -> None:
-    expr = parse_expression("AGE_YRS >= 65 and DISTRICT == 2", None, "--where")
-    assert expr.inputs == {"AGE_YRS", "DISTRICT"} and expr.boolean
+    expr = parse_expression("dm_age >= 65 and ar_dist == 2", None, "--where")
+    assert expr.inputs == {"dm_age", "ar_dist"} and expr.boolean
     assert expression_names("max(B, A) + B") == ["B", "A"]
     assert not parse_expression("A + 1", None, "t").boolean
 
@@ -182,9 +182,9 @@ def test_forbidden_constructs_name_the_column(text: str, col: int, what: str) ->
 
 
 def test_unknown_variable_suggests_a_close_name() -> None:
-    with pytest.raises(ExpressionError, match=r"column 7: unknown variable 'AGE_YR'; did you "
-                                              r"mean 'AGE_YRS'"):
-        parse_expression("1 + 2*AGE_YR", ["AGE_YRS"], "--where")
+    with pytest.raises(ExpressionError, match=r"column 7: unknown variable 'dm_ag'; did you "
+                                              r"mean 'dm_age'"):
+        parse_expression("1 + 2*dm_ag", ["dm_age"], "--where")
 
 
 def test_empty_expression() -> None:

@@ -4,11 +4,11 @@ from __future__ import annotations
 
 import pytest
 
-from wstats._methods import methods_paragraph
-from wstats._reliability import STANDARDS
 from wstats.errors import UsageError
+from wstats.estimation.reliability import STANDARDS
+from wstats.reports.methods import methods_paragraph
 
-DESIGN = {"weight": "FINALWT", "strata": "STRAT_ID", "psu": "CLUSTER_ID", "fpc": None,
+DESIGN = {"weight": "wt_final", "strata": "ds_strat", "psu": "ds_psu", "fpc": None,
           "n_strata": 12, "n_psu": 36, "df": 24, "singleton": "center", "singleton_strata": 2,
           "variance_method": "linearization", "replicate_method": None, "n_replicates": 0}
 SETTINGS = {"level": 0.9, "proportion_ci": "korn-graubard"}
@@ -27,7 +27,7 @@ def _text(fmt: str = "text", **kw: object) -> str:
 
 def test_states_every_required_fact() -> None:
     text = _text()
-    for fact in ("tbchs_sample.xpt", "weighted by FINALWT", "Taylor linearization",
+    for fact in ("tbchs_sample.xpt", "weighted by wt_final", "Taylor linearization",
                  "12 strata, 36 PSUs, 24 degrees of freedom",
                  "2 strata with a single PSU were given a variance contribution measured "
                  "around the mean of all PSU totals",

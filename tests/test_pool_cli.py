@@ -29,7 +29,7 @@ def _json(*args: str, cwd: Path) -> dict:  # type: ignore[type-arg]
 
 
 def test_a_quoted_glob_pools_the_periods_with_file_as_a_by_variable(periods: Path) -> None:
-    out = _json("estimate", "period*.xpt", "SLEEPHRS", "--by", "_file", "--codebook",
+    out = _json("estimate", "period*.xpt", "sl_hours", "--by", "_file", "--codebook",
                 "tbchs_codebook.toml", cwd=periods)
     rows = out["results"]
     assert [r["group"] and r["group"]["_file"] for r in rows] == [
@@ -44,19 +44,19 @@ def test_a_quoted_glob_pools_the_periods_with_file_as_a_by_variable(periods: Pat
 
 
 def test_several_paths_before_the_variables(periods: Path) -> None:
-    two = _json("estimate", "period1.xpt", "period3.xpt", "SLEEPHRS", "--by", "_file",
+    two = _json("estimate", "period1.xpt", "period3.xpt", "sl_hours", "--by", "_file",
                 "--codebook", "tbchs_codebook.toml", "--pool", "rows", cwd=periods)
     assert [r["group"] and r["group"]["_file"] for r in two["results"]] == [
         None, "period1", "period3"]
     assert two["provenance"]["design"]["pool"]["rule"] == "rows"
     # design df of independent files add up (REFERENCES §16): the sum of each file's df
-    one = [_json("estimate", f"period{k}.xpt", "SLEEPHRS", "--codebook", "tbchs_codebook.toml",
+    one = [_json("estimate", f"period{k}.xpt", "sl_hours", "--codebook", "tbchs_codebook.toml",
                  cwd=periods)["results"][0]["df"] for k in (1, 3)]
     assert two["results"][0]["df"] == sum(one)
 
 
 def test_shared_psus_and_factors_are_reported(periods: Path) -> None:
-    out = _json("estimate", "period*.xpt", "GENHLTH", "--codebook", "tbchs_codebook.toml",
+    out = _json("estimate", "period*.xpt", "hs_rate", "--codebook", "tbchs_codebook.toml",
                 "--shared-psus", "--pool", "0.5,0.25,0.25", cwd=periods)
     pool = out["provenance"]["design"]["pool"]
     assert pool["strata"] == "shared across files"
@@ -64,19 +64,19 @@ def test_shared_psus_and_factors_are_reported(periods: Path) -> None:
 
 
 def test_pool_mistakes_are_one_line(periods: Path) -> None:
-    done = run_wstats("estimate", "period*.xpt", "SLEEPHRS", "--codebook",
+    done = run_wstats("estimate", "period*.xpt", "sl_hours", "--codebook",
                       "tbchs_codebook.toml", "--pool", "0.5,0.4", cwd=periods)
     assert done.returncode == 1
     assert done.stderr.strip() == ("wstats: error: pool factors 0.5, 0.4 sum to 0.9, not 1; "
                                    "rescale them (e.g. 0.5,0.25,0.25)")
-    done = run_wstats("estimate", "cycle*.xpt", "SLEEPHRS", cwd=periods)
+    done = run_wstats("estimate", "cycle*.xpt", "sl_hours", cwd=periods)
     assert "'cycle*.xpt' matches no file" in done.stderr
 
 
 def test_nonresponse_and_bounds_take_several_files(periods: Path) -> None:
-    nr = _json("nonresponse", "period*.xpt", "SLEEPHRS", "--by", "_file", "--codebook",
+    nr = _json("nonresponse", "period*.xpt", "sl_hours", "--by", "_file", "--codebook",
                "tbchs_codebook.toml", cwd=periods)
     assert len(nr["results"]) == 4
-    done = run_wstats("bounds", "period1.xpt", "period2.xpt", "GENHLTH", "--codebook",
+    done = run_wstats("bounds", "period1.xpt", "period2.xpt", "hs_rate", "--codebook",
                       "tbchs_codebook.toml", "--format", "csv", cwd=periods)
     assert done.returncode == 0, done.stderr

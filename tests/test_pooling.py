@@ -14,13 +14,13 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from wstats._column import Dataset
-from wstats._design import Design
-from wstats._estimate import estimate
-from wstats._nonresponse import nonresponse
+from wstats.decoding.columns import Dataset
 from wstats.decoding.stacking import NOT_IN_FILE, stack_datasets
+from wstats.design.declared import Design
 from wstats.design.pooling import parse_pool, pool_factors, satterthwaite_df
 from wstats.errors import DesignError, WstatsWarning
+from wstats.estimation.estimate import estimate
+from wstats.reports.nonresponse import nonresponse
 
 Cols = dict[str, np.ndarray]
 

@@ -19,12 +19,12 @@ from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
-from wstats._column import Dataset, DecodedColumn
-from wstats._reasons import Reasons
+from wstats.decoding.columns import Dataset, DecodedColumn
+from wstats.decoding.reasons import Reasons
 from wstats.errors import ColumnError, ReadError, WstatsWarning
 
 if TYPE_CHECKING:
-    from wstats._codebook import Codebook
+    from wstats.decoding.codebook import Codebook
 
     CodebookArg = Codebook | str | Path | None
 
@@ -83,7 +83,7 @@ def expand_paths(path: str | Path | Sequence[str | Path]) -> list[str]:
     A glob or a folder gives its files sorted by name (a folder: the data files inside it,
     at any depth, e.g. a Parquet dataset); a list keeps its order.
     """
-    from wstats._readers import FORMATS
+    from wstats.readers.dispatch import FORMATS
 
     items = list(path) if isinstance(path, list | tuple) else [path]
     out: list[str] = []
@@ -209,7 +209,7 @@ def _warn_labels(name: str, parts: Sequence[Dataset], stems: Sequence[str]) -> N
 def _warn_missing_codes(name: str, codebooks: Sequence[CodebookArg],
                         stems: Sequence[str]) -> None:
     """Warn when per-file codebooks declare different missing codes for *name*."""
-    from wstats._codebook import Codebook
+    from wstats.decoding.codebook import Codebook
 
     declared = [(s, _declared(cb, name)) for cb, s in zip(codebooks, stems, strict=True)
                 if isinstance(cb, Codebook)]

@@ -1,7 +1,7 @@
 """Binding a design to data pooled from several files: the file of each row, rescaled
 weights, checks that every file has the design's columns, replicate blocks.
 
-The rules are in :mod:`wstats.design.pooling`; :func:`wstats._binding.bind` calls
+The rules are in :mod:`wstats.design.pooling`; :func:`wstats.design.binding.bind` calls
 :func:`pool_of` first (before any design column is checked row by row, so a design column
 that one file lacks is named as such) and :meth:`Pool.rescale` once the weights are checked.
 """
@@ -14,7 +14,6 @@ from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
-from wstats._replicates import replicate_scale, resolve_replicate_columns
 from wstats.design.pooling import (
     FILE_COLUMN,
     NOT_IN_FILE,
@@ -24,13 +23,14 @@ from wstats.design.pooling import (
     replicate_blocks,
     warn_weight_sums,
 )
+from wstats.design.replicates import replicate_scale, resolve_replicate_columns
 from wstats.errors import DesignError
 
 if TYPE_CHECKING:
     import numpy.typing as npt
 
-    from wstats._column import Dataset
-    from wstats._design import Design
+    from wstats.decoding.columns import Dataset
+    from wstats.design.bound import DeclaredDesign as Design
 
     Array = npt.NDArray[np.float64]
     Index = npt.NDArray[np.int64]

@@ -17,7 +17,7 @@ Rules (REFERENCES §16; NCHS tutorial on combining survey cycles; Botman & Jack 
   keeps its full-sample weight in that block's replicates, and each block has its own
   coefficient: v = sum_k scale_k sum_r f_kr (theta_kr - theta)^2.
 
-Everything here is arrays in, arrays out; binding calls it (:mod:`wstats._binding`).
+Everything here is arrays in, arrays out; binding calls it (:mod:`wstats.design.binding`).
 """
 
 from __future__ import annotations

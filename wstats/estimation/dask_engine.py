@@ -24,12 +24,12 @@ from wstats.decoding.stacking import FILE_COLUMN, PeriodFiles, expand_paths, is_
 from wstats.errors import EngineError
 
 if TYPE_CHECKING:
-    from wstats._codebook import Codebook
-    from wstats._design import Design
-    from wstats._reliability import ReliabilityStandard
-    from wstats._results import EstimateTable
+    from wstats.decoding.codebook import Codebook
+    from wstats.design.declared import Design
     from wstats.estimation.from_sums import Summed
     from wstats.estimation.partition_sums import PartSums, Request, Task
+    from wstats.estimation.reliability import ReliabilityStandard
+    from wstats.estimation.results import EstimateTable
 
 __all__ = ["ENGINES", "PARTITION_ROWS", "estimate_dask", "need_dask"]
 
@@ -65,10 +65,10 @@ def estimate_dask(
     Parquet file) and *workers* (local cluster size; None: one per CPU).
     """
     need_dask()
-    from wstats._estimate import _check_options, table_of
+    from wstats.estimation.assemble import check_options, table_of
     from wstats.estimation.summed_design import check_summable, summed_design
 
-    stats = _check_options(statistics, level, proportion_ci, ())
+    stats = check_options(statistics, level, proportion_ci, ())
     check_summable(design, stats or [])
     paths = expand_paths(data) if is_several(data) else [str(data)]
     cb = _codebook(codebook)
@@ -96,7 +96,7 @@ def estimate_dask(
 def _codebook(codebook: Codebook | str | Path | None) -> Codebook | None:
     """Return the codebook loaded (workers get the object)."""
     if isinstance(codebook, str | Path):
-        from wstats._codebook import load_codebook
+        from wstats.decoding.codebook import load_codebook
 
         return load_codebook(codebook)
     return codebook
@@ -117,9 +117,9 @@ def _request(paths: list[str], design: Design, variables: Sequence[str],
              categorical: Sequence[str], cb: Codebook | None, encoding: str
              ) -> tuple[Request, list[str], list[str], list[str]]:
     """Return what partitions sum, and which variables are numeric, categorical, either."""
-    from wstats._load import read
-    from wstats._readers import file_columns
+    from wstats.decoding.load import read
     from wstats.estimation.partition_sums import Request
+    from wstats.readers.dispatch import file_columns
 
     own = [v for v in dict.fromkeys([*variables, *by]) if v != FILE_COLUMN]
     first = read(paths[0], own, cb, (0, 1), False, encoding)
@@ -140,7 +140,7 @@ def _request(paths: list[str], design: Design, variables: Sequence[str],
                 ambiguous.append(name)
     extra: list[str] = []
     if where:
-        from wstats._expr import expression_names
+        from wstats.decoding.expressions import expression_names
 
         extra = expression_names(where)
     columns = [*own, *extra, *design.columns(file_columns(paths[0]), paths[0])]

@@ -2,11 +2,11 @@
 
 The sums of :mod:`wstats.estimation.partition_sums`, added over every partition, are grouped
 by (file, stratum, PSU, domain key). Each group becomes one row of a small synthetic design
-(weight 1, its PSU, its domain), so the in-memory engine's own machinery
-(:class:`~wstats._sums.WeightedSums`, :func:`~wstats._variance.linearized_variance`, the
-Piece assembly) gives the estimates: a weighted sum over the rows of a group is the group's
-sum. The formulas are those of :mod:`wstats._stats` and :mod:`wstats._batch`; only the order
-of the additions differs, so results agree to rounding (tests hold them to 1e-10).
+(weight 1, its PSU, its domain), so the in-memory engine's own machinery (WeightedSums,
+linearized_variance, the Piece assembly) gives the estimates: a weighted sum over the rows
+of a group is the group's sum. The formulas are those of :mod:`wstats.estimation.statistics`
+and :mod:`wstats.estimation.many_variables`; only the order of the additions differs, so
+results agree to rounding (tests hold them to 1e-10).
 """
 
 from __future__ import annotations
@@ -17,18 +17,21 @@ from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
-from wstats._column import DecodedColumn
-from wstats._reasons import Reasons
-from wstats._stats import Context, Piece, _Moments, _piece, category_levels, level_index
-from wstats._sums import Domains, WeightedSums
-from wstats._variance import linearized_variance
+from wstats.decoding.columns import DecodedColumn
+from wstats.decoding.reasons import Reasons
+from wstats.estimation.domains import Domains
+from wstats.estimation.levels import category_levels, level_index
 from wstats.estimation.partition_sums import KEYS, PartSums, by_key
+from wstats.estimation.statistics import Context, Piece, _Moments, _piece
+from wstats.estimation.sums import WeightedSums
+from wstats.estimation.variance import linearized_variance
 
 if TYPE_CHECKING:
     import numpy.typing as npt
     import pandas as pd
 
-    from wstats._design import BoundDesign, Design
+    from wstats.design.bound import BoundDesign
+    from wstats.design.declared import Design
 
     Array = npt.NDArray[np.float64]
     Index = npt.NDArray[np.int64]
@@ -166,7 +169,7 @@ def level_matrix(s: Summed, levels: pd.DataFrame, values: list[Any], col: Decode
 def proportion(s: Summed, name: str, j: int, ci: str, by_level: Array, values_labels:
                tuple[list[Any], list[str]], replicate: Array | None) -> Piece:
     """Return the Piece of the proportions of every level of a categorical variable."""
-    from wstats._intervals import effective_n
+    from wstats.estimation.intervals import effective_n
 
     ws = s.sums
     values, labels = values_labels

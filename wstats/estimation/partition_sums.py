@@ -24,7 +24,7 @@ if TYPE_CHECKING:
     import numpy.typing as npt
     import pandas as pd
 
-    from wstats._column import Dataset
+    from wstats.decoding.columns import Dataset
 
     Array = npt.NDArray[np.float64]
 
@@ -95,7 +95,7 @@ def partition_sums(task: Task, req: Request) -> PartSums:
     """Read and decode one partition and return its sums (runs on a worker)."""
     import pandas as pd
 
-    from wstats._load import read
+    from wstats.decoding.load import read
 
     data = read(task.path, list(req.columns), req.codebook, task.rows, False, req.encoding)
     keys = _keys(data, task, req)
@@ -145,8 +145,8 @@ def _inside(data: Dataset, where: str | None) -> npt.NDArray[np.bool_]:
     """Return the rows of the population domain (the ``where`` condition holds)."""
     if where is None:
         return np.ones(data.n_rows, dtype=bool)
-    from wstats._expr import parse_expression
-    from wstats._reasons import VALID
+    from wstats.decoding.expressions import parse_expression
+    from wstats.decoding.reasons import VALID
 
     expr = parse_expression(where, list(data.columns), "where")
     values, reasons = expr.evaluate(data.columns, data.vocabulary, data.n_rows)

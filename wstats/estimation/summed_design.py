@@ -3,7 +3,7 @@
 The groups of :mod:`wstats.estimation.partition_sums` carry raw stratum and PSU values; here
 they are coded as binding codes them (sorted values; strata keyed by file for pooled files
 unless PSUs are shared; PSUs nested in strata; singleton strata treated), giving a
-:class:`~wstats._design.BoundDesign` whose rows are the groups (weight 1).
+:class:`~wstats.design.bound.BoundDesign` whose rows are the groups (weight 1).
 """
 
 from __future__ import annotations
@@ -13,18 +13,18 @@ from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
-from wstats._binding import _psu_index, _singletons
-from wstats._design import BoundDesign
-from wstats._replicates import replicate_df, replicate_scale, replicate_variance
+from wstats.design.binding import _psu_index, _singletons
+from wstats.design.bound import BoundDesign
 from wstats.design.pooling import PeriodFiles, file_strata, pool_factors, pool_summary
+from wstats.design.replicates import replicate_df, replicate_scale, replicate_variance
 from wstats.errors import DesignError
 
 if TYPE_CHECKING:
     import numpy.typing as npt
     import pandas as pd
 
-    from wstats._design import Design
-    from wstats._sums import Domains
+    from wstats.design.declared import Design
+    from wstats.estimation.domains import Domains
 
     Array = npt.NDArray[np.float64]
     Index = npt.NDArray[np.int64]
@@ -150,8 +150,8 @@ def cells_of(frame: pd.DataFrame, by: Sequence[str], by_levels: list[tuple[list[
              domains: Domains, text: dict[str, bool], labels: dict[str, dict[float, str]]
              ) -> Index:
     """Return the by-cell of each row of a replicate-sum frame (-1 outside every cell)."""
-    from wstats._stats import level_index
     from wstats.estimation.from_sums import _column
+    from wstats.estimation.levels import level_index
     from wstats.estimation.partition_sums import by_key
 
     inside = frame["_in"].to_numpy(dtype=bool)

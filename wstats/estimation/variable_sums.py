@@ -11,17 +11,17 @@ from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
-from wstats._column import DecodedColumn
-from wstats._reasons import Reasons
-from wstats._stats import category_levels
+from wstats.decoding.columns import DecodedColumn
+from wstats.decoding.reasons import Reasons
 from wstats.estimation.from_sums import level_matrix
+from wstats.estimation.levels import category_levels
 from wstats.estimation.summed_design import cells_of, domain_sums, replicate_theta_variance
 
 if TYPE_CHECKING:
     import numpy.typing as npt
     import pandas as pd
 
-    from wstats._design import Design
+    from wstats.design.declared import Design
     from wstats.design.pooling import PeriodFiles
     from wstats.estimation.from_sums import Summed
     from wstats.estimation.partition_sums import PartSums, Request
