@@ -80,3 +80,49 @@ def test_nonresponse_and_bounds_take_several_files(periods: Path) -> None:
     done = run_wstats("bounds", "period1.xpt", "period2.xpt", "hs_rate", "--codebook",
                       "tbchs_codebook.toml", "--format", "csv", cwd=periods)
     assert done.returncode == 0, done.stderr
+
+
+def _write(path: Path, text: str) -> Path:
+    path.write_text(text, encoding="utf-8")
+    return path
+
+
+def test_an_analysis_file_pools_a_list_and_runs_on_dask(periods: Path, tmp_path: Path) -> None:
+    pytest.importorskip("distributed")
+    head = ('data = ["{0}/period1.xpt", "{0}/period2.xpt"]\ncodebook = "{0}/tbchs_codebook.toml"\n'
+            .format(periods))
+    job = ('[[estimates]]\nvariables = ["sl_hours", "hs_rate"]\nby = ["_file"]\n'
+           'output = "{}.json"\n')
+    memory = _write(tmp_path / "memory.toml", head + job.format("memory"))
+    dask = _write(tmp_path / "dask.toml", head + 'engine = "dask"\n' + job.format("dask"))
+    for path in (memory, dask):
+        done = run_wstats("run", path.name, cwd=tmp_path)
+        assert done.returncode == 0, done.stderr
+    a = json.loads((tmp_path / "memory.json").read_text())
+    b = json.loads((tmp_path / "dask.json").read_text())
+    assert a["provenance"]["design"]["pool"]["files"] == [
+        str(periods / "period1.xpt"), str(periods / "period2.xpt")]
+    assert [i["name"] for i in a["provenance"]["inputs"]][:2] == ["period1.xpt", "period2.xpt"]
+    for x, y in zip(a["results"], b["results"], strict=True):
+        assert y["estimate"] == pytest.approx(x["estimate"], rel=1e-10)
+        assert y["se"] == pytest.approx(x["se"], rel=1e-10)
+
+
+def test_the_dask_engine_runs_estimates_only(periods: Path, tmp_path: Path) -> None:
+    text = (f'data = "{periods}/period*.xpt"\nengine = "dask"\n[design]\nweight = "wt_final"\n'
+            '[[nonresponse]]\nvariables = ["sl_hours"]\noutput = "n.json"\n')
+    _write(tmp_path / "a.toml", text)
+    done = run_wstats("run", "a.toml", cwd=tmp_path)
+    assert done.returncode == 1
+    assert "engine 'dask' runs [[estimates]] entries only, not [[nonresponse]] #1" in done.stderr
+
+
+def test_a_table_spec_pools_a_glob_with_periods_as_columns(periods: Path, tmp_path: Path
+                                                           ) -> None:
+    spec = _write(tmp_path / "t.toml", f'data = "{periods}/period*.xpt"\n'
+                  f'codebook = "{periods}/tbchs_codebook.toml"\nrows = ["sl_hours"]\n'
+                  '[columns]\nby = ["_file"]\n')
+    done = run_wstats("table", spec.name, "--format", "csv", cwd=tmp_path)
+    assert done.returncode == 0, done.stderr
+    header = next(line for line in done.stdout.splitlines() if not line.startswith("#"))
+    assert "period1" in header and "period3" in header, header

@@ -19,7 +19,8 @@ from wstats.reports.table_specs import _Spec
 __all__ = ["JOB_KEYS", "Analysis", "Job", "Output", "load_analysis"]
 
 _TOP = ("data", "codebook", "title", "design", "defaults", "estimates", "nonresponse",
-        "bounds", "table", "methods", "plot")
+        "bounds", "table", "methods", "plot", "engine")
+_ENGINES = ("memory", "dask")
 _OUT = ("output", "format")
 _DOMAIN = ("variables", "by", "where", "level")
 #: table name -> allowed keys of each entry
@@ -66,12 +67,15 @@ class Analysis:
     Attributes
     ----------
     source : the analysis file.
-    data : the survey data file.
+    data : the survey data file (the first of several).
     codebook : the codebook file, or None.
     design : design settings given in the file (``Design`` field -> value); the codebook's
         ``[design]`` lies underneath.
     jobs : every output-producing entry: estimates, nonresponse, bounds, table, methods,
         plot (the order they are computed and written in), each kind in file order.
+    files : every data file when ``data`` names several (a list or a glob; they are pooled,
+        each file one period), else empty.
+    engine : ``memory`` or ``dask`` (``[[estimates]]`` entries on a Dask cluster).
     """
 
     source: Path
@@ -79,6 +83,13 @@ class Analysis:
     codebook: Path | None
     design: Mapping[str, Any]
     jobs: tuple[Job, ...] = field(default_factory=tuple)
+    files: tuple[Path, ...] = ()
+    engine: str = "memory"
+
+    @property
+    def data_files(self) -> tuple[Path, ...]:
+        """Every data file (one, or the pooled files)."""
+        return self.files or (self.data,)
 
     def outputs(self) -> list[Output]:
         """Return every output of every job, in order."""
@@ -126,6 +137,8 @@ class _Parser(_Spec):
     checker's, so both files report mistakes in the same words.
     """
 
+    RELATIVE_TO = "the analysis file's folder"
+
     def __init__(self, source: Path, doc: Mapping[str, Any]) -> None:
         self.source, self.doc, self.base = source, doc, source.parent
         self.keys(doc, _TOP, "")
@@ -159,6 +172,18 @@ class _Parser(_Spec):
                             "analysis file's folder")
         return p
 
+    def engine(self, jobs: Sequence[Job]) -> str:
+        """Return the engine; the Dask engine runs [[estimates]] (and their charts) only."""
+        engine = self.text(self.doc.get("engine", "memory"), "engine")
+        if engine not in _ENGINES:
+            raise self.fail("engine", f"'{engine}' is not one of {', '.join(_ENGINES)}"
+                            f"{did_you_mean(engine, _ENGINES)}")
+        other = [j.key for j in jobs if j.kind not in ("estimates", "plot")]
+        if engine == "dask" and other:
+            raise self.fail("engine", f"engine 'dask' runs [[estimates]] entries only, not "
+                            f"{other[0]}; run that entry in another analysis file")
+        return engine
+
     def analysis(self) -> Analysis:
         """Check every part and assemble the Analysis."""
         if "data" not in self.doc:
@@ -185,9 +210,11 @@ class _Parser(_Spec):
                                 "entries; give each its own name")
             seen.add((job.kind, job.name))
             self.check_source(job, jobs)
-        return Analysis(self.source, self.input_path("data"),
+        files = self.data_files()
+        return Analysis(self.source, files[0],
                         self.input_path("codebook") if "codebook" in self.doc else None,
-                        self.subtable(self.doc.get("design", {}), "design"), tuple(jobs))
+                        self.subtable(self.doc.get("design", {}), "design"), tuple(jobs),
+                        tuple(files) if len(files) > 1 else (), self.engine(jobs))
 
     def check_source(self, job: Job, jobs: Sequence[Job]) -> None:
         """Check that a [methods] or [[plot]] entry names an entry that exists."""

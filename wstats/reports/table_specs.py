@@ -78,6 +78,8 @@ class TableSpec:
     reliability : name of the reliability standard (``wstats.estimation.reliability.STANDARDS``).
     notes : extra footnotes, printed last.
     outputs : ``(path, format)`` pairs to write.
+    files : every data file when ``data`` names several (a list or a glob: pooled, each file
+        one period), else empty; ``data`` is then the first.
     """
 
     source: Path
@@ -98,6 +100,7 @@ class TableSpec:
     proportion_ci: str = "korn-graubard"
     reliability: str = "nchs-2017"
     notes: tuple[str, ...] = ()
+    files: tuple[Path, ...] = ()
     outputs: tuple[tuple[Path, str], ...] = ()
 
 
@@ -138,6 +141,9 @@ def load_table_spec(path: str | Path) -> TableSpec:
 
 class _Spec:
     """Checks one parsed spec document key by key, failing with the key's name."""
+
+    #: where relative paths start, in messages
+    RELATIVE_TO = "the spec"
 
     def __init__(self, source: Path, doc: Mapping[str, Any]) -> None:
         self.source, self.doc, self.base = source, doc, source.parent
@@ -185,6 +191,37 @@ class _Spec:
             raise self.fail(key, f"file {p} does not exist; paths are relative to the spec")
         return p
 
+    def data_files(self) -> list[Path]:
+        """Return the data files: one path, a glob or a list of paths (relative to the file)."""
+        import glob
+
+        if "data" not in self.doc:
+            raise self.fail("data", "missing; name the file, e.g. data = \"survey.xpt\"")
+        value = self.doc["data"]
+        items = value if isinstance(value, list) else [value]
+        out: list[Path] = []
+        for i, item in enumerate(items):
+            text = self.text(item, "data" if len(items) == 1 else f"data[{i + 1}]")
+            if any(c in text for c in "*?["):
+                found = sorted(Path(p) for p in glob.glob(str(self.base / text)))
+                if not found:
+                    raise self.fail("data", f"'{text}' matches no file in {self.base}")
+                out.extend(found)
+                continue
+            p = self.base / text
+            if not p.is_file():
+                raise self.fail("data", f"file {p} does not exist; paths are relative to "
+                                f"{self.RELATIVE_TO}")
+            out.append(p)
+        if not out:
+            raise self.fail("data", "the list names no file; give at least one")
+        return out
+
+    def pooled_files(self) -> tuple[Path, ...]:
+        """Return the data files when ``data`` names several, else an empty tuple."""
+        files = self.data_files()
+        return tuple(files) if len(files) > 1 else ()
+
     def build(self) -> TableSpec:
         """Check every part and assemble the TableSpec."""
         cells, intervals = self.table("cells"), self.table("intervals")
@@ -193,7 +230,8 @@ class _Spec:
         decimals = int(self.number(cells.get("decimals", 1), "cells.decimals", 0, 10))
         return TableSpec(
             source=self.source, title=self.text(self.doc.get("title", "Table"), "title"),
-            data=self.path("data", True) or self.base, codebook=self.path("codebook", False),
+            data=self.data_files()[0], files=self.pooled_files(),
+            codebook=self.path("codebook", False),
             design=self.design(), rows=self.rows(),
             where=self.text(self.doc["where"], "where") if "where" in self.doc else None,
             **self.columns(), styles=self.styles(cells), decimals=decimals,
