@@ -259,3 +259,35 @@ def test_one_file_is_not_pooled() -> None:
         warnings.simplefilter("error")
         t = estimate(Dataset.from_arrays(_period(21)), DESIGN, ["y"])
     assert "pool" not in t.design
+
+
+def _mean_change(data: Dataset, design: Design) -> tuple[float, float, float]:
+    """Return SE of (mean 2 - mean 1) through its linearized variable, and the two SEs.
+
+    The change's influence is u = d2 (y - ybar2)/N2 - d1 (y - ybar1)/N1 (REFERENCES §1,
+    §12: a domain mean's linearized variable; a difference's is the difference); the SE of
+    the total of u under the design is the SE of the change.
+    """
+    per = estimate(data, design, ["y"], by=["_file"]).frame
+    f = data.columns["_file"].values
+    y = data.columns["y"].values
+    u = np.zeros(len(y))
+    for k, sign in ((1, -1.0), (2, 1.0)):
+        ybar, n_w = float(per.estimate[k]), float(per.weighted_n[k])
+        u += np.where(f == k, sign * (y - ybar) / n_w, 0.0)
+    cols = {**data.columns, "u": data.columns["y"].replace(name="u", values=u)}
+    with_u = Dataset(cols, data.vocabulary, data.n_rows, data.source, data.metadata)
+    change = estimate(with_u, design, ["u"], statistics="total").frame
+    return float(change.se[0]), float(per.se[1]), float(per.se[2])
+
+
+@settings(max_examples=15, deadline=None)
+@given(seed=st.integers(0, 10_000))
+def test_change_in_means_of_independent_files_has_no_covariance(seed: int) -> None:
+    # REFERENCES §13, §16 (NCES 2006-075 App. A [S]): independent periods, v(D) = v1 + v2
+    data = _pooled(_period(seed), _period(seed + 1, weight=14.0))
+    se, se1, se2 = _mean_change(data, DESIGN)
+    assert se == pytest.approx(np.sqrt(se1**2 + se2**2), rel=1e-10)
+    shared = Design("W", strata="S", psu="P", shared_psus=True)
+    se_s, se1_s, se2_s = _mean_change(data, shared)
+    assert abs(se_s**2 - se1_s**2 - se2_s**2) > 1e-9 * (se1_s**2 + se2_s**2)
