@@ -40,7 +40,7 @@ from run import DOMAIN, PSU, STRATA, TEN, WEIGHT, machine  # noqa: E402
 
 
 def build(cache: Path, rows: int, columns: int) -> tuple[Path, Path]:
-    """Write the survey once (transport file, then its Parquet cache); return it and the codebook."""
+    """Write the survey once (transport file, then its Parquet cache); return it, codebook."""
     folder = cache / f"tbchs_{rows}x{columns}"
     parquet, xpt = folder / "tbchs_sample.parquet", folder / "tbchs_sample.xpt"
     if not parquet.exists():

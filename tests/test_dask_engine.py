@@ -159,3 +159,22 @@ def test_a_dataset_is_not_given_to_the_dask_engine(periods: Path) -> None:
     data = read(periods / "period1.xpt", ["sl_hours", "wt_final", "ds_strat", "ds_psu"])
     with pytest.raises(EstimationError, match="give their paths"):
         estimate(data, DEMO, ["sl_hours"], engine="dask")
+
+
+@pytest.mark.parametrize("singleton", ["center", "collapse"])
+def test_singleton_strata_treated_as_in_memory(tmp_path: Path, cluster: str,
+                                               singleton: str) -> None:
+    # the same treatment code (wstats.design.binding) on the summed groups
+    import pandas as pd
+
+    rng = np.random.default_rng(4)
+    n = 300
+    stratum = np.repeat([1.0, 2.0, 3.0, 4.0], [90, 60, 90, 60])
+    psu = np.concatenate([np.repeat([1.0, 2.0, 3.0], 30), np.ones(60),
+                          np.repeat([1.0, 2.0, 3.0], 30), np.ones(60)])
+    frame = pd.DataFrame({"W": rng.uniform(1, 3, n), "S": stratum, "P": psu,
+                          "y": rng.normal(size=n), "g": rng.integers(1, 3, n).astype(float)})
+    path = tmp_path / "single.parquet"
+    frame.to_parquet(path)
+    design = Design("W", strata="S", psu="P", singleton=singleton)
+    _both(path, design, ["y"], cluster, None, by=["g"], statistics=["mean", "total"])
