@@ -281,6 +281,13 @@ def design_line(design: Mapping[str, Any], settings: Mapping[str, Any], level: f
         parts.append(f"{design['n_psu']} PSUs")
     if design.get("df") is not None:
         parts.append(f"df {group_text(design['df'])}")
+    pool = design.get("pool")
+    if pool:  # several files: which factors, and that totals are per period
+        rule = pool.get("rule")
+        parts.append(f"{len(pool.get('factors') or {})} files pooled ({rule} weights; totals "
+                     "per period)")
+    if settings.get("engine") == "dask":
+        parts.append("Dask engine")
     method = settings.get("proportion_ci")
     level_text = fmt_number(level * 100, 1).rstrip("0").rstrip(".")
     ci = f"{level_text}% intervals" + (f" ({method} for proportions)" if method else "")
