@@ -26,7 +26,8 @@ def write_periods(outdir: str | os.PathLike[str], periods: int = 3, rows: int | 
     periods : number of periods (files).
     rows : respondents per period (default: the demo's default).
     formats : any of ``xpt``, ``sav``, ``dta`` (one file per period and format).
-    seed : sample seed of the first period (default ``SAMPLE_SEED``).
+    seed : sample seed of the first period (default ``SAMPLE_SEED + 1``: the periods are
+        other samples than the one ``write_demo`` writes).
 
     Examples
     --------
@@ -38,7 +39,7 @@ def write_periods(outdir: str | os.PathLike[str], periods: int = 3, rows: int | 
     folder = Path(outdir)
     folder.mkdir(parents=True, exist_ok=True)
     items = sample_items(None)
-    first = SAMPLE_SEED if seed is None else seed
+    first = SAMPLE_SEED + 1 if seed is None else seed
     out: list[Path] = []
     for k in range(periods):  # loop over periods (files), not rows
         frame = build_sample(rows, None, first + k)

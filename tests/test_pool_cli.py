@@ -126,3 +126,12 @@ def test_a_table_spec_pools_a_glob_with_periods_as_columns(periods: Path, tmp_pa
     assert done.returncode == 0, done.stderr
     header = next(line for line in done.stdout.splitlines() if not line.startswith("#"))
     assert "period1" in header and "period3" in header, header
+
+
+def test_the_demo_writes_periods_to_pool(tmp_path: Path) -> None:
+    done = run_wstats("demo", "d", "--rows", "3000", "--periods", "2", cwd=tmp_path)
+    assert done.returncode == 0, done.stderr
+    assert (tmp_path / "d" / "period1.xpt").exists() and (tmp_path / "d" / "period2.xpt").exists()
+    out = _json("estimate", "d/period*.xpt", "sl_hours", "--by", "_file", "--codebook",
+                "d/tbchs_codebook.toml", cwd=tmp_path)
+    assert len(out["results"]) == 3

@@ -309,6 +309,8 @@ def add_demo_args(p: argparse.ArgumentParser) -> None:
                    help="write into a folder that already has files")
     p.add_argument("--rows", type=int, default=None, help="respondents (default about 60,000)")
     p.add_argument("--columns", type=int, default=None, help="pad to this many columns")
+    p.add_argument("--periods", type=int, default=0, metavar="N",
+                   help="also write N independent periods (period1.xpt, ...) to pool")
 
 
 class Parser(argparse.ArgumentParser):

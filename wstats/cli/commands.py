@@ -204,7 +204,7 @@ def _run_demo(args: argparse.Namespace) -> int:
     from wstats.cli.demo import run_demo
 
     run_demo(Path(args.folder), overwrite=args.overwrite, rows=args.rows, columns=args.columns,
-             show=_print_rich)
+             show=_print_rich, periods=args.periods)
     return 0
 
 

@@ -12,7 +12,8 @@ __all__ = ["run_demo"]
 
 
 def run_demo(folder: Path, *, overwrite: bool = False, rows: int | None = None,
-             columns: int | None = None, show: Callable[[Any], None] = print) -> list[Path]:
+             columns: int | None = None, show: Callable[[Any], None] = print,
+             periods: int = 0) -> list[Path]:
     """Write the demo files into *folder*, run ``tbchs_analysis.toml``, show what came out.
 
     Parameters
@@ -22,6 +23,8 @@ def run_demo(folder: Path, *, overwrite: bool = False, rows: int | None = None,
     overwrite : write into a non-empty folder, replacing earlier demo files.
     rows, columns : sample size and padded column count (default about 60,000 x 68).
     show : called with each renderable (rich objects or text) to display.
+    periods : also write this many independent periods of the survey (``period1.xpt``, ...)
+        for pooling (``wstats estimate 'period*.xpt' ... --by _file``).
 
     Returns
     -------
@@ -35,7 +38,14 @@ def run_demo(folder: Path, *, overwrite: bool = False, rows: int | None = None,
     written = write_demo(folder, rows=rows, columns=columns)
     outputs, results = execute_analysis(folder / "tbchs_analysis.toml", overwrite=True)
     _show(results, show)
-    files = sorted({*map(Path, written.values()), *outputs})
+    pooled: list[Path] = []
+    if periods > 0:
+        from demo.periods import write_periods
+
+        pooled = write_periods(folder, periods=periods, rows=rows)
+        show(f"\nPooled periods: wstats estimate '{folder / 'period*.xpt'}' sl_hours --by _file "
+             f"--codebook {folder / 'tbchs_codebook.toml'}")
+    files = sorted({*map(Path, written.values()), *outputs, *pooled})
     show(f"\nWrote {len(files)} files into {folder}/: "
          + ", ".join(p.name for p in files)
          + f"\nRe-run the analysis with: wstats run {folder / 'tbchs_analysis.toml'} "
