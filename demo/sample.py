@@ -27,6 +27,7 @@ from functools import lru_cache
 import numpy as np
 import pandas as pd
 
+from demo.answers import person_items, unit_code
 from demo.items import ITEMS, Item, column_labels, decode, value_labels
 from demo.population import (
     POPULATION_SEED,
@@ -36,8 +37,6 @@ from demo.population import (
     build_frame,
     household_adults,
     person_frame,
-    person_items,
-    unit_code,
 )
 
 __all__ = [

@@ -15,8 +15,9 @@ from scipy import stats
 
 import demo
 from demo.__main__ import main
+from demo.answers import unit_code
 from demo.items import FAMILY_CODES, ITEMS, decode
-from demo.population import Draw, build_frame, household_adults, unit_code
+from demo.population import Draw, build_frame, household_adults
 from demo.write import codebook_text
 
 ROWS = 3000
@@ -266,7 +267,7 @@ def test_truth_is_consistent_with_the_population(truth: pd.DataFrame) -> None:
 @pytest.mark.slow
 def test_truth_recomputed_directly(truth: pd.DataFrame) -> None:
     # the smallest district, regenerated household by household and averaged with plain numpy
-    from demo.population import person_items
+    from demo.answers import person_items
 
     frame = build_frame()
     clusters = np.flatnonzero(frame.strat_district[frame.clus_stratum] == 6)
