@@ -291,3 +291,62 @@ def test_change_in_means_of_independent_files_has_no_covariance(seed: int) -> No
     shared = Design("W", strata="S", psu="P", shared_psus=True)
     se_s, se1_s, se2_s = _mean_change(data, shared)
     assert abs(se_s**2 - se1_s**2 - se2_s**2) > 1e-9 * (se1_s**2 + se2_s**2)
+
+
+def _csv(path: Any, cols: Cols) -> Any:
+    import pandas as pd
+
+    pd.DataFrame(cols).to_csv(path, index=False)
+    return path
+
+
+def test_per_file_codebooks_with_different_missing_codes_warn(tmp_path: Any) -> None:
+    from wstats import Codebook, read
+
+    a = _period(30)
+    b = _period(31)
+    a["q"] = np.where(np.arange(len(a["y"])) % 10 == 0, 9.0, 1.0)
+    b["q"] = np.where(np.arange(len(b["y"])) % 10 == 0, 99.0, 2.0)
+    files = [_csv(tmp_path / "y1.csv", a), _csv(tmp_path / "y2.csv", b)]
+    cb1 = Codebook.from_dict({"variables": {"q": {"codes": {"9": "refused"}}}})
+    cb2 = Codebook.from_dict({"variables": {"q": {"codes": {"99": "refused"}}}})
+    with pytest.warns(WstatsWarning, match=r"variable 'q': declared missing codes differ "
+                      r"between y1.csv \(9 'refused'\) and y2.csv \(99 'refused'\)"):
+        data = read(files, ["q", "W", "S", "P"], [cb1, cb2])
+    expected = 2 * int((np.arange(len(a["y"])) % 10 == 0).sum())  # each file its own codes
+    assert data.columns["q"].reason_counts()["refused"] == expected
+    with pytest.warns(WstatsWarning, match="a codebook applies to y1.csv but not to y2.csv"):
+        read(files, ["y", "W"], [cb1, None])
+
+
+def test_several_files_from_a_glob_a_list_or_a_folder(tmp_path: Any) -> None:
+    from wstats import read
+    from wstats.errors import ColumnError, ReadError
+
+    _csv(tmp_path / "p1.csv", _period(32))
+    _csv(tmp_path / "p2.csv", _period(33))
+    by_glob = read(str(tmp_path / "p*.csv"), ["y", "_file"])
+    by_folder = read(tmp_path, ["y", "_file"])
+    by_list = read([tmp_path / "p2.csv", tmp_path / "p1.csv"], ["y", "_file"])
+    assert by_glob.metadata["pool"].stems == ("p1", "p2") == by_folder.metadata["pool"].stems
+    assert by_list.metadata["pool"].stems == ("p2", "p1")  # a list keeps its order
+    assert by_list.columns["_file"].value_labels == {1.0: "p2", 2.0: "p1"}
+    with pytest.raises(ColumnError, match="variable 'yy' is in none of the 2 files"):
+        read(str(tmp_path / "p*.csv"), ["yy"])
+    with pytest.raises(ReadError, match="'.*q\\*.csv' matches no file"):
+        read(str(tmp_path / "q*.csv"), ["y"])
+    with pytest.raises(ReadError, match="a file is named twice"):
+        read([tmp_path / "p1.csv", tmp_path / "p1.csv"], ["y"])
+
+
+def test_a_codebook_labels_the_periods(tmp_path: Any) -> None:
+    from wstats import Codebook, read
+
+    _csv(tmp_path / "p1.csv", _period(34))
+    _csv(tmp_path / "p2.csv", _period(35))
+    cb = Codebook.from_dict({"variables": {"_file": {"kind": "categorical",
+                                                     "labels": {"1": "2023", "2": "2024"}}}})
+    data = read(str(tmp_path / "p*.csv"), ["y", "W", "S", "P", "_file"], cb)
+    t = estimate(data, DESIGN, ["y"], by=["_file"])
+    assert t.frame["_file"].tolist() == [None, "2023", "2024"]
+    assert data.metadata["pool"].labels == ("2023", "2024")

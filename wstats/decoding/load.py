@@ -108,18 +108,17 @@ def _read_several(path: str | Path | Sequence[str | Path], columns: Sequence[str
                           "codebook, or one per file in file order")
     books = [load_codebook(b) if isinstance(b, str | Path) else b for b in books]
     wanted = None if columns is None else [c for c in dict.fromkeys(columns) if c != FILE_COLUMN]
-    parts = []
-    for p, cb in zip(paths, books, strict=True):
-        own = None
-        if wanted is not None:
-            known = {*file_columns(p), *(cb.derived if cb else ())}
-            own = [c for c in wanted if c in known]
-        parts.append(read(p, own, cb, rows, progress, encoding))
+    known = [[*file_columns(p), *(cb.derived if cb else ())] for p, cb in
+             zip(paths, books, strict=True)]
     for name in wanted or ():
-        if not any(name in d.columns for d in parts):
-            known = parts[0].metadata.get("file_columns", [])
+        if not any(name in k for k in known):
             raise ColumnError(f"variable '{name}' is in none of the {len(paths)} files nor a "
-                              f"derived variable{did_you_mean(name, known)}")
+                              f"derived variable{did_you_mean(name, known[0])}")
+    parts = []
+    for p, cb, k in zip(paths, books, known, strict=True):
+        # a file holding none of the variables still gives its rows (they are not_in_file)
+        own = None if wanted is None else [c for c in wanted if c in k] or k[:1]
+        parts.append(read(p, own, cb, rows, progress, encoding))
     labels = next((b.labels_for(FILE_COLUMN) for b in books if b and b.labels_for(FILE_COLUMN)),
                   None)
     return stack_datasets(parts, paths, wanted, labels, books)
