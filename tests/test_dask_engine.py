@@ -178,3 +178,28 @@ def test_singleton_strata_treated_as_in_memory(tmp_path: Path, cluster: str,
     frame.to_parquet(path)
     design = Design("W", strata="S", psu="P", singleton=singleton)
     _both(path, design, ["y"], cluster, None, by=["g"], statistics=["mean", "total"])
+
+
+def test_a_variable_missing_from_one_pooled_file(tmp_path: Path, cluster: str) -> None:
+    # its rows there are not_in_file (nonresponse), as pooling in memory makes them
+    import pandas as pd
+
+    for k, drop in ((1, False), (2, True)):
+        rng = np.random.default_rng(k)
+        n = 240
+        frame = pd.DataFrame({"W": rng.uniform(1, 3, n), "S": np.repeat([1.0, 2.0], n // 2),
+                              "P": np.tile(np.repeat([1.0, 2.0, 3.0], n // 6), 2),
+                              "y": rng.normal(size=n), "z": rng.normal(size=n),
+                              "g": rng.integers(1, 4, n).astype(float)})
+        (frame.drop(columns=["z", "g"]) if drop else frame).to_parquet(tmp_path / f"f{k}.parquet")
+    design = Design("W", strata="S", psu="P")
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        _both(str(tmp_path / "f*.parquet"), design, ["y", "z"], cluster, None,
+              by=["_file", "g"])
+    from wstats.errors import WstatsWarning
+
+    with pytest.warns(WstatsWarning, match="variable 'g' is not in f2.parquet; its rows there "
+                      "get the reason not_in_file"):
+        estimate(str(tmp_path / "f*.parquet"), design, ["y"], by=["g"], engine="dask",
+                 scheduler=cluster)

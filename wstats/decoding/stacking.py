@@ -114,21 +114,12 @@ def stack_datasets(parts: Sequence[Dataset], paths: Sequence[str],
     *wanted* are the variables asked for (None: every variable of any file); one that a
     file lacks gets the reason ``not_in_file`` on that file's rows.
     """
-    stems = [Path(p).stem for p in paths]
-    if len(set(stems)) != len(stems):
-        stems = [str(Path(p)) for p in paths]
+    stems = _distinct([Path(p).stem for p in paths], paths)
+    shown = _distinct([Path(p).name for p in paths], paths)  # messages name the files
     names = list(wanted) if wanted is not None else list(
         dict.fromkeys(n for d in parts for n in d.columns))
     names = [n for n in names if n != FILE_COLUMN]
-    vocab = Reasons()
-    for d in parts:
-        for extra in d.vocabulary.extra:
-            vocab.add(extra)
-    if any(n not in d.columns for d in parts for n in names):
-        vocab.add(NOT_IN_FILE)
-    shown = [Path(p).name for p in paths]  # messages name the files
-    if len(set(shown)) != len(shown):
-        shown = list(paths)
+    vocab = _vocabulary(parts, names)
     _warn_codebooks(codebooks, shown)
     cols = {n: _stack_column(n, parts, shown, vocab, codebooks) for n in names}
     labels = {float(k + 1): s for k, s in enumerate(stems)}
@@ -139,13 +130,33 @@ def stack_datasets(parts: Sequence[Dataset], paths: Sequence[str],
                                       "file the record came from", "categorical", labels)
     files = PeriodFiles(tuple(paths), tuple(stems),
                         tuple(labels[float(k + 1)] for k in range(len(parts))), tuple(rows))
-    meta = {"format": "pooled", "reader": "wstats", "file_label": None, "pool": files,
+    return Dataset(cols, vocab, int(sum(rows)), " + ".join(paths), _metadata(parts, files))
+
+
+def _distinct(names: list[str], paths: Sequence[str]) -> list[str]:
+    """Return *names*, or the full paths when two names repeat."""
+    return names if len(set(names)) == len(names) else list(paths)
+
+
+def _vocabulary(parts: Sequence[Dataset], names: Sequence[str]) -> Reasons:
+    """Return the reasons of every file (core first), with not_in_file when a file lacks one."""
+    vocab = Reasons()
+    for d in parts:
+        for extra in d.vocabulary.extra:
+            vocab.add(extra)
+    if any(n not in d.columns for d in parts for n in names):
+        vocab.add(NOT_IN_FILE)
+    return vocab
+
+
+def _metadata(parts: Sequence[Dataset], files: PeriodFiles) -> dict[str, Any]:
+    """Return the facts of the pooled dataset (the pool, every file's columns)."""
+    return {"format": "pooled", "reader": "wstats", "file_label": None, "pool": files,
             "file_columns": list(dict.fromkeys(c for d in parts
                                                for c in d.metadata.get("file_columns", ()))),
             "codebook": next((d.metadata.get("codebook") for d in parts), None),
             "population": parts[0].metadata.get("population"),
             "described": sorted({n for d in parts for n in d.metadata.get("described", ())})}
-    return Dataset(cols, vocab, int(sum(rows)), " + ".join(paths), meta)
 
 
 def _stack_column(name: str, parts: Sequence[Dataset], stems: Sequence[str], vocab: Reasons,

@@ -20,6 +20,8 @@ from contextlib import contextmanager
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
+import numpy as np
+
 from wstats.decoding.stacking import FILE_COLUMN, PeriodFiles, expand_paths, is_several
 from wstats.errors import EngineError
 
@@ -79,6 +81,7 @@ def estimate_dask(
         total = _reduce(client, _tasks(paths, partition_rows), req)
     if files is not None:
         total.labels[FILE_COLUMN] = {float(k + 1): s for k, s in enumerate(files.labels)}
+        _warn_pooling(total, files)
     bound, lam = summed_design(total.main, design, files, len(req.replicates))
     from wstats.estimation.from_sums import pieces_from_sums
 
@@ -91,6 +94,21 @@ def estimate_dask(
     return table_of(pieces, by, summed.by_levels, summed.vocabulary.names, level,
                     proportion_ci, reliability, summary, {"df_rule": df_rule,
                                                           "engine": "dask"})
+
+
+def _warn_pooling(total: PartSums, files: PeriodFiles) -> None:
+    """Give the checks before pooling that the sums can tell, as pooling in memory does."""
+    import warnings
+
+    from wstats.design.pooling import NOT_IN_FILE, warn_weight_sums
+    from wstats.errors import WstatsWarning
+
+    for name, lacking in sorted(total.absent.items()):
+        warnings.warn(f"variable '{name}' is not in {', '.join(files.names[k] for k in lacking)}"
+                      f"; its rows there get the reason {NOT_IN_FILE}", WstatsWarning,
+                      stacklevel=3)
+    frame = total.main
+    warn_weight_sums(frame["w_all"].to_numpy(float), frame["_file"].to_numpy(np.int64), files)
 
 
 def _codebook(codebook: Codebook | str | Path | None) -> Codebook | None:
@@ -117,15 +135,59 @@ def _request(paths: list[str], design: Design, variables: Sequence[str],
              categorical: Sequence[str], cb: Codebook | None, encoding: str
              ) -> tuple[Request, list[str], list[str], list[str]]:
     """Return what partitions sum, and which variables are numeric, categorical, either."""
-    from wstats.decoding.load import read
+    from wstats.design.replicates import resolve_replicate_columns
     from wstats.estimation.partition_sums import Request
     from wstats.readers.dispatch import file_columns
 
     own = [v for v in dict.fromkeys([*variables, *by]) if v != FILE_COLUMN]
-    first = read(paths[0], own, cb, (0, 1), False, encoding)
+    first = _first_rows(paths, own, cb, encoding)
+    numeric, cats, ambiguous = _kinds(first, variables, stats, categorical)
+    extra: list[str] = []
+    if where:
+        from wstats.decoding.expressions import expression_names
+
+        extra = expression_names(where)
+    in_file = file_columns(paths[0])
+    reps = () if design.replicates is None else tuple(
+        resolve_replicate_columns(design.replicates, in_file, paths[0]))
+    columns = [*own, *extra, *design.columns(in_file, paths[0])]
+    req = Request(design.weight, design.strata, design.psu, reps, tuple(by), where,
+                  tuple(numeric), tuple(cats),
+                  tuple(c for c in dict.fromkeys(columns) if c != FILE_COLUMN), cb, encoding)
+    return req, numeric, cats, ambiguous
+
+
+def _first_rows(paths: list[str], names: list[str], cb: Codebook | None, encoding: str
+                ) -> dict[str, Any]:
+    """Return name -> column of one row, from the first file that has the variable."""
+    from wstats.decoding.load import read
+    from wstats.errors import ColumnError
+    from wstats.readers.dispatch import file_columns
+
+    found: dict[str, Any] = {}
+    for path in paths:  # loop over files until every variable is met
+        known = {*file_columns(path), *(cb.derived if cb else ())}
+        here = [n for n in names if n in known and n not in found]
+        if here:
+            found.update(read(path, here, cb, (0, 1), False, encoding).columns)
+        if len(found) == len(names):
+            return found
+    missing = [n for n in names if n not in found]
+    raise ColumnError(f"variable '{missing[0]}' is in none of the {len(paths)} files nor a "
+                      "derived variable of the codebook")
+
+
+def _kinds(first: Any, variables: Sequence[str], stats: list[str] | None,
+           categorical: Sequence[str]) -> tuple[list[str], list[str], list[str]]:
+    """Return the variables summed as numbers, as categories, and those that may be either.
+
+    As the in-memory engine decides: categorical, binary and text kinds and the names in
+    *categorical* are categories; numbers whose every value is labelled are too, which only
+    the summed values can tell (both kinds of sums are made for them).
+    """
     numeric, cats, ambiguous = [], [], []
     for name in variables:
-        col = first.columns[name]
+        col = first[name]
         if stats:
             if any(s in ("mean", "total") for s in stats):
                 numeric.append(name)
@@ -135,21 +197,10 @@ def _request(paths: list[str], design: Design, variables: Sequence[str],
             cats.append(name)
         else:
             numeric.append(name)
-            if col.value_labels:  # fully labelled data is categorical: decided on the sums
+            if col.value_labels:
                 cats.append(name)
                 ambiguous.append(name)
-    extra: list[str] = []
-    if where:
-        from wstats.decoding.expressions import expression_names
-
-        extra = expression_names(where)
-    columns = [*own, *extra, *design.columns(file_columns(paths[0]), paths[0])]
-    reps = tuple(design.columns(file_columns(paths[0]), paths[0])[
-        len([c for c in (design.weight, design.strata, design.psu, design.fpc) if c]):])
-    req = Request(design.weight, design.strata, design.psu, reps if design.replicates else (),
-                  tuple(by), where, tuple(numeric), tuple(cats),
-                  tuple(c for c in dict.fromkeys(columns) if c != FILE_COLUMN), cb, encoding)
-    return req, numeric, cats, ambiguous
+    return numeric, cats, ambiguous
 
 
 def _tasks(paths: list[str], partition_rows: int) -> list[Task]:

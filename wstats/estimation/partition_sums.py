@@ -17,7 +17,7 @@ from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
-from wstats.decoding.stacking import FILE_COLUMN
+from wstats.decoding.stacking import FILE_COLUMN, NOT_IN_FILE
 from wstats.errors import DesignError, WeightError
 
 if TYPE_CHECKING:
@@ -71,7 +71,8 @@ class PartSums:
 
     Attributes
     ----------
-    main : grouped by KEYS + by-keys: ``rows``, ``zero_w`` and per variable j ``y{j}``
+    main : grouped by KEYS + by-keys: ``rows``, ``zero_w``, ``w_all`` (sum w) and per
+        variable j ``y{j}``
         (sum w y), ``w{j}`` (sum w), ``q{j}`` (sum w y^2), ``n{j}`` (rows), ``s{j}``
         (sum w^2) over its valid rows, and ``r{j}:{reason}`` (rows per not-valid reason).
     levels : per categorical variable j: grouped by the keys and ``value``: ``w`` (sum w).
@@ -81,6 +82,7 @@ class PartSums:
     labels : per variable (and by-variable): value labels, first partition's wording first.
     kinds : per variable: its kind and whether it holds text.
     reasons : every reason name met, in the order met.
+    absent : variable -> the files (0..K-1) that do not have it.
     """
 
     main: pd.DataFrame
@@ -89,6 +91,7 @@ class PartSums:
     labels: dict[str, dict[float, str]] = field(default_factory=dict)
     kinds: dict[str, tuple[str, bool]] = field(default_factory=dict)
     reasons: list[str] = field(default_factory=list)
+    absent: dict[str, list[int]] = field(default_factory=dict)
 
 
 def partition_sums(task: Task, req: Request) -> PartSums:
@@ -97,11 +100,17 @@ def partition_sums(task: Task, req: Request) -> PartSums:
 
     from wstats.decoding.load import read
 
-    data = read(task.path, list(req.columns), req.codebook, task.rows, False, req.encoding)
+    present = _present(task.path, req)
+    data = read(task.path, [c for c in req.columns if c in present], req.codebook, task.rows,
+                False, req.encoding)
+    wanted = [n for n in (*req.by, *req.numeric, *req.categorical) if n != FILE_COLUMN]
+    own = [n for n in wanted if n in data.columns]  # the others: not_in_file here
+    data = _fill_absent(data, [n for n in wanted if n not in data.columns])
     keys = _keys(data, task, req)
     names = [*KEYS, *(by_key(j) for j in range(len(req.by)))]
     w = _weights(data, req.weight, task.path)
-    cols: dict[str, Any] = {"rows": np.ones(data.n_rows), "zero_w": (w == 0).astype(float)}
+    cols: dict[str, Any] = {"rows": np.ones(data.n_rows), "zero_w": (w == 0).astype(float),
+                            "w_all": w}
     for j, name in enumerate((*req.numeric, *req.categorical)):
         cols.update(_variable_columns(data, name, j, w, name in req.numeric))
     frame = pd.DataFrame({**keys, **cols})
@@ -109,10 +118,37 @@ def partition_sums(task: Task, req: Request) -> PartSums:
     levels = {j: _level_sums(data, name, keys, names, w)
               for j, name in enumerate(req.categorical, start=len(req.numeric))}
     reps = _replicate_sums(data, req, keys, names) if req.replicates else None
-    own = [n for n in (*req.by, *req.numeric, *req.categorical) if n != FILE_COLUMN]
     labels = {n: dict(data.columns[n].value_labels) for n in own}
     kinds = {n: (data.columns[n].kind, not data.columns[n].numeric) for n in own}
-    return PartSums(main, levels, reps, labels, kinds, list(data.vocabulary.names))
+    absent = {n: [task.file] for n in wanted if n not in own}
+    return PartSums(main, levels, reps, labels, kinds, list(data.vocabulary.names), absent)
+
+
+def _present(path: str, req: Request) -> set[str]:
+    """Return the names the file can give: its columns and the codebook's derived variables."""
+    from wstats.readers.dispatch import file_columns
+
+    derived = getattr(req.codebook, "derived", None) or {}
+    return {*file_columns(path), *derived}
+
+
+def _fill_absent(data: Dataset, names: list[str]) -> Dataset:
+    """Return *data* with a column of reason ``not_in_file`` for each name the file lacks.
+
+    As pooling in memory does (:mod:`wstats.decoding.stacking`): the rows count as item
+    nonresponse. A design column the file lacks is an error later, naming it.
+    """
+    if not names:
+        return data
+    from wstats.decoding.columns import Dataset, DecodedColumn
+
+    code = data.vocabulary.add(NOT_IN_FILE)
+    cols = dict(data.columns)
+    for name in names:
+        cols[name] = DecodedColumn.of_codes(name, np.full(data.n_rows, np.nan),
+                                            np.full(data.n_rows, code, np.int8),
+                                            data.vocabulary, kind="categorical")
+    return Dataset(cols, data.vocabulary, data.n_rows, data.source, data.metadata)
 
 
 def _keys(data: Dataset, task: Task, req: Request) -> dict[str, Any]:
@@ -244,5 +280,8 @@ def add_sums(a: PartSums, b: PartSums) -> PartSums:
     rep_keys = [k for k in keys if k not in ("_s", "_p")]
     labels = {n: {**b.labels.get(n, {}), **lab} for n, lab in a.labels.items()}
     reasons = list(dict.fromkeys([*a.reasons, *b.reasons]))
+    absent = {n: sorted({*a.absent.get(n, []), *b.absent.get(n, [])})
+              for n in {*a.absent, *b.absent}}
     return PartSums(main, {j: v for j, v in levels.items() if v is not None},
-                    add(a.reps, b.reps, rep_keys), labels, {**b.kinds, **a.kinds}, reasons)
+                    add(a.reps, b.reps, rep_keys), labels, {**b.kinds, **a.kinds}, reasons,
+                    absent)

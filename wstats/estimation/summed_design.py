@@ -44,14 +44,7 @@ def summed_design(frame: pd.DataFrame, design: Design, files: PeriodFiles | None
                   n_replicates: int) -> tuple[BoundDesign, Array]:
     """Return the BoundDesign of the groups and each group's pool factor."""
     file = frame["_file"].to_numpy(np.int64)
-    rows = frame["rows"].to_numpy(float)
-    lam = np.ones(len(frame))
-    summary = None
-    if files is not None:
-        per_file = np.bincount(file, weights=rows, minlength=files.n_files)
-        factors = pool_factors(design.pool, [int(round(r)) for r in per_file])
-        lam = factors[file]
-        summary = pool_summary(files, design.pool, factors, design.shared_psus)
+    lam, summary = _pool(frame, design, files)
     stratum, labels = _sorted_codes(frame["_s"].to_numpy())
     if files is not None and not design.shared_psus:
         stratum, labels = file_strata(stratum, labels, file, files.stems)
@@ -63,18 +56,35 @@ def summed_design(frame: pd.DataFrame, design: Design, files: PeriodFiles | None
     if not n_replicates:
         psu_stratum, n_h, f_h, labels = _singletons(design.singleton, psu_stratum, n_h, f_h,
                                                     labels)
-    df = float(len(psu_stratum) - len(n_h))
-    if design.psu is None:  # every row its own PSU
-        df = float(rows.sum() - len(n_h))
-    if n_replicates:
-        named = design.strata is not None or design.psu is not None
-        k = 1 if files is None or named else files.n_files
-        df = k * replicate_df(design.replicate_method or "", n_replicates,
-                              df if named else None)
+    df = _df(design, files, n_replicates, float(len(psu_stratum)), len(n_h),
+             float(frame["rows"].sum()))
     zero = int(frame["zero_w"].sum())
     bound = BoundDesign(design, None, np.ones(len(frame)), psu, psu_stratum, n_h, f_h,
                         tuple(labels), singles, None, (), 1.0, None, df, 0, zero, summary)
     return bound, lam
+
+
+def _pool(frame: pd.DataFrame, design: Design, files: PeriodFiles | None
+          ) -> tuple[Array, dict[str, Any] | None]:
+    """Return each group's pool factor and the pooling summary (ones and None: one file)."""
+    if files is None:
+        return np.ones(len(frame)), None
+    file = frame["_file"].to_numpy(np.int64)
+    per_file = np.bincount(file, weights=frame["rows"].to_numpy(float),
+                           minlength=files.n_files)
+    factors = pool_factors(design.pool, [int(round(r)) for r in per_file])
+    return factors[file], pool_summary(files, design.pool, factors, design.shared_psus)
+
+
+def _df(design: Design, files: PeriodFiles | None, n_replicates: int, n_psu: float,
+        n_strata: int, n_rows: float) -> float:
+    """Return the design df as binding gives it (replicate df add up over pooled files)."""
+    df = (n_psu if design.psu is not None else n_rows) - n_strata  # no PSU: rows are PSUs
+    if not n_replicates:
+        return df
+    named = design.strata is not None or design.psu is not None
+    k = 1 if files is None or named else files.n_files
+    return k * replicate_df(design.replicate_method or "", n_replicates, df if named else None)
 
 
 def domain_sums(values: Array, inside: npt.NDArray[np.bool_], cell: Index, n_cells: int
