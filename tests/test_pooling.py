@@ -17,7 +17,7 @@ from hypothesis import strategies as st
 from wstats.decoding.columns import Dataset
 from wstats.decoding.stacking import NOT_IN_FILE, stack_datasets
 from wstats.design.declared import Design
-from wstats.design.pooling import parse_pool, pool_factors, satterthwaite_df
+from wstats.design.pooling import change_df, parse_pool, pool_factors, satterthwaite_df
 from wstats.errors import DesignError, WstatsWarning
 from wstats.estimation.estimate import estimate
 from wstats.reports.nonresponse import nonresponse
@@ -350,3 +350,17 @@ def test_a_codebook_labels_the_periods(tmp_path: Any) -> None:
     t = estimate(data, DESIGN, ["y"], by=["_file"])
     assert t.frame["_file"].tolist() == [None, "2023", "2024"]
     assert data.metadata["pool"].labels == ("2023", "2024")
+
+
+def test_each_file_keeps_its_own_df_and_a_change_df_rule() -> None:
+    # REFERENCES §16: df of independent periods add up; Satterthwaite as an option
+    a, b = _period(40, psus=3), _period(41, strata=4, psus=2)
+    t = estimate(_pooled(a, b), DESIGN, ["y"])
+    alone = [float(estimate(Dataset.from_arrays(c), DESIGN, ["y"]).frame.df[0]) for c in (a, b)]
+    assert t.design["pool"]["df_per_file"] == {"period1": alone[0], "period2": alone[1]}
+    assert float(t.frame.df[0]) == sum(alone)
+    assert change_df([2.0, 1.0], alone) == sum(alone)
+    assert change_df([2.0, 1.0], alone, "satterthwaite") == pytest.approx(
+        9.0 / (4.0 / alone[0] + 1.0 / alone[1]), rel=1e-12)
+    with pytest.raises(DesignError, match="period df rule 'pooled' is not one of sum"):
+        change_df([1.0, 1.0], alone, "pooled")

@@ -94,7 +94,7 @@ def bind(design: Design, data: Dataset) -> BoundDesign:
         scale=1.0 if reps is None else reps[2], factors=None if reps is None else reps[3],
         df=df, dropped_rows=0 if rows is None else data.n_rows - len(rows),
         zero_weights=_count(w, lambda part: part == 0),
-        pool=None if pool is None else pool.summary(rows),
+        pool=None if pool is None else pool.summary(rows, psu, psu_stratum, reps is not None),
     )
 
 

@@ -18,6 +18,7 @@ from wstats.design.pooling import (
     FILE_COLUMN,
     NOT_IN_FILE,
     PeriodFiles,
+    file_df,
     pool_factors,
     pool_summary,
     replicate_blocks,
@@ -71,10 +72,15 @@ class Pool:
         warn_weight_sums(w, files, self.files)
         return np.asarray(w * self.factors(rows)[files], dtype=np.float64)
 
-    def summary(self, rows: Index | None) -> dict[str, Any]:
-        """Return the pooling as used, for the design summary."""
+    def summary(self, rows: Index | None, psu: Codes, psu_stratum: Index,
+                replicates: bool) -> dict[str, Any]:
+        """Return the pooling as used, for the design summary (with each file's df when
+        strata are per file and the variance is linearized)."""
+        dfs = None
+        if not (replicates or self.design.shared_psus):
+            dfs = file_df(psu, psu_stratum, self.rows(rows), self.files.n_files)
         return pool_summary(self.files, self.design.pool, self.factors(rows),
-                            self.design.shared_psus)
+                            self.design.shared_psus, dfs)
 
     def replicates(self, rep: Array, w: Array, rows: Index | None, stratum: Codes,
                    factors_of: Factors) -> tuple[Array, Array]:

@@ -36,13 +36,17 @@ if TYPE_CHECKING:
 
     Array = npt.NDArray[np.float64]
     Codes = npt.NDArray[np.signedinteger[Any]]
+    Index = npt.NDArray[np.int64]
 
 __all__ = [
     "FILE_COLUMN",
     "NOT_IN_FILE",
+    "PERIOD_DF_RULES",
     "POOL_RULES",
     "PeriodFiles",
+    "change_df",
     "check_pool_rule",
+    "file_df",
     "file_strata",
     "parse_pool",
     "pool_factors",
@@ -143,6 +147,43 @@ def replicate_blocks(rep: Array, weights: Array, file_index: Codes, coefficients
     return out, np.asarray(coefficients, dtype=np.float64).ravel()
 
 
+#: how the df of a change between two independent periods is found (``change_df``)
+PERIOD_DF_RULES = ("sum", "satterthwaite")
+
+
+def file_df(psu: Codes, psu_stratum: Index, file_index: Codes, n_files: int) -> Array:
+    """Return each file's design df (its PSUs minus its strata) when strata are per file.
+
+    Examples
+    --------
+    >>> file_df(np.array([0, 1, 2, 3]), np.array([0, 0, 1, 1]), np.array([0, 0, 1, 1]), 2)
+    array([1., 1.])
+    """
+    psu_file = np.zeros(len(psu_stratum), dtype=np.int64)
+    psu_file[psu] = file_index  # every row of a PSU is in one file (strata keyed by file)
+    n_psu = np.bincount(psu_file, minlength=n_files)
+    stratum_file = np.zeros(int(psu_stratum.max(initial=-1)) + 1, dtype=np.int64)
+    stratum_file[psu_stratum] = psu_file
+    n_strata = np.bincount(stratum_file, minlength=n_files)
+    return np.asarray(n_psu - n_strata, dtype=np.float64)
+
+
+def change_df(variances: Sequence[float], dfs: Sequence[float], rule: str = "sum") -> float:
+    """Return the df of a change between independent periods: ``sum`` or ``satterthwaite``.
+
+    ``sum`` (default) is d1 + d2 (the pooled design's df); ``satterthwaite`` is
+    (v1+v2)^2/(v1^2/d1 + v2^2/d2) (REFERENCES §16).
+
+    Examples
+    --------
+    >>> change_df([1.0, 1.0], [10.0, 20.0])
+    30.0
+    """
+    if rule not in PERIOD_DF_RULES:
+        raise DesignError(f"period df rule '{rule}' is not one of {', '.join(PERIOD_DF_RULES)}")
+    return float(np.sum(dfs)) if rule == "sum" else satterthwaite_df(variances, dfs)
+
+
 def satterthwaite_df(variances: Sequence[float], dfs: Sequence[float]) -> float:
     """Return Satterthwaite's df of a sum of independent variance terms.
 
@@ -174,9 +215,14 @@ def warn_weight_sums(weights: Array, file_index: Codes, files: PeriodFiles) -> A
 
 
 def pool_summary(files: PeriodFiles, rule: str | Sequence[float], factors: Array,
-                 shared_psus: bool) -> dict[str, Any]:
-    """Return the JSON-ready description of the pooling used (provenance, methods text)."""
-    return {
+                 shared_psus: bool, dfs: Array | None = None) -> dict[str, Any]:
+    """Return the JSON-ready description of the pooling used (provenance, methods text).
+
+    *dfs*: each file's design df (strata per file, linearization), shown as ``df_per_file``.
+    """
+    extra = {} if dfs is None else {
+        "df_per_file": {s: float(d) for s, d in zip(files.stems, dfs, strict=True)}}
+    return {**extra,
         "files": list(files.paths),
         "periods": list(files.labels),
         "rule": rule if isinstance(rule, str) else "factors",

@@ -15,7 +15,13 @@ import numpy as np
 
 from wstats.design.binding import _psu_index, _singletons
 from wstats.design.bound import BoundDesign
-from wstats.design.pooling import PeriodFiles, file_strata, pool_factors, pool_summary
+from wstats.design.pooling import (
+    PeriodFiles,
+    file_df,
+    file_strata,
+    pool_factors,
+    pool_summary,
+)
 from wstats.design.replicates import replicate_df, replicate_scale, replicate_variance
 from wstats.errors import DesignError
 
@@ -59,6 +65,10 @@ def summed_design(frame: pd.DataFrame, design: Design, files: PeriodFiles | None
     df = _df(design, files, n_replicates, float(len(psu_stratum)), len(n_h),
              float(frame["rows"].sum()))
     zero = int(frame["zero_w"].sum())
+    if summary is not None and not (n_replicates or design.shared_psus):
+        assert files is not None
+        summary = pool_summary(files, design.pool, np.asarray(list(summary["factors"].values())),
+                               False, file_df(psu, psu_stratum, file, files.n_files))
     bound = BoundDesign(design, None, np.ones(len(frame)), psu, psu_stratum, n_h, f_h,
                         tuple(labels), singles, None, (), 1.0, None, df, 0, zero, summary)
     return bound, lam
