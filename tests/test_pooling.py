@@ -364,3 +364,19 @@ def test_each_file_keeps_its_own_df_and_a_change_df_rule() -> None:
         9.0 / (4.0 / alone[0] + 1.0 / alone[1]), rel=1e-12)
     with pytest.raises(DesignError, match="period df rule 'pooled' is not one of sum"):
         change_df([1.0, 1.0], alone, "pooled")
+
+
+def test_collapsed_strata_stay_within_their_file() -> None:
+    # a singleton stratum pools with a stratum of its own file (REFERENCES §4, §16): the
+    # files stay independent, so the change's variance is still v1 + v2
+    a, b = _period(50), _period(51)
+    last = a["S"] == 3  # file 1's last stratum keeps one PSU
+    a = {k: v[~last | (a["P"] == 1)] for k, v in a.items()}
+    design = Design("W", strata="S", psu="P", singleton="collapse")
+    data = _change_variable(a, b)
+    change = estimate(data, design, ["d"], statistics="total").frame
+    per_file = estimate(data, design, ["y"], statistics="total", by=["_file"]).frame
+    assert float(change.se[0]) == pytest.approx(
+        np.hypot(float(per_file.se[1]), float(per_file.se[2])), rel=1e-10)
+    alone = estimate(Dataset.from_arrays(a), design, ["y"], statistics="total").frame
+    assert float(per_file.se[1]) == pytest.approx(0.5 * float(alone.se[0]), rel=1e-10)

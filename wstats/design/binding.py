@@ -18,7 +18,7 @@ from wstats.decoding.columns import code_type, row_tiles
 from wstats.decoding.reasons import VALID
 from wstats.design.bound import BoundDesign
 from wstats.design.pooled_binding import Pool, pool_of
-from wstats.design.pooling import file_strata
+from wstats.design.pooling import file_strata, stratum_breaks
 from wstats.design.replicates import (
     jackknife_strata_factors,
     replicate_df,
@@ -77,8 +77,11 @@ def bind(design: Design, data: Dataset) -> BoundDesign:
                 f"the design has {len(psu_stratum)} PSU in {src}; a variance needs at least 2 "
                 "PSUs (check the psu column or use replicate weights)"
             )
+        breaks = None  # pooled files: no collapsed stratum crosses from one file to the next
+        if pool is not None and not design.shared_psus:
+            breaks = stratum_breaks(psu, psu_stratum, pool.rows(rows))
         psu_stratum, n_h, f_h, labels = _singletons(design.singleton, psu_stratum, n_h, f_h,
-                                                     labels)
+                                                     labels, breaks)
     reps = _replicates(design, data, rows, w, stratum, n_h, src, pool)
     df = float(len(psu_stratum) - len(n_h))
     if reps is not None:
@@ -330,14 +333,18 @@ def _fpc(col: DecodedColumn | None, name: str | None, rows: Index | None, stratu
 
 
 def _singletons(treatment: str, psu_stratum: Index, n_h: Index, f_h: Array,
-                labels: list[str]) -> tuple[Index, Index, Array, list[str]]:
-    """Apply the singleton treatment: fail, or collapse strata; others act in the variance."""
+                labels: list[str], breaks: npt.NDArray[np.bool_] | None = None
+                ) -> tuple[Index, Index, Array, list[str]]:
+    """Apply the singleton treatment: fail, or collapse strata; others act in the variance.
+
+    *breaks* marks strata that begin another pooled file: no pool crosses them.
+    """
     single = n_h == 1
     if not single.any() or treatment in ("certainty", "center"):
         return psu_stratum, n_h, f_h, labels
     if treatment == "fail":
         raise singleton_error([labels[h] for h in np.flatnonzero(single)])
-    group = _collapse_groups(single)
+    group = _collapse_groups(single, breaks)
     n_g = np.bincount(group, weights=n_h).astype(np.int64)
     with np.errstate(divide="ignore"):
         pop = np.where(f_h > 0, n_h / np.where(f_h > 0, f_h, 1.0), np.inf)
@@ -347,13 +354,19 @@ def _singletons(treatment: str, psu_stratum: Index, n_h: Index, f_h: Array,
     return group[psu_stratum], n_g, np.asarray(f_g, dtype=np.float64), names
 
 
-def _collapse_groups(single: npt.NDArray[np.bool_]) -> Index:
-    """Return the pool of each stratum: a singleton joins the next stratum (last: previous)."""
-    starts = np.r_[True, ~single[:-1]]
-    group = np.cumsum(starts) - 1
-    if single[-1] and starts[-1] and group[-1] > 0:
-        group[-1] -= 1
-    return group.astype(np.int64)
+def _collapse_groups(single: npt.NDArray[np.bool_],
+                     breaks: npt.NDArray[np.bool_] | None = None) -> Index:
+    """Return the pool of each stratum: a singleton joins the next stratum (last: previous).
+
+    With *breaks* (strata that begin another file) the rule holds within each file: the last
+    singleton of a file joins the pool before it in the same file.
+    """
+    cut = np.zeros(len(single), dtype=bool) if breaks is None else breaks
+    starts = np.r_[True, ~single[:-1]] | cut
+    ends = np.r_[starts[1:], True]
+    lone = single & starts & ends & ~np.r_[True, cut[1:]]  # alone, a stratum before it
+    starts &= ~lone  # joins the pool before it
+    return (np.cumsum(starts) - 1).astype(np.int64)
 
 
 def _replicates(design: Design, data: Dataset, rows: Index | None, w: Array, stratum: Codes,

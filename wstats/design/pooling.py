@@ -53,6 +53,7 @@ __all__ = [
     "pool_summary",
     "replicate_blocks",
     "satterthwaite_df",
+    "stratum_breaks",
     "warn_weight_sums",
 ]
 
@@ -149,6 +150,22 @@ def replicate_blocks(rep: Array, weights: Array, file_index: Codes, coefficients
 
 #: how the df of a change between two independent periods is found (``change_df``)
 PERIOD_DF_RULES = ("sum", "satterthwaite")
+
+
+def stratum_breaks(psu: Codes, psu_stratum: Index, file_index: Codes
+                   ) -> npt.NDArray[np.bool_]:
+    """Return, per stratum keyed by file, whether it begins another file (collapsing stops).
+
+    Examples
+    --------
+    >>> stratum_breaks(np.array([0, 1, 2]), np.array([0, 1, 2]), np.array([0, 0, 1])).tolist()
+    [False, False, True]
+    """
+    psu_file = np.zeros(len(psu_stratum), dtype=np.int64)
+    psu_file[psu] = file_index
+    stratum_file = np.zeros(int(psu_stratum.max(initial=-1)) + 1, dtype=np.int64)
+    stratum_file[psu_stratum] = psu_file
+    return np.asarray(np.r_[False, np.diff(stratum_file) != 0], dtype=bool)
 
 
 def file_df(psu: Codes, psu_stratum: Index, file_index: Codes, n_files: int) -> Array:

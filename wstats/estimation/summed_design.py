@@ -21,6 +21,7 @@ from wstats.design.pooling import (
     file_strata,
     pool_factors,
     pool_summary,
+    stratum_breaks,
 )
 from wstats.design.replicates import replicate_df, replicate_scale, replicate_variance
 from wstats.errors import DesignError
@@ -60,8 +61,10 @@ def summed_design(frame: pd.DataFrame, design: Design, files: PeriodFiles | None
     singles = int((n_h == 1).sum())
     f_h = np.zeros(len(n_h))
     if not n_replicates:
+        breaks = (stratum_breaks(psu, psu_stratum, file)
+                  if files is not None and not design.shared_psus else None)
         psu_stratum, n_h, f_h, labels = _singletons(design.singleton, psu_stratum, n_h, f_h,
-                                                    labels)
+                                                    labels, breaks)
     df = _df(design, files, n_replicates, float(len(psu_stratum)), len(n_h),
              float(frame["rows"].sum()))
     zero = int(frame["zero_w"].sum())
