@@ -203,3 +203,17 @@ def test_a_variable_missing_from_one_pooled_file(tmp_path: Path, cluster: str) -
                       "get the reason not_in_file"):
         estimate(str(tmp_path / "f*.parquet"), design, ["y"], by=["g"], engine="dask",
                  scheduler=cluster)
+
+
+def test_an_unreachable_scheduler_is_one_line(monkeypatch: pytest.MonkeyPatch,
+                                              periods: Path) -> None:
+    import distributed
+
+    def refuse(*_: Any, **__: Any) -> Any:
+        raise OSError("Timed out trying to connect")
+
+    monkeypatch.setattr(distributed, "Client", refuse)
+    with pytest.raises(EngineError, match=r"cannot reach the Dask scheduler at "
+                       r"tcp://10.9.9.9:8786 \(Timed out trying to connect\); check the address"):
+        estimate(periods / "period1.xpt", DEMO, ["sl_hours"], engine="dask",
+                 codebook=periods / "tbchs_codebook.toml", scheduler="tcp://10.9.9.9:8786")
