@@ -75,6 +75,12 @@ def test_demo_means_and_proportions_by_domain(periods: Path, cluster: str) -> No
           by=["dm_age5", "dm_sex"], where="dm_age >= 30")
 
 
+def test_demo_ratios(periods: Path, cluster: str) -> None:
+    cb = periods / "tbchs_codebook.toml"
+    _both(periods / "period1.xpt", DEMO, ["sl_hours"], cluster, cb, by=["dm_age5"],
+          ratios=[("hs_body", "sl_hours"), ("bd_mass", "bd_hgt")])
+
+
 def test_demo_totals_and_centred_singletons(periods: Path, cluster: str) -> None:
     cb = periods / "tbchs_codebook.toml"
     design = Design("wt_final", strata="ds_strat", psu="ds_psu", singleton="certainty")
@@ -113,11 +119,12 @@ def test_replicate_design_in_partitions(tmp_path: Path, cluster: str) -> None:
     # REFERENCES §8 jackknife; a Parquet file cut into 3 partitions of 200 rows
     path = _replicate_file(tmp_path, 1, "reps.parquet")
     design = Design("W", replicates="RW*", replicate_method="jackknife")
-    memory = estimate(path, design, ["y", "g"], categorical=["g"], by=["d"])
+    memory = estimate(path, design, ["y", "g"], categorical=["g"], by=["d"],
+                      ratios=[("y", "W")])
     from wstats.estimation.dask_engine import estimate_dask
 
     dask = estimate_dask(path, design, ["y", "g"], categorical=["g"], by=["d"],
-                         scheduler=cluster, partition_rows=200)
+                         ratios=[("y", "W")], scheduler=cluster, partition_rows=200)
     _same(memory, dask)
 
 
@@ -127,7 +134,8 @@ def test_pooled_replicate_files_in_blocks(tmp_path: Path, cluster: str) -> None:
     _replicate_file(tmp_path, 3, "year2.parquet")
     design = Design("W", replicates="RW*", replicate_method="jackknife")
     files = str(tmp_path / "year*.parquet")
-    _both(files, design, ["y"], cluster, None, by=["_file"], statistics=["mean", "total"])
+    _both(files, design, ["y"], cluster, None, by=["_file"], statistics=["mean", "total"],
+          ratios=[("y", "g")])
 
 
 @pytest.mark.parametrize(("options", "message"), [

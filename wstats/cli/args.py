@@ -194,7 +194,7 @@ def add_estimate_args(p: argparse.ArgumentParser) -> None:
     e = p.add_argument_group("engine")
     e.add_argument("--engine", choices=("memory", "dask"), default="memory",
                    help="memory (default), or dask: partitions summed on a Dask cluster "
-                        "(means, totals, proportions; pip install 'wstats[dask]')")
+                        "(means, totals, proportions, ratios; pip install 'wstats[dask]')")
     e.add_argument("--scheduler", metavar="ADDRESS",
                    help="with --engine dask: a running scheduler (e.g. tcp://10.0.0.5:8786); "
                         "default: a local cluster for this command")

@@ -6,9 +6,9 @@ are added pairwise on the workers, and the client makes the estimates from the t
 (:mod:`wstats.estimation.from_sums`). Rows never travel: memory per worker follows the
 partition, not the data.
 
-Available: means, totals and proportions, overall and by domains, ``where``, Taylor
+Available: means, totals, proportions and ratios, overall and by domains, ``where``, Taylor
 linearization (strata, PSUs; singleton treatments) and replicate weights, pooled files.
-Refused with a message naming what is missing: ratios, quantiles (an exact quantile needs
+Refused with a message naming what is missing: quantiles (an exact quantile needs
 every value of a domain sorted together), FPC, ``drop_incomplete``, domain df, jackknife-strata
 without given factors, a linearization design without PSUs.
 """
@@ -53,6 +53,7 @@ def need_dask() -> None:
 def estimate_dask(
     data: str | Path | Sequence[str | Path], design: Design, variables: Sequence[str], *,
     codebook: Codebook | str | Path | None = None, statistics: str | Sequence[str] | None = None,
+    ratios: Sequence[tuple[str, str]] = (),
     by: Sequence[str] = (), where: str | None = None, categorical: Sequence[str] = (),
     level: float = 0.95, proportion_ci: str = "korn-graubard",
     reliability: ReliabilityStandard | None = None, scheduler: str | None = None,
@@ -72,11 +73,15 @@ def estimate_dask(
 
     stats = check_options(statistics, level, proportion_ci, ())
     check_summable(design, stats or [])
+    if stats and "ratio" in stats and not ratios:
+        from wstats.errors import EstimationError
+
+        raise EstimationError("statistic 'ratio' needs ratios=[(numerator, denominator)]")
     paths = expand_paths(data) if is_several(data) else [str(data)]
     cb = _codebook(codebook)
     files = _period_files(paths, cb) if len(paths) > 1 else None
     req, numeric, cats, ambiguous = _request(paths, design, variables, stats, by, where,
-                                             categorical, cb, encoding)
+                                             categorical, cb, encoding, ratios)
     with _client(scheduler, workers) as client:
         total = _reduce(client, _tasks(paths, partition_rows), req)
     if files is not None:
@@ -132,14 +137,16 @@ def _period_files(paths: list[str], cb: Codebook | None) -> PeriodFiles:
 
 def _request(paths: list[str], design: Design, variables: Sequence[str],
              stats: list[str] | None, by: Sequence[str], where: str | None,
-             categorical: Sequence[str], cb: Codebook | None, encoding: str
+             categorical: Sequence[str], cb: Codebook | None, encoding: str,
+             ratios: Sequence[tuple[str, str]] = ()
              ) -> tuple[Request, list[str], list[str], list[str]]:
     """Return what partitions sum, and which variables are numeric, categorical, either."""
     from wstats.design.replicates import resolve_replicate_columns
     from wstats.estimation.partition_sums import Request
     from wstats.readers.dispatch import file_columns
 
-    own = [v for v in dict.fromkeys([*variables, *by]) if v != FILE_COLUMN]
+    own = [v for v in dict.fromkeys([*variables, *by, *(v for r in ratios for v in r)])
+           if v != FILE_COLUMN]
     first = _first_rows(paths, own, cb, encoding)
     numeric, cats, ambiguous = _kinds(first, variables, stats, categorical)
     extra: list[str] = []
@@ -153,7 +160,8 @@ def _request(paths: list[str], design: Design, variables: Sequence[str],
     columns = [*own, *extra, *design.columns(in_file, paths[0])]
     req = Request(design.weight, design.strata, design.psu, reps, tuple(by), where,
                   tuple(numeric), tuple(cats),
-                  tuple(c for c in dict.fromkeys(columns) if c != FILE_COLUMN), cb, encoding)
+                  tuple(c for c in dict.fromkeys(columns) if c != FILE_COLUMN), cb, encoding,
+                  tuple((str(a), str(b)) for a, b in ratios))
     return req, numeric, cats, ambiguous
 
 
@@ -265,7 +273,8 @@ def _pieces(s: Summed, total: PartSums, req: Request, variables: Sequence[str],
             ambiguous: list[str], ci: str, design: Design, files: PeriodFiles | None,
             by: Sequence[str]) -> list[Any]:
     """Return the Pieces of every variable and statistic, in the order asked."""
-    from wstats.estimation.from_sums import mean_or_total, proportion
+    from wstats.estimation.from_sums import mean_or_total, proportion, ratio
+    from wstats.estimation.partition_sums import ratio_key
     from wstats.estimation.variable_sums import categorical_parts, replicate_parts
 
     pieces = []
@@ -289,5 +298,8 @@ def _pieces(s: Summed, total: PartSums, req: Request, variables: Sequence[str],
                 values, labels, matrix, _ = categorical_parts(s, total, name, j)
                 var = reps.proportion(j, values, matrix) if reps else None
                 pieces.append(proportion(s, name, j, ci, matrix, (values, labels), var))
+    for k, (num, den) in enumerate(req.ratios):  # ratios follow, as in memory
+        key = ratio_key(k)
+        pieces.append(ratio(s, f"{num}/{den}", key, reps.ratio(key) if reps else None))
     return pieces
 

@@ -92,7 +92,7 @@ def estimate(
     reliability : reliability standard for flags and suppression (None: the default,
         ``nchs-2017``; pass ``STANDARDS["none"]`` to switch the rules off).
     engine : ``memory`` (default) or ``dask``: the data files processed partition by
-        partition on a Dask cluster (means, totals and proportions; see
+        partition on a Dask cluster (means, totals, proportions and ratios; see
         :mod:`wstats.estimation.dask_engine`); needs ``pip install 'wstats[dask]'``.
     codebook : the codebook for data given as files.
     scheduler : engine ``dask``: address of a running scheduler (None: a local cluster that
@@ -120,10 +120,7 @@ def estimate(
         if isinstance(data, Dataset):
             raise EstimationError("engine 'dask' reads the data files itself; give their paths "
                                   "(and codebook=...), not a Dataset")
-        if ratios:
-            raise EstimationError("ratios are not available on the Dask engine; run them "
-                                  "with engine='memory'")
-        return estimate_dask(data, design, variables, codebook=codebook,
+        return estimate_dask(data, design, variables, codebook=codebook, ratios=ratios,
                              statistics=statistics, by=by, where=where,
                              categorical=categorical, level=level, proportion_ci=proportion_ci,
                              reliability=reliability, scheduler=scheduler)

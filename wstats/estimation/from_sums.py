@@ -102,8 +102,8 @@ def _column(name: str, values: npt.NDArray[Any], labels: dict[float, str], text:
                                   value_labels=labels)
 
 
-def moments(s: Summed, j: int) -> _Moments:
-    """Return n, weighted n, Kish deff_w, df and reason counts of variable *j*."""
+def moments(s: Summed, j: int | str) -> _Moments:
+    """Return n, weighted n, Kish deff_w, df and reason counts of variable (or ratio) *j*."""
     f, ws = s.frame, s.sums
     cols = [f[f"n{j}"].to_numpy(float), f[f"w{j}"].to_numpy(float) * s.lam,
             f[f"s{j}"].to_numpy(float) * s.lam * s.lam]
@@ -149,6 +149,32 @@ def mean_or_total(s: Summed, name: str, j: int, stat: str,
         return _piece(name, stat, ctx, m, est, np.where(np.isfinite(est), var, np.nan),
                       s2 / m.n)
     return _piece(name, stat, ctx, m, est, var, m.weighted_n**2 * s2 / m.n)
+
+
+def ratio(s: Summed, name: str, key: str, replicate: Array | None) -> Piece:
+    """Return the Piece of a domain ratio Y/X over rows where both are valid.
+
+    As :class:`wstats.estimation.statistics.Ratio`: linearized totals (y - R x)/X, and the
+    SRS variance of e = y - R_d x from sum w y^2, w x y and w x^2 of the domain.
+    """
+    f, ws = s.frame, s.sums
+    cols = [f[f"{c}{key}"].to_numpy(float) * s.lam for c in ("y", "x", "yy", "xy", "xx")]
+    buckets = ws.bucket_sums(cols)
+    pair, tot = ws.to_pairs(buckets), ws.bucket_domains(buckets)
+    m = moments(s, key)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        est = tot[:, 0] / tot[:, 1]
+        z = (pair[:, 0] - est[ws.pair_domain] * pair[:, 1]) / tot[ws.pair_domain, 1]
+        q = tot[:, 2] - 2 * est * tot[:, 3] + est * est * tot[:, 4]
+        s2 = m.n / (m.n - 1.0) * np.maximum(q, 0.0) / m.weighted_n
+        xbar = tot[:, 1] / m.weighted_n
+        v_srs = s2 / (m.n * xbar * xbar)
+    if replicate is None:
+        var = linearized_variance(np.where(np.isfinite(z), z, 0.0)[:, None], ws)[:, 0]
+        var = np.where(np.isfinite(est), var, np.nan)
+    else:
+        var = replicate
+    return _piece(name, "ratio", Context(ws, {}, s.vocabulary, s.level), m, est, var, v_srs)
 
 
 def level_matrix(s: Summed, levels: pd.DataFrame, values: list[Any], col: DecodedColumn

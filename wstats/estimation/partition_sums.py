@@ -17,6 +17,7 @@ from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
+from wstats.decoding.reasons import VALID
 from wstats.decoding.stacking import FILE_COLUMN, NOT_IN_FILE
 from wstats.errors import DesignError, WeightError
 
@@ -28,7 +29,7 @@ if TYPE_CHECKING:
 
     Array = npt.NDArray[np.float64]
 
-__all__ = ["KEYS", "PartSums", "Request", "Task", "by_key", "partition_sums"]
+__all__ = ["KEYS", "PartSums", "Request", "Task", "by_key", "partition_sums", "ratio_key"]
 
 #: key columns of every partition's sums (by-variables follow as b0, b1, ...)
 KEYS = ("_file", "_s", "_p", "_in")
@@ -63,6 +64,7 @@ class Request:
     columns: tuple[str, ...]
     codebook: Any = None
     encoding: str = "utf-8"
+    ratios: tuple[tuple[str, str], ...] = ()
 
 
 @dataclass
@@ -103,7 +105,9 @@ def partition_sums(task: Task, req: Request) -> PartSums:
     present = _present(task.path, req)
     data = read(task.path, [c for c in req.columns if c in present], req.codebook, task.rows,
                 False, req.encoding)
-    wanted = [n for n in (*req.by, *req.numeric, *req.categorical) if n != FILE_COLUMN]
+    wanted = [n for n in dict.fromkeys((*req.by, *req.numeric, *req.categorical,
+                                        *(v for r in req.ratios for v in r)))
+              if n != FILE_COLUMN]
     own = [n for n in wanted if n in data.columns]  # the others: not_in_file here
     data = _fill_absent(data, [n for n in wanted if n not in data.columns])
     keys = _keys(data, task, req)
@@ -113,6 +117,8 @@ def partition_sums(task: Task, req: Request) -> PartSums:
                             "w_all": w}
     for j, name in enumerate((*req.numeric, *req.categorical)):
         cols.update(_variable_columns(data, name, j, w, name in req.numeric))
+    for k, (num, den) in enumerate(req.ratios):
+        cols.update(_ratio_columns(data, num, den, ratio_key(k), w))
     frame = pd.DataFrame({**keys, **cols})
     main = frame.groupby(names, dropna=False, sort=False).sum().reset_index()
     levels = {j: _level_sums(data, name, keys, names, w)
@@ -182,7 +188,6 @@ def _inside(data: Dataset, where: str | None) -> npt.NDArray[np.bool_]:
     if where is None:
         return np.ones(data.n_rows, dtype=bool)
     from wstats.decoding.expressions import parse_expression
-    from wstats.decoding.reasons import VALID
 
     expr = parse_expression(where, list(data.columns), "where")
     values, reasons = expr.evaluate(data.columns, data.vocabulary, data.n_rows)
@@ -214,6 +219,31 @@ def _variable_columns(data: Dataset, name: str, j: int, w: Array, numeric: bool
     reasons = col.reasons
     for code in np.unique(reasons[~valid]).tolist():  # loop over reasons met, not rows
         out[f"r{j}:{names[int(code)]}"] = (reasons == code).astype(float)
+    return out
+
+
+def ratio_key(k: int) -> str:
+    """Return the column key of the k-th ratio's sums."""
+    return f"q{k}:"
+
+
+def _ratio_columns(data: Dataset, num: str, den: str, key: str, w: Array) -> dict[str, Any]:
+    """Return the per-row columns a ratio needs, over rows where both variables are valid.
+
+    Sums of w y, w x, w y^2, w x y, w x^2 give the ratio, its linearized totals and the
+    SRS variance of e = y - R x for any R; the reasons are the two variables' combined.
+    """
+    cy, cx = data.columns[num], data.columns[den]
+    reasons = data.vocabulary.combine(cy.reasons, cx.reasons)
+    both = reasons == VALID
+    y, x = np.where(both, cy.values, 0.0), np.where(both, cx.values, 0.0)
+    wb = np.where(both, w, 0.0)
+    out: dict[str, Any] = {f"w{key}": wb, f"n{key}": both.astype(float), f"s{key}": wb * w,
+                           f"y{key}": wb * y, f"x{key}": wb * x, f"yy{key}": wb * y * y,
+                           f"xy{key}": wb * x * y, f"xx{key}": wb * x * x}
+    names = data.vocabulary.names
+    for code in np.unique(reasons[~both]).tolist():  # loop over reasons met, not rows
+        out[f"r{key}:{names[int(code)]}"] = (reasons == code).astype(float)
     return out
 
 
@@ -257,6 +287,13 @@ def _replicate_sums(data: Dataset, req: Request, keys: dict[str, Any], names: li
                 hit = valid & (values == v)
                 for r in range(rep.shape[1]):
                     cols[f"R{r}l{j}:{v!r}"] = np.where(hit, rep[:, r], 0.0)
+    for k, (num, den) in enumerate(req.ratios):
+        reasons = data.vocabulary.combine(data.columns[num].reasons, data.columns[den].reasons)
+        both = reasons == VALID
+        for name, part in (("y", num), ("x", den)):
+            v = np.where(both, data.columns[part].values, 0.0)
+            for r in range(rep.shape[1]):
+                cols[f"R{r}{name}{ratio_key(k)}"] = rep[:, r] * v
     frame = pd.DataFrame({**{k: keys[k] for k in group}, **cols})
     return frame.groupby(group, dropna=False, sort=False).sum().reset_index()
 

@@ -110,6 +110,18 @@ class Replicates:
         return replicate_theta_variance(num, den, theta, (fy, fw), self.file, self.design,
                                         self.files, self._lam())[:, 0]
 
+    def ratio(self, key: str) -> Array:
+        """Return the replicate variance (D,) of a ratio (its sums under *key*)."""
+        f = self.s.frame
+        num = self.by_file([f"R{r}y{key}" for r in range(self.n_rep)])[..., None]
+        den = self.by_file([f"R{r}x{key}" for r in range(self.n_rep)])[..., None]
+        fy = self.full((f[f"y{key}"].to_numpy(float) * self.s.lam)[:, None])
+        fx = self.full((f[f"x{key}"].to_numpy(float) * self.s.lam)[:, None])
+        with np.errstate(divide="ignore", invalid="ignore"):
+            theta = fy.sum(axis=0) / fx.sum(axis=0)
+        return replicate_theta_variance(num, den, theta, (fy, fx), self.file, self.design,
+                                        self.files, self._lam())[:, 0]
+
     def proportion(self, j: int, values: list[Any], matrix: Array) -> Array:
         """Return the replicate variances (D, L) of variable j's level proportions."""
         f = self.s.frame
