@@ -59,7 +59,7 @@ def estimate_dask(
     reliability: ReliabilityStandard | None = None, scheduler: str | None = None,
     encoding: str = "utf-8", partition_rows: int = PARTITION_ROWS, workers: int | None = None,
 ) -> EstimateTable:
-    """Estimate means, totals and proportions on a Dask cluster (see the module docstring).
+    """Estimate means, totals, proportions and ratios on a Dask cluster (see the module docstring).
 
     Parameters are those of :func:`wstats.estimate` with the data given as files (a path,
     a glob, a folder or a list; several files are pooled), plus *codebook*, *scheduler* (the

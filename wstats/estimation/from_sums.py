@@ -1,4 +1,4 @@
-"""Estimates from summed partitions: means, totals and proportions without the rows.
+"""Estimates from summed partitions: means, totals, proportions and ratios without the rows.
 
 The sums of :mod:`wstats.estimation.partition_sums`, added over every partition, are grouped
 by (file, stratum, PSU, domain key). Each group becomes one row of a small synthetic design
