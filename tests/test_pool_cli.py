@@ -135,3 +135,14 @@ def test_the_demo_writes_periods_to_pool(tmp_path: Path) -> None:
     out = _json("estimate", "d/period*.xpt", "sl_hours", "--by", "_file", "--codebook",
                 "d/tbchs_codebook.toml", cwd=tmp_path)
     assert len(out["results"]) == 3
+
+
+def test_engine_options_are_checked(periods: Path) -> None:
+    done = run_wstats("estimate", "period1.xpt", "sl_hours", "--scheduler", "tcp://1.2.3.4:1",
+                      "--codebook", "tbchs_codebook.toml", cwd=periods)
+    assert done.returncode == 2
+    assert "--scheduler needs --engine dask" in done.stderr
+    done = run_wstats("estimate", "period1.xpt", "sl_hours", "--engine", "dask", "--rows",
+                      "0:100", "--codebook", "tbchs_codebook.toml", cwd=periods)
+    assert done.returncode == 2
+    assert "--rows reads a first look in memory" in done.stderr

@@ -53,6 +53,8 @@ def _run_estimate(args: argparse.Namespace) -> int:
     variables = list(args.variables)
     if args.scheduler and args.engine != "dask":
         raise UsageError("--scheduler needs --engine dask")
+    if args.rows and args.engine == "dask":
+        raise UsageError("--rows reads a first look in memory; drop it or --engine dask")
     if args.engine == "dask":
         data: Any = args.data  # the files: the workers read them
     else:
