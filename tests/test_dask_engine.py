@@ -111,13 +111,18 @@ def _replicate_file(folder: Path, seed: int, name: str) -> Path:
     for r in range(12):
         frame[f"RW{r + 1:02d}"] = np.where(cluster == r, 0.0, w * 12 / 11)
     path = folder / name
-    pd.DataFrame(frame).to_parquet(path)
+    pd.DataFrame(frame).to_parquet(path, row_group_size=100)  # 6 row groups
     return path
 
 
 def test_replicate_design_in_partitions(tmp_path: Path, cluster: str) -> None:
     # REFERENCES §8 jackknife; a Parquet file cut into 3 partitions of 200 rows
+    from wstats.estimation.dask_engine import parquet_ranges
+
     path = _replicate_file(tmp_path, 1, "reps.parquet")
+    assert parquet_ranges(str(path), 200) == [(0, 200), (200, 400), (400, 600)]
+    assert parquet_ranges(str(path), 250) == [(0, 300), (300, 600)]
+    assert parquet_ranges(str(path), 10_000) == [(0, None)]
     design = Design("W", replicates="RW*", replicate_method="jackknife")
     memory = estimate(path, design, ["y", "g"], categorical=["g"], by=["d"],
                       ratios=[("y", "W")])

@@ -220,12 +220,30 @@ def _tasks(paths: list[str], partition_rows: int) -> list[Task]:
         if Path(path).suffix.lower() != ".parquet":
             tasks.append(Task(path, k))
             continue
-        import pyarrow.parquet as pq
-
-        n = pq.ParquetFile(path).metadata.num_rows
-        starts = range(0, max(n, 1), max(partition_rows, 1))
-        tasks.extend(Task(path, k, (s, min(s + partition_rows, n))) for s in starts)
+        tasks.extend(Task(path, k, r) for r in parquet_ranges(path, partition_rows))
     return tasks
+
+
+def parquet_ranges(path: str, partition_rows: int) -> list[tuple[int, int | None]]:
+    """Return row ranges of about *partition_rows* rows that begin and end on row groups.
+
+    A partition then reads whole row groups of its own only (a row group larger than
+    *partition_rows* is one partition); a file without row groups is one partition.
+    """
+    import pyarrow.parquet as pq
+
+    meta = pq.ParquetFile(path).metadata
+    sizes = [meta.row_group(i).num_rows for i in range(meta.num_row_groups)]
+    ranges: list[tuple[int, int | None]] = []
+    start = taken = 0
+    for size in sizes:  # loop over row groups, not rows
+        taken += size
+        if taken - start >= partition_rows:
+            ranges.append((start, taken))
+            start = taken
+    if taken > start or not ranges:
+        ranges.append((start, taken if ranges else None))
+    return ranges
 
 
 @contextmanager
