@@ -12,6 +12,7 @@ linear in w by lambda, sums of w^2 by lambda^2).
 
 from __future__ import annotations
 
+from collections.abc import Iterator
 from dataclasses import dataclass, field
 from typing import TYPE_CHECKING, Any
 
@@ -97,9 +98,11 @@ class PartSums:
 
 
 def partition_sums(task: Task, req: Request) -> PartSums:
-    """Read and decode one partition and return its sums (runs on a worker)."""
-    import pandas as pd
+    """Read and decode one partition and return its sums (runs on a worker).
 
+    Each summed column is made and added into its groups one at a time, so a worker holds
+    the partition's decoded columns plus a few columns of the partition's length.
+    """
     from wstats.decoding.load import read
 
     present = _present(task.path, req)
@@ -113,21 +116,46 @@ def partition_sums(task: Task, req: Request) -> PartSums:
     keys = _keys(data, task, req)
     names = [*KEYS, *(by_key(j) for j in range(len(req.by)))]
     w = _weights(data, req.weight, task.path)
-    cols: dict[str, Any] = {"rows": np.ones(data.n_rows), "zero_w": (w == 0).astype(float),
-                            "w_all": w}
-    for j, name in enumerate((*req.numeric, *req.categorical)):
-        cols.update(_variable_columns(data, name, j, w, name in req.numeric))
+    groups = _Groups(keys, names)
+    groups.add({"rows": np.ones(data.n_rows), "zero_w": (w == 0).astype(float), "w_all": w})
+    for j, name in enumerate((*req.numeric, *req.categorical)):  # loop over variables
+        groups.add(_variable_columns(data, name, j, w, name in req.numeric))
     for k, (num, den) in enumerate(req.ratios):
-        cols.update(_ratio_columns(data, num, den, ratio_key(k), w))
-    frame = pd.DataFrame({**keys, **cols})
-    main = frame.groupby(names, dropna=False, sort=False).sum().reset_index()
-    levels = {j: _level_sums(data, name, keys, names, w)
+        groups.add(_ratio_columns(data, num, den, ratio_key(k), w))
+    levels = {j: _level_sums(data, name, groups, w)
               for j, name in enumerate(req.categorical, start=len(req.numeric))}
     reps = _replicate_sums(data, req, keys, names) if req.replicates else None
     labels = {n: dict(data.columns[n].value_labels) for n in own}
     kinds = {n: (data.columns[n].kind, not data.columns[n].numeric) for n in own}
     absent = {n: [task.file] for n in wanted if n not in own}
-    return PartSums(main, levels, reps, labels, kinds, list(data.vocabulary.names), absent)
+    return PartSums(groups.frame(), levels, reps, labels, kinds, list(data.vocabulary.names),
+                    absent)
+
+
+class _Groups:
+    """The groups of a partition's rows by their key columns, and column sums by group."""
+
+    def __init__(self, keys: dict[str, Any], names: list[str]) -> None:
+        import pandas as pd
+
+        frame = pd.DataFrame({n: keys[n] for n in names})
+        self.ids = frame.groupby(names, dropna=False, sort=False).ngroup().to_numpy()
+        _, first = np.unique(self.ids, return_index=True)
+        self.keys = frame.iloc[first].reset_index(drop=True)
+        self.sums: dict[str, Array] = {}
+
+    def add(self, columns: dict[str, Any] | Iterator[tuple[str, Any]]) -> None:
+        """Add each column's sum by group; from an iterator, one column is made at a time."""
+        n = len(self.keys)
+        for name, values in (columns.items() if isinstance(columns, dict) else columns):
+            self.sums[name] = np.asarray(np.bincount(self.ids, weights=values, minlength=n),
+                                         dtype=np.float64)
+
+    def frame(self) -> pd.DataFrame:
+        """Return the keys and the sums, one row per group."""
+        import pandas as pd
+
+        return pd.concat([self.keys, pd.DataFrame(self.sums)], axis=1)
 
 
 def _present(path: str, req: Request) -> set[str]:
@@ -247,55 +275,50 @@ def _ratio_columns(data: Dataset, num: str, den: str, key: str, w: Array) -> dic
     return out
 
 
-def _level_sums(data: Dataset, name: str, keys: dict[str, Any], names: list[str], w: Array
-                ) -> pd.DataFrame:
+def _level_sums(data: Dataset, name: str, groups: _Groups, w: Array) -> pd.DataFrame:
     """Return sums of w by the keys and the categorical variable's value (valid rows)."""
     import pandas as pd
 
     col = data.columns[name]
     valid = col.valid
-    frame = pd.DataFrame({k: v[valid] for k, v in keys.items()})
-    frame["value"] = col.values[valid] if col.numeric else col.values[valid].astype(str)
-    frame["w"] = w[valid]
-    return frame.groupby([*names, "value"], dropna=False, sort=False).sum().reset_index()
+    frame = pd.DataFrame({"_g": groups.ids[valid],
+                          "value": col.values[valid] if col.numeric
+                          else col.values[valid].astype(str), "w": w[valid]})
+    summed = frame.groupby(["_g", "value"], sort=False).sum().reset_index()
+    keys = groups.keys.iloc[summed["_g"].to_numpy()].reset_index(drop=True)
+    return pd.concat([keys, summed[["value", "w"]]], axis=1)
 
 
 def _replicate_sums(data: Dataset, req: Request, keys: dict[str, Any], names: list[str]
                     ) -> pd.DataFrame:
     """Return replicate-weighted sums by file, domain and by-values."""
-    import pandas as pd
-
-    rep = np.column_stack([np.asarray(data.columns[c].values, dtype=np.float64)
-                           for c in req.replicates])
-    if not (np.isfinite(rep).all() and (rep >= 0).all()):
-        raise WeightError("a replicate weight is missing, infinite or negative; replicate "
-                          "weights must be finite and >= 0")
-    group = [n for n in names if n not in ("_s", "_p")]
-    cols: dict[str, Any] = {}
-    for j, name in enumerate((*req.numeric, *req.categorical)):
+    rep = [np.asarray(data.columns[c].values, dtype=np.float64) for c in req.replicates]
+    for name, column in zip(req.replicates, rep, strict=True):  # the decoded columns, no copy
+        if not (np.isfinite(column).all() and (column >= 0).all()):
+            raise WeightError(f"replicate weight '{name}' is missing, infinite or negative "
+                              f"in {data.source}; replicate weights must be finite and >= 0")
+    groups = _Groups(keys, [n for n in names if n not in ("_s", "_p")])
+    n_rep = len(rep)
+    for j, name in enumerate((*req.numeric, *req.categorical)):  # loop over variables
         col = data.columns[name]
         valid = col.valid
         if name in req.numeric:
             y = np.where(valid, col.values, 0.0)
-            for r in range(rep.shape[1]):  # loop over replicates, not rows
-                cols[f"R{r}y{j}"] = rep[:, r] * y
-        for r in range(rep.shape[1]):
-            cols[f"R{r}w{j}"] = np.where(valid, rep[:, r], 0.0)
+            groups.add((f"R{r}y{j}", rep[r] * y) for r in range(n_rep))
+        groups.add((f"R{r}w{j}", np.where(valid, rep[r], 0.0)) for r in range(n_rep))
         if name in req.categorical:
             values = col.values if col.numeric else col.values.astype(str)
             for v in np.unique(values[valid]).tolist():  # loop over levels
                 hit = valid & (values == v)
-                for r in range(rep.shape[1]):
-                    cols[f"R{r}l{j}:{v!r}"] = np.where(hit, rep[:, r], 0.0)
+                groups.add((f"R{r}l{j}:{v!r}", np.where(hit, rep[r], 0.0))
+                           for r in range(n_rep))
     for k, (num, den) in enumerate(req.ratios):
         reasons = data.vocabulary.combine(data.columns[num].reasons, data.columns[den].reasons)
         both = reasons == VALID
-        for name, part in (("y", num), ("x", den)):
-            v = np.where(both, data.columns[part].values, 0.0)
-            for r in range(rep.shape[1]):
-                cols[f"R{r}{name}{ratio_key(k)}"] = rep[:, r] * v
-    frame = pd.DataFrame({**{k: keys[k] for k in group}, **cols})
-    return frame.groupby(group, dropna=False, sort=False).sum().reset_index()
+        for part, source in (("y", num), ("x", den)):
+            v = np.where(both, data.columns[source].values, 0.0)
+            groups.add((f"R{r}{part}{ratio_key(k)}", rep[r] * v) for r in range(n_rep))
+    return groups.frame()
 
 
 def add_sums(a: PartSums, b: PartSums) -> PartSums:
