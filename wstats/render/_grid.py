@@ -283,9 +283,9 @@ def design_line(design: Mapping[str, Any], settings: Mapping[str, Any], level: f
         parts.append(f"df {group_text(design['df'])}")
     pool = design.get("pool")
     if pool:  # several files: which factors, and that totals are per period
-        rule = pool.get("rule")
-        parts.append(f"{len(pool.get('factors') or {})} files pooled ({rule} weights; totals "
-                     "per period)")
+        rule, k = pool.get("rule"), len(pool.get("factors") or {})
+        parts.append(f"{k} file{'' if k == 1 else 's'} pooled ({rule} weights; totals per "
+                     "period)")
     if settings.get("engine") == "dask":
         parts.append("Dask engine")
     method = settings.get("proportion_ci")
