@@ -9,7 +9,7 @@ only when rows are missing.
 
 from __future__ import annotations
 
-from collections.abc import Callable, Sequence
+from collections.abc import Callable
 from typing import TYPE_CHECKING, Any
 
 import numpy as np
@@ -25,7 +25,8 @@ from wstats.design.replicates import (
     replicate_scale,
     resolve_replicate_columns,
 )
-from wstats.errors import DesignError, SingletonStratumError, WeightError, did_you_mean
+from wstats.design.singletons import treat_singletons
+from wstats.errors import DesignError, WeightError, did_you_mean
 
 if TYPE_CHECKING:
     import numpy.typing as npt
@@ -38,20 +39,7 @@ if TYPE_CHECKING:
     #: per-row codes (strata, PSUs): int32 unless there are 2**31 or more distinct values
     Codes = npt.NDArray[np.signedinteger[Any]]
 
-__all__ = ["bind", "singleton_error"]
-
-_SHOW = 5  # how many offending strata a message lists
-
-
-def singleton_error(labels: Sequence[str]) -> SingletonStratumError:
-    """Return the error listing strata with one PSU and the alternatives."""
-    shown = ", ".join(f"'{s}'" for s in labels[:_SHOW])
-    more = f" and {len(labels) - _SHOW} more" if len(labels) > _SHOW else ""
-    return SingletonStratumError(
-        f"{len(labels)} strata have a single PSU ({shown}{more}); the variance cannot be "
-        "estimated there: choose singleton='certainty', 'center' or 'collapse'"
-    )
-
+__all__ = ["bind"]
 
 def bind(design: Design, data: Dataset) -> BoundDesign:
     """Validate *design* against *data* and build the BoundDesign (see ``Design.bind``)."""
@@ -80,7 +68,7 @@ def bind(design: Design, data: Dataset) -> BoundDesign:
         breaks = None  # pooled files: no collapsed stratum crosses from one file to the next
         if pool is not None and not design.shared_psus:
             breaks = stratum_breaks(psu, psu_stratum, pool.rows(rows))
-        psu_stratum, n_h, f_h, labels = _singletons(design.singleton, psu_stratum, n_h, f_h,
+        psu_stratum, n_h, f_h, labels = treat_singletons(design.singleton, psu_stratum, n_h, f_h,
                                                      labels, breaks)
     reps = _replicates(design, data, rows, w, stratum, n_h, src, pool)
     df = float(len(psu_stratum) - len(n_h))
@@ -330,43 +318,6 @@ def _fpc(col: DecodedColumn | None, name: str | None, rows: Index | None, stratu
             "were sampled there; give the population count of PSUs (>= sampled) or a fraction"
         )
     return np.asarray(np.where(low > 1, n_h / low, low), dtype=np.float64)
-
-
-def _singletons(treatment: str, psu_stratum: Index, n_h: Index, f_h: Array,
-                labels: list[str], breaks: npt.NDArray[np.bool_] | None = None
-                ) -> tuple[Index, Index, Array, list[str]]:
-    """Apply the singleton treatment: fail, or collapse strata; others act in the variance.
-
-    *breaks* marks strata that begin another pooled file: no pool crosses them.
-    """
-    single = n_h == 1
-    if not single.any() or treatment in ("certainty", "center"):
-        return psu_stratum, n_h, f_h, labels
-    if treatment == "fail":
-        raise singleton_error([labels[h] for h in np.flatnonzero(single)])
-    group = _collapse_groups(single, breaks)
-    n_g = np.bincount(group, weights=n_h).astype(np.int64)
-    with np.errstate(divide="ignore"):
-        pop = np.where(f_h > 0, n_h / np.where(f_h > 0, f_h, 1.0), np.inf)
-    pop_g = np.bincount(group, weights=pop)
-    f_g = np.where(np.isinf(pop_g), 0.0, n_g / np.where(np.isinf(pop_g), 1.0, pop_g))
-    names = ["+".join(labels[h] for h in np.flatnonzero(group == g)) for g in range(len(n_g))]
-    return group[psu_stratum], n_g, np.asarray(f_g, dtype=np.float64), names
-
-
-def _collapse_groups(single: npt.NDArray[np.bool_],
-                     breaks: npt.NDArray[np.bool_] | None = None) -> Index:
-    """Return the pool of each stratum: a singleton joins the next stratum (last: previous).
-
-    With *breaks* (strata that begin another file) the rule holds within each file: the last
-    singleton of a file joins the pool before it in the same file.
-    """
-    cut = np.zeros(len(single), dtype=bool) if breaks is None else breaks
-    starts = np.r_[True, ~single[:-1]] | cut
-    ends = np.r_[starts[1:], True]
-    lone = single & starts & ends & ~np.r_[True, cut[1:]]  # alone, a stratum before it
-    starts &= ~lone  # joins the pool before it
-    return (np.cumsum(starts) - 1).astype(np.int64)
 
 
 def _replicates(design: Design, data: Dataset, rows: Index | None, w: Array, stratum: Codes,

@@ -13,7 +13,7 @@ from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
-from wstats.design.binding import _psu_index, _singletons
+from wstats.design.binding import _psu_index
 from wstats.design.bound import BoundDesign
 from wstats.design.pooling import (
     PeriodFiles,
@@ -24,6 +24,7 @@ from wstats.design.pooling import (
     stratum_breaks,
 )
 from wstats.design.replicates import replicate_df, replicate_scale, replicate_variance
+from wstats.design.singletons import treat_singletons
 from wstats.errors import DesignError
 
 if TYPE_CHECKING:
@@ -63,7 +64,7 @@ def summed_design(frame: pd.DataFrame, design: Design, files: PeriodFiles | None
     if not n_replicates:
         breaks = (stratum_breaks(psu, psu_stratum, file)
                   if files is not None and not design.shared_psus else None)
-        psu_stratum, n_h, f_h, labels = _singletons(design.singleton, psu_stratum, n_h, f_h,
+        psu_stratum, n_h, f_h, labels = treat_singletons(design.singleton, psu_stratum, n_h, f_h,
                                                     labels, breaks)
     df = _df(design, files, n_replicates, float(len(psu_stratum)), len(n_h),
              float(frame["rows"].sum()))
