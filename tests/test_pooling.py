@@ -380,3 +380,18 @@ def test_collapsed_strata_stay_within_their_file() -> None:
         np.hypot(float(per_file.se[1]), float(per_file.se[2])), rel=1e-10)
     alone = estimate(Dataset.from_arrays(a), design, ["y"], statistics="total").frame
     assert float(per_file.se[1]) == pytest.approx(0.5 * float(alone.se[0]), rel=1e-10)
+
+
+def test_compare_periods_when_compare_is_there() -> None:
+    # REFERENCES §13 (NCES 2006-075 App. A [S]): independent periods, SE(D) = sqrt(v1 + v2);
+    # df of the pooled design = the sum of the files' df (§16). Runs once `compare` is merged.
+    compare_module = pytest.importorskip("wstats.reports.compare")
+    a, b = _period(60), _period(61, weight=13.0)
+    data = _pooled(a, b)
+    result = compare_module.compare(data, DESIGN, ["y"], by="_file")
+    row = dict(result.differences.rows[0])
+    per = estimate(data, DESIGN, ["y"], by=["_file"]).frame
+    assert row["se"] == pytest.approx(np.hypot(float(per.se[1]), float(per.se[2])), rel=1e-10)
+    assert row["difference"] == pytest.approx(float(per.estimate[2] - per.estimate[1]),
+                                              rel=1e-10)
+    assert row["df"] == float(per.df[0])
