@@ -195,7 +195,7 @@ def level_matrix(s: Summed, levels: pd.DataFrame, values: list[Any], col: Decode
 def proportion(s: Summed, name: str, j: int, ci: str, by_level: Array, values_labels:
                tuple[list[Any], list[str]], replicate: Array | None) -> Piece:
     """Return the Piece of the proportions of every level of a categorical variable."""
-    from wstats.estimation.intervals import effective_n
+    from wstats.estimation.many_variables import proportion_piece
 
     ws = s.sums
     values, labels = values_labels
@@ -212,18 +212,7 @@ def proportion(s: Summed, name: str, j: int, ci: str, by_level: Array, values_la
         z = (pair_l - est[ws.pair_domain] * den_pair[:, None]) / den[ws.pair_domain, None]
     var = (replicate if replicate is not None
            else linearized_variance(np.where(np.isfinite(z), z, 0.0), ws))
-    var = np.where(np.isfinite(est), var, np.nan)
-    p, n = est.ravel(), np.repeat(m.n, nl)
-    empty = n == 0
-    p = np.where(empty, np.nan, p)
-    se = np.where(empty, np.nan, np.sqrt(np.maximum(var.ravel(), 0.0)))
-    nan = np.full(len(p), np.nan)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        deff = np.where(p * (1 - p) > 0, var.ravel() / (p * (1 - p) / n), np.nan)
-    return Piece(name, "proportion", [*labels] * nd, np.nan, np.repeat(np.arange(nd), nl),
-                 p, se, nan, nan.copy(), np.repeat(m.df, nl), deff,
-                 np.repeat(m.deff_weight, nl), effective_n(p, se, n), n,
-                 np.repeat(m.weighted_n, nl), np.repeat(m.reasons, nl, axis=0), ci)
+    return proportion_piece(name, labels, est, var, m, ci)
 
 
 def pieces_from_sums(total: PartSums, bound: BoundDesign, design: Design, lam: Array,
