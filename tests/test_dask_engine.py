@@ -230,3 +230,29 @@ def test_an_unreachable_scheduler_is_one_line(monkeypatch: pytest.MonkeyPatch,
                        r"tcp://10.9.9.9:8786 \(Timed out trying to connect\); check the address"):
         estimate(periods / "period1.xpt", DEMO, ["sl_hours"], engine="dask",
                  codebook=periods / "tbchs_codebook.toml", scheduler="tcp://10.9.9.9:8786")
+
+
+def _same_nonresponse(memory: Any, dask: Any) -> None:
+    a, b = memory.frame, dask.frame
+    assert list(a.columns) == list(b.columns)
+    for col in a.columns:
+        if a[col].dtype.kind == "f":
+            np.testing.assert_allclose(b[col].to_numpy(float), a[col].to_numpy(float),
+                                       rtol=1e-10, atol=0, equal_nan=True, err_msg=col)
+        else:
+            assert a[col].tolist() == b[col].tolist(), col
+    assert memory.settings == {k: v for k, v in dask.settings.items() if k != "engine"}
+    assert dask.settings["engine"] == "dask"
+
+
+def test_nonresponse_tables_on_dask(periods: Path, cluster: str) -> None:
+    from wstats import nonresponse
+
+    cb = periods / "tbchs_codebook.toml"
+    options: dict[str, Any] = {"by": ["dm_age5"], "codebook": cb, "sort_worst": True,
+                               "not_asked": ("skipped",)}
+    for files in (periods / "period1.xpt", str(periods / "period*.xpt")):
+        memory = nonresponse(files, DEMO, ["sl_hours", "hs_rate", "tc_now"], **options)
+        dask = nonresponse(files, DEMO, ["sl_hours", "hs_rate", "tc_now"], engine="dask",
+                           scheduler=cluster, **options)
+        _same_nonresponse(memory, dask)

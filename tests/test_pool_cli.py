@@ -108,13 +108,14 @@ def test_an_analysis_file_pools_a_list_and_runs_on_dask(periods: Path, tmp_path:
         assert y["se"] == pytest.approx(x["se"], rel=1e-10)
 
 
-def test_the_dask_engine_runs_estimates_only(periods: Path, tmp_path: Path) -> None:
+def test_the_dask_engine_runs_estimates_and_nonresponse_only(periods: Path, tmp_path: Path) -> None:
     text = (f'data = "{periods}/period*.xpt"\nengine = "dask"\n[design]\nweight = "wt_final"\n'
-            '[[nonresponse]]\nvariables = ["sl_hours"]\noutput = "n.json"\n')
+            '[[bounds]]\nvariables = ["hs_rate"]\noutput = "b.json"\n')
     _write(tmp_path / "a.toml", text)
     done = run_wstats("run", "a.toml", cwd=tmp_path)
     assert done.returncode == 1
-    assert "engine 'dask' runs [[estimates]] entries only, not [[nonresponse]] #1" in done.stderr
+    assert ("engine 'dask' runs [[estimates]] and [[nonresponse]] entries only, not "
+            "[[bounds]] #1") in done.stderr
 
 
 def test_a_table_spec_pools_a_glob_with_periods_as_columns(periods: Path, tmp_path: Path
@@ -146,3 +147,18 @@ def test_engine_options_are_checked(periods: Path) -> None:
                       "0:100", "--codebook", "tbchs_codebook.toml", cwd=periods)
     assert done.returncode == 2
     assert "--rows reads a first look in memory" in done.stderr
+
+
+def test_nonresponse_on_dask_from_the_command_line(periods: Path) -> None:
+    pytest.importorskip("distributed")
+    args = ["nonresponse", "period*.xpt", "sl_hours", "hs_rate", "--by", "_file",
+            "--codebook", "tbchs_codebook.toml"]
+    memory = _json(*args, cwd=periods)
+    dask = _json(*args, "--engine", "dask", cwd=periods)
+    assert len(memory["results"]) == len(dask["results"]) == 8
+    for x, y in zip(memory["results"], dask["results"], strict=True):
+        assert y["nonresponse_rate"] == pytest.approx(x["nonresponse_rate"], rel=1e-10)
+        assert y["se"] == pytest.approx(x["se"], rel=1e-10)
+        assert y["counts"] == x["counts"]
+        for reason, share in x["weighted_shares"].items():
+            assert y["weighted_shares"][reason] == pytest.approx(share, rel=1e-10, abs=1e-15)

@@ -202,6 +202,12 @@ class _Runner:
         self.a, self.codebook, self.design, self._data = analysis, codebook, design, data
         self.results: dict[tuple[str, str], Any] = {}
 
+    def engine_data(self) -> Any:
+        """Return the data read once, or the files for the Dask engine (its workers read)."""
+        if self.a.engine != "dask":
+            return self.data
+        return list(self.a.data_files) if len(self.a.data_files) > 1 else self.a.data
+
     @property
     def data(self) -> Dataset:
         """The data read once (engine ``memory``; engine ``dask`` runs estimates only)."""
@@ -246,9 +252,8 @@ class _Runner:
         from wstats.render import ESTIMATE_RENDERERS
 
         o = job.options
-        dask = self.a.engine == "dask"  # the workers read the files
-        data: Any = (list(self.a.data_files) if len(self.a.data_files) > 1
-                     else self.a.data) if dask else self.data
+        data = self.engine_data()
+        dask = self.a.engine == "dask"
         table = estimate(
             data, self.design, o["variables"], engine=self.a.engine,
             codebook=self.codebook if dask else None, statistics=o.get("statistics") or None,
@@ -265,10 +270,12 @@ class _Runner:
         from wstats.reports.nonresponse import nonresponse
 
         o = job.options
-        table = nonresponse(self.data, self.design, o["variables"], by=o["by"],
+        dask = self.a.engine == "dask"
+        table = nonresponse(self.engine_data(), self.design, o["variables"], by=o["by"],
                             where=o.get("where"), level=o["level"],
                             count_invalid=o["count_invalid"], sort_worst=o["sort_worst"],
-                            not_asked=o["not_asked"])
+                            not_asked=o["not_asked"], engine=self.a.engine,
+                            codebook=self.codebook if dask else None)
         self.results[("nonresponse", job.name)] = table
         return self.registry_render(NONRESPONSE_RENDERERS, table, job)
 

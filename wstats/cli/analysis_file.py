@@ -173,15 +173,16 @@ class _Parser(_Spec):
         return p
 
     def engine(self, jobs: Sequence[Job]) -> str:
-        """Return the engine; the Dask engine runs [[estimates]] (and their charts) only."""
+        """Return the engine; the Dask engine runs [[estimates]], [[nonresponse]], charts."""
         engine = self.text(self.doc.get("engine", "memory"), "engine")
         if engine not in _ENGINES:
             raise self.fail("engine", f"'{engine}' is not one of {', '.join(_ENGINES)}"
                             f"{did_you_mean(engine, _ENGINES)}")
-        other = [j.key for j in jobs if j.kind not in ("estimates", "plot")]
+        other = [j.key for j in jobs if j.kind not in ("estimates", "nonresponse", "plot")]
         if engine == "dask" and other:
-            raise self.fail("engine", f"engine 'dask' runs [[estimates]] entries only, not "
-                            f"{other[0]}; run that entry in another analysis file")
+            raise self.fail("engine", f"engine 'dask' runs [[estimates]] and [[nonresponse]] "
+                            f"entries only, not {other[0]}; run that entry in another "
+                            "analysis file")
         return engine
 
     def analysis(self) -> Analysis:

@@ -191,14 +191,18 @@ def add_estimate_args(p: argparse.ArgumentParser) -> None:
     g.add_argument("--standard", default="nchs-2017", metavar="NAME",
                    help="reliability standard: nchs-2017 (default), rse-30, none")
     g.add_argument("--plot", metavar="FILE", help="also draw estimates across domains (.png/.svg)")
+    _add_engine_options(p)
+    _add_output_options(p, OUTPUT_FORMATS)
+
+
+def _add_engine_options(p: argparse.ArgumentParser) -> None:
     e = p.add_argument_group("engine")
     e.add_argument("--engine", choices=("memory", "dask"), default="memory",
                    help="memory (default), or dask: partitions summed on a Dask cluster "
-                        "(means, totals, proportions, ratios; pip install 'wstats[dask]')")
+                        "(pip install 'wstats[dask]'; see docs/scale.md)")
     e.add_argument("--scheduler", metavar="ADDRESS",
                    help="with --engine dask: a running scheduler (e.g. tcp://10.0.0.5:8786); "
                         "default: a local cluster for this command")
-    _add_output_options(p, OUTPUT_FORMATS)
 
 
 def ratio_pair(text: str) -> tuple[str, str]:
@@ -245,6 +249,7 @@ def add_nonresponse_args(p: argparse.ArgumentParser) -> None:
                         "(default skipped; e.g. skipped,not_applicable)")
     p.add_argument("--level", type=float, default=0.95, help="confidence level (default 0.95)")
     p.add_argument("--plot", metavar="FILE", help="also draw reasons per variable (.png/.svg)")
+    _add_engine_options(p)
     _add_output_options(p, OUTPUT_FORMATS)
 
 

@@ -51,16 +51,8 @@ def _run_estimate(args: argparse.Namespace) -> int:
     design = design_from(args, codebook)
     ratios = [ratio_pair(r) for r in args.ratio]
     variables = list(args.variables)
-    if args.scheduler and args.engine != "dask":
-        raise UsageError("--scheduler needs --engine dask")
-    if args.rows and args.engine == "dask":
-        raise UsageError("--rows reads a first look in memory; drop it or --engine dask")
-    if args.engine == "dask":
-        data: Any = args.data  # the files: the workers read them
-    else:
-        needed = needed_columns([*variables, *[x for r in ratios for x in r], *args.by],
-                                design, args.where, args.data)
-        data = _read(args, codebook, needed)
+    data = _engine_data(args, codebook, design,
+                        [*variables, *[x for r in ratios for x in r], *args.by])
     table = estimate(
         data, design, variables, engine=args.engine, codebook=codebook,
         scheduler=args.scheduler, statistics=split_list([args.stats]) or None, by=args.by,
@@ -74,6 +66,18 @@ def _run_estimate(args: argparse.Namespace) -> int:
 
         plot_domains(table, Path(args.plot), overwrite=args.overwrite)
     return 0
+
+
+def _engine_data(args: argparse.Namespace, codebook: Any, design: Any, names: list[str]
+                 ) -> Any:
+    """Return the data read in memory, or the files themselves for the Dask engine."""
+    if args.scheduler and args.engine != "dask":
+        raise UsageError("--scheduler needs --engine dask")
+    if args.rows and args.engine == "dask":
+        raise UsageError("--rows reads a first look in memory; drop it or --engine dask")
+    if args.engine == "dask":
+        return args.data  # the workers read the files
+    return _read(args, codebook, needed_columns(names, design, args.where, args.data))
 
 
 def _standard(name: str) -> Any:
@@ -93,11 +97,11 @@ def _run_nonresponse(args: argparse.Namespace) -> int:
 
     codebook = _load_codebook(args.codebook)
     design = design_from(args, codebook)
-    needed = needed_columns([*args.variables, *args.by], design, args.where, args.data)
-    data = _read(args, codebook, needed)
+    data = _engine_data(args, codebook, design, [*args.variables, *args.by])
     table = nonresponse(data, design, args.variables, by=args.by, where=args.where,
                         level=args.level, count_invalid=not args.exclude_invalid,
-                        sort_worst=args.worst_first, not_asked=tuple(split_list([args.not_asked])))
+                        sort_worst=args.worst_first, not_asked=tuple(split_list([args.not_asked])),
+                        engine=args.engine, codebook=codebook, scheduler=args.scheduler)
     _emit(table, "nonresponse", args, paths, args.codebook)
     if args.plot:
         from wstats.reports.plots import plot_reasons

@@ -8,6 +8,7 @@ partition, not the data.
 
 Available: means, totals, proportions and ratios, overall and by domains, ``where``, Taylor
 linearization (strata, PSUs; singleton treatments) and replicate weights, pooled files.
+Item nonresponse tables run here too (:mod:`wstats.reports.nonresponse_dask`).
 Refused with a message naming what is missing: quantiles (an exact quantile needs
 every value of a domain sorted together), FPC, ``drop_incomplete``, domain df, jackknife-strata
 without given factors, a linearization design without PSUs.
@@ -29,11 +30,12 @@ if TYPE_CHECKING:
     from wstats.decoding.codebook import Codebook
     from wstats.design.declared import Design
     from wstats.estimation.from_sums import Summed
+    from wstats.estimation.partition_rates import Rates
     from wstats.estimation.partition_sums import PartSums, Request, Task
     from wstats.estimation.reliability import ReliabilityStandard
     from wstats.estimation.results import EstimateTable
 
-__all__ = ["ENGINES", "PARTITION_ROWS", "estimate_dask", "need_dask"]
+__all__ = ["ENGINES", "PARTITION_ROWS", "estimate_dask", "need_dask", "summed_estimate"]
 
 ENGINES = ("memory", "dask")
 #: rows per partition of a Parquet file (other formats: one partition per file)
@@ -59,13 +61,34 @@ def estimate_dask(
     reliability: ReliabilityStandard | None = None, scheduler: str | None = None,
     encoding: str = "utf-8", partition_rows: int = PARTITION_ROWS, workers: int | None = None,
 ) -> EstimateTable:
-    """Estimate means, totals, proportions and ratios on a Dask cluster (see the module docstring).
+    """Estimate means, totals, proportions and ratios on a Dask cluster (module docstring).
 
     Parameters are those of :func:`wstats.estimate` with the data given as files (a path,
     a glob, a folder or a list; several files are pooled), plus *codebook*, *scheduler* (the
     address of a running ``dask.distributed`` scheduler; None starts a local cluster sized
     to the machine for the duration of the call), *partition_rows* (rows per partition of a
     Parquet file) and *workers* (local cluster size; None: one per CPU).
+    """
+    return summed_estimate(
+        data, design, variables, codebook=codebook, statistics=statistics, ratios=ratios,
+        by=by, where=where, categorical=categorical, level=level, proportion_ci=proportion_ci,
+        reliability=reliability, scheduler=scheduler, encoding=encoding,
+        partition_rows=partition_rows, workers=workers)[0]
+
+
+def summed_estimate(
+    data: str | Path | Sequence[str | Path], design: Design, variables: Sequence[str], *,
+    codebook: Codebook | str | Path | None = None, statistics: str | Sequence[str] | None = None,
+    ratios: Sequence[tuple[str, str]] = (), by: Sequence[str] = (), where: str | None = None,
+    categorical: Sequence[str] = (), level: float = 0.95, proportion_ci: str = "korn-graubard",
+    reliability: ReliabilityStandard | None = None, scheduler: str | None = None,
+    encoding: str = "utf-8", partition_rows: int = PARTITION_ROWS, workers: int | None = None,
+    rates: Rates | None = None,
+) -> tuple[EstimateTable, Summed]:
+    """Return :func:`estimate_dask`'s table and the summed groups behind it.
+
+    With *rates*, *variables* are the items' nonresponse indicators, made on the workers
+    (:mod:`wstats.estimation.partition_rates`), and the groups carry every reason's count.
     """
     need_dask()
     from wstats.estimation.assemble import check_options, table_of
@@ -81,7 +104,7 @@ def estimate_dask(
     cb = _codebook(codebook)
     files = _period_files(paths, cb) if len(paths) > 1 else None
     req, numeric, cats, ambiguous = _request(paths, design, variables, stats, by, where,
-                                             categorical, cb, encoding, ratios)
+                                             categorical, cb, encoding, ratios, rates)
     with _client(scheduler, workers) as client:
         total = _reduce(client, _tasks(paths, partition_rows), req)
     if files is not None:
@@ -96,9 +119,10 @@ def estimate_dask(
     summary = bound.summary()
     summary["n_rows"] = int(total.main["rows"].sum())
     df_rule = "replicates" if req.replicates else design.domain_df
-    return table_of(pieces, by, summed.by_levels, summed.vocabulary.names, level,
-                    proportion_ci, reliability, summary, {"df_rule": df_rule,
-                                                          "engine": "dask"})
+    table = table_of(pieces, by, summed.by_levels, summed.vocabulary.names, level,
+                     proportion_ci, reliability, summary, {"df_rule": df_rule,
+                                                           "engine": "dask"})
+    return table, summed
 
 
 def _warn_pooling(total: PartSums, files: PeriodFiles) -> None:
@@ -138,17 +162,19 @@ def _period_files(paths: list[str], cb: Codebook | None) -> PeriodFiles:
 def _request(paths: list[str], design: Design, variables: Sequence[str],
              stats: list[str] | None, by: Sequence[str], where: str | None,
              categorical: Sequence[str], cb: Codebook | None, encoding: str,
-             ratios: Sequence[tuple[str, str]] = ()
+             ratios: Sequence[tuple[str, str]] = (), rates: Rates | None = None
              ) -> tuple[Request, list[str], list[str], list[str]]:
     """Return what partitions sum, and which variables are numeric, categorical, either."""
     from wstats.design.replicates import resolve_replicate_columns
     from wstats.estimation.partition_sums import Request
     from wstats.readers.dispatch import file_columns
 
-    own = [v for v in dict.fromkeys([*variables, *by, *(v for r in ratios for v in r)])
+    looked = variables if rates is None else [item for item, _ in rates.items]
+    own = [v for v in dict.fromkeys([*looked, *by, *(v for r in ratios for v in r)])
            if v != FILE_COLUMN]
     first = _first_rows(paths, own, cb, encoding)
-    numeric, cats, ambiguous = _kinds(first, variables, stats, categorical)
+    numeric, cats, ambiguous = (([], list(variables), []) if rates is not None
+                                else _kinds(first, variables, stats, categorical))
     extra: list[str] = []
     if where:
         from wstats.decoding.expressions import expression_names
@@ -161,7 +187,7 @@ def _request(paths: list[str], design: Design, variables: Sequence[str],
     req = Request(design.weight, design.strata, design.psu, reps, tuple(by), where,
                   tuple(numeric), tuple(cats),
                   tuple(c for c in dict.fromkeys(columns) if c != FILE_COLUMN), cb, encoding,
-                  tuple((str(a), str(b)) for a, b in ratios))
+                  tuple((str(a), str(b)) for a, b in ratios), rates)
     return req, numeric, cats, ambiguous
 
 

@@ -21,6 +21,7 @@ import numpy as np
 from wstats.decoding.reasons import VALID
 from wstats.decoding.stacking import FILE_COLUMN, NOT_IN_FILE
 from wstats.errors import DesignError, WeightError
+from wstats.estimation.partition_rates import Rates, rate_columns, reason_sums
 
 if TYPE_CHECKING:
     import numpy.typing as npt
@@ -66,6 +67,7 @@ class Request:
     codebook: Any = None
     encoding: str = "utf-8"
     ratios: tuple[tuple[str, str], ...] = ()
+    rates: Rates | None = None
 
 
 @dataclass
@@ -108,11 +110,16 @@ def partition_sums(task: Task, req: Request) -> PartSums:
     present = _present(task.path, req)
     data = read(task.path, [c for c in req.columns if c in present], req.codebook, task.rows,
                 False, req.encoding)
+    indicators = {i for _, i in req.rates.items} if req.rates else set()
     wanted = [n for n in dict.fromkeys((*req.by, *req.numeric, *req.categorical,
-                                        *(v for r in req.ratios for v in r)))
-              if n != FILE_COLUMN]
+                                        *(v for r in req.ratios for v in r),
+                                        *(v for v, _ in (req.rates.items if req.rates else ()))))
+              if n != FILE_COLUMN and n not in indicators]
     own = [n for n in wanted if n in data.columns]  # the others: not_in_file here
     data = _fill_absent(data, [n for n in wanted if n not in data.columns])
+    if req.rates is not None:  # nonresponse indicators, made from the items' reasons
+        data = rate_columns(data, req.rates)
+        own += sorted(indicators)
     keys = _keys(data, task, req)
     names = [*KEYS, *(by_key(j) for j in range(len(req.by)))]
     w = _weights(data, req.weight, task.path)
@@ -122,6 +129,8 @@ def partition_sums(task: Task, req: Request) -> PartSums:
         groups.add(_variable_columns(data, name, j, w, name in req.numeric))
     for k, (num, den) in enumerate(req.ratios):
         groups.add(_ratio_columns(data, num, den, ratio_key(k), w))
+    if req.rates is not None:
+        groups.add(reason_sums(data, req.rates, w))
     levels = {j: _level_sums(data, name, groups, w)
               for j, name in enumerate(req.categorical, start=len(req.numeric))}
     reps = _replicate_sums(data, req, keys, names) if req.replicates else None

@@ -32,6 +32,7 @@ from __future__ import annotations
 
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, field, replace
+from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
 import numpy as np
@@ -46,6 +47,7 @@ if TYPE_CHECKING:
     import numpy.typing as npt
     import pandas as pd
 
+    from wstats.decoding.codebook import Codebook
     from wstats.design.declared import Design
     from wstats.estimation.results import EstimateTable
 
@@ -153,7 +155,7 @@ def nonresponse_reasons(data: Dataset, count_invalid: bool = True,
 
 
 def nonresponse(
-    data: Dataset,
+    data: Dataset | str | Path | Sequence[str | Path],
     design: Design,
     variables: Sequence[str],
     *,
@@ -163,12 +165,15 @@ def nonresponse(
     count_invalid: bool = True,
     sort_worst: bool = False,
     not_asked: Sequence[str] = ("skipped",),
+    engine: str = "memory",
+    codebook: Codebook | str | Path | None = None,
+    scheduler: str | None = None,
 ) -> NonresponseTable:
     """Count missing values by reason and estimate item nonresponse rates.
 
     Parameters
     ----------
-    data : decoded dataset.
+    data : decoded dataset, or the data files (several are pooled; read with *codebook*).
     design : the sample design (weights, strata, PSUs or replicates).
     variables : items to break down.
     by : variables whose crossed levels form domains (the population row comes first).
@@ -179,6 +184,9 @@ def nonresponse(
         (domains stay under their variable).
     not_asked : reasons that mean the item was not asked (out of its universe): left out of
         the denominator like ``skipped``, which is always among them.
+    engine : ``memory`` (default), or ``dask``: *data* are then the data files (a path, a
+        glob, a folder or a list), read with *codebook* partition by partition on a Dask
+        cluster (*scheduler*: a running one; None: a local cluster for the call).
 
     Returns
     -------
@@ -200,6 +208,21 @@ def nonresponse(
     from wstats.estimation.estimate import estimate
     from wstats.estimation.reliability import STANDARDS
 
+    if engine == "dask":
+        from wstats.reports.nonresponse_dask import nonresponse_dask
+
+        if isinstance(data, Dataset):
+            raise EstimationError("engine 'dask' reads the data files itself; give their paths "
+                                  "(and codebook=...), not a Dataset")
+        return nonresponse_dask(data, design, variables, by=by, where=where, level=level,
+                                count_invalid=count_invalid, sort_worst=sort_worst,
+                                not_asked=not_asked, codebook=codebook, scheduler=scheduler)
+    if engine != "memory":
+        raise EstimationError(f"engine '{engine}' is not one of memory, dask")
+    if not isinstance(data, Dataset):
+        from wstats.estimation.estimate import _read_files
+
+        data = _read_files(data, design, [*variables, *by], where, codebook)
     names = _check_variables(data, variables)
     skip = tuple(dict.fromkeys(("skipped", *not_asked)))
     counted = nonresponse_reasons(data, count_invalid, skip)
