@@ -256,3 +256,9 @@ def test_nonresponse_tables_on_dask(periods: Path, cluster: str) -> None:
         dask = nonresponse(files, DEMO, ["sl_hours", "hs_rate", "tc_now"], engine="dask",
                            scheduler=cluster, **options)
         _same_nonresponse(memory, dask)
+
+
+def test_a_condition_on_the_file(periods: Path, cluster: str) -> None:
+    cb = periods / "tbchs_codebook.toml"
+    _both(str(periods / "period*.xpt"), DEMO, ["sl_hours"], cluster, cb, where="_file == 2",
+          by=["dm_sex"])

@@ -117,6 +117,7 @@ def partition_sums(task: Task, req: Request) -> PartSums:
               if n != FILE_COLUMN and n not in indicators]
     own = [n for n in wanted if n in data.columns]  # the others: not_in_file here
     data = _fill_absent(data, [n for n in wanted if n not in data.columns])
+    data = _with_file(data, task.file)
     if req.rates is not None:  # nonresponse indicators, made from the items' reasons
         data = rate_columns(data, req.rates)
         own += sorted(indicators)
@@ -192,6 +193,16 @@ def _fill_absent(data: Dataset, names: list[str]) -> Dataset:
                                             np.full(data.n_rows, code, np.int8),
                                             data.vocabulary, kind="categorical")
     return Dataset(cols, data.vocabulary, data.n_rows, data.source, data.metadata)
+
+
+def _with_file(data: Dataset, file: int) -> Dataset:
+    """Return *data* with ``_file`` (the file's place in the pool, 1..K) for conditions."""
+    from wstats.decoding.columns import Dataset, DecodedColumn
+
+    col = DecodedColumn.of_codes(FILE_COLUMN, np.full(data.n_rows, file + 1.0),
+                                 np.zeros(0, np.int8), data.vocabulary, kind="categorical")
+    return Dataset({**data.columns, FILE_COLUMN: col}, data.vocabulary, data.n_rows,
+                   data.source, data.metadata)
 
 
 def _keys(data: Dataset, task: Task, req: Request) -> dict[str, Any]:
