@@ -162,3 +162,21 @@ def test_nonresponse_on_dask_from_the_command_line(periods: Path) -> None:
         assert y["counts"] == x["counts"]
         for reason, share in x["weighted_shares"].items():
             assert y["weighted_shares"][reason] == pytest.approx(share, rel=1e-10, abs=1e-15)
+
+
+def test_compare_periods_from_the_command_line(periods: Path) -> None:
+    # REFERENCES §13, §16: independent periods, SE of a change = sqrt(v1 + v2); df of the
+    # pooled design (the sum of the files' df)
+    out = _json("compare", "period*.xpt", "sl_hours", "--by", "_file", "--trend",
+                "--codebook", "tbchs_codebook.toml", cwd=periods)
+    est = _json("estimate", "period*.xpt", "sl_hours", "--by", "_file", "--codebook",
+                "tbchs_codebook.toml", cwd=periods)["results"]
+    se = {r["group"]["_file"]: r["se"] for r in est if r["group"]}
+    first = out["differences"][0]
+    assert (first["group_a"], first["group_b"]) == ("period1", "period2")
+    assert first["se"] == pytest.approx((se["period1"] ** 2 + se["period2"] ** 2) ** 0.5,
+                                        rel=1e-10)
+    assert first["df"] == est[0]["df"]
+    assert [i["name"] for i in out["provenance"]["inputs"]][:3] == [
+        "period1.xpt", "period2.xpt", "period3.xpt"]
+    assert any(t["test"].startswith("trend") for t in out["tests"])

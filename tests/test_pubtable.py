@@ -246,7 +246,10 @@ def test_the_documented_example_spec_is_valid(tmp_path: Path) -> None:
     for name in ("tbchs_sample.xpt", "tbchs_codebook.toml"):
         (tmp_path / name).write_text("", encoding="utf-8")  # only existence is checked here
     spec = load_table_spec(tmp_path / "table1.toml")
-    assert [r.variable for r in spec.rows] == ["sl_hours", "tc_ever", "pa_mmin", "bd_bmi"]
+    assert [r.variable for r in spec.rows] == ["sl_hours", "tc_ever", "pa_mmin", "bd_bmi",
+                                               "bd_bmi"]
+    assert spec.rows[4].age_adjust == "dm_age5" and spec.rows[4].standard is not None
+    assert spec.rows[4].standard.name == "basin-adults" and spec.p_value
     assert spec.rows[2].p == 0.5 and spec.rows[3].decimals == 2
     assert spec.by == ("dm_age5", "ar_dist") and spec.total == "All adults"
     assert [f for _, f in spec.outputs] == ["markdown", "xlsx"]

@@ -22,7 +22,7 @@ from wstats.decoding.decode import _evaluate_in_tiles
 from wstats.decoding.expressions import parse_expression
 from wstats.design.declared import Design
 from wstats.estimation import many_variables as _batch
-from wstats.estimation.estimate import _domains
+from wstats.estimation.domain_setup import build_domains as _domains
 from wstats.estimation.statistics import Context
 from wstats.estimation.sums import WeightedSums
 

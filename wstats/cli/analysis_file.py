@@ -19,16 +19,18 @@ from wstats.reports.table_specs import _Spec
 __all__ = ["JOB_KEYS", "Analysis", "Job", "Output", "load_analysis"]
 
 _TOP = ("data", "codebook", "title", "design", "defaults", "estimates", "nonresponse",
-        "bounds", "table", "methods", "plot", "engine")
+        "bounds", "compare", "table", "methods", "plot", "engine")
 _ENGINES = ("memory", "dask")
 _OUT = ("output", "format")
 _DOMAIN = ("variables", "by", "where", "level")
 #: table name -> allowed keys of each entry
 JOB_KEYS: dict[str, tuple[str, ...]] = {
     "estimates": ("name", *_DOMAIN, "statistics", "categorical", "ratios", "quantiles",
-                  "proportion_ci", "reliability", *_OUT),
+                  "proportion_ci", "reliability", "margins", *_OUT),
     "nonresponse": ("name", *_DOMAIN, "count_invalid", "sort_worst", "not_asked", *_OUT),
-    "bounds": ("name", *_DOMAIN, "reasons", *_OUT),
+    "bounds": ("name", *_DOMAIN, "reasons", "reliability", *_OUT),
+    "compare": ("name", *_DOMAIN, "reference", "pairs", "adjust_p", "trend", "reasons",
+                "categorical", "age_adjust", "standard", *_OUT),
     "table": ("spec", "title", "rows", "columns", "where", "cells", "intervals", "notes",
               "reliability", *_OUT),
     "methods": ("estimates", *_OUT),
@@ -192,7 +194,8 @@ class _Parser(_Spec):
         if "title" in self.doc:
             self.text(self.doc["title"], "title")
         jobs: list[Job] = []
-        for kind in ("estimates", "nonresponse", "bounds", "table", "methods", "plot"):
+        for kind in ("estimates", "nonresponse", "bounds", "compare", "table", "methods",
+                     "plot"):
             entries = self.doc.get(kind, [])
             if kind == "methods":
                 entries = [self.subtable(entries, kind)] if kind in self.doc else []
@@ -240,6 +243,8 @@ class _Parser(_Spec):
         opts: dict[str, Any] = {}
         if kind in ("estimates", "nonresponse", "bounds"):
             opts = self.domain_options(kind, key, entry)
+        elif kind == "compare":
+            opts = self.compare_options(key, entry)
         elif kind == "methods":
             if "estimates" in entry:
                 opts["estimates"] = self.text(entry["estimates"], f"{key} estimates")
@@ -271,18 +276,15 @@ class _Parser(_Spec):
         else:
             opts["reasons"] = self.names(entry.get("reasons", ["dont_know", "refused"]),
                                          f"{key} reasons", empty=False)
+            opts["reliability"] = self.reliability(key, entry)
         return opts
 
     def estimate_options(self, key: str, entry: Mapping[str, Any]) -> dict[str, Any]:
         """Return the statistics, interval and reliability options of an estimates entry."""
         from wstats.estimation.intervals import PROPORTION_INTERVALS
-        from wstats.estimation.reliability import STANDARDS
 
         d = self.defaults
-        stats = self.names(entry.get("statistics", []), f"{key} statistics")
-        for s in stats:
-            self.choice(s, f"{key} statistics", ("mean", "total", "proportion", "ratio",
-                                                 "quantile"))
+        stats = self.statistics(key, entry.get("statistics", []))
         ratios = entry.get("ratios", [])
         if not isinstance(ratios, list) or not all(
                 isinstance(r, list) and len(r) == 2 for r in ratios):
@@ -293,15 +295,61 @@ class _Parser(_Spec):
             raise self.fail(f"{key} quantiles", "must be a list of probabilities, e.g. [0.5]")
         return {
             "statistics": stats,
+            "margins": self.flag(entry.get("margins", False), f"{key} margins"),
             "categorical": self.names(entry.get("categorical", []), f"{key} categorical"),
             "ratios": tuple(tuple(self.names(r, f"{key} ratios")) for r in ratios),
             "quantiles": tuple(float(q) for q in quantiles),
             "proportion_ci": self.choice(entry.get("proportion_ci", d.get(
                 "proportion_ci", "korn-graubard")), f"{key} proportion_ci",
                 list(PROPORTION_INTERVALS)),
-            "reliability": self.choice(entry.get("reliability", d.get(
-                "reliability", "nchs-2017")), f"{key} reliability", list(STANDARDS)),
+            "reliability": self.reliability(key, entry),
         }
+
+    def compare_options(self, key: str, entry: Mapping[str, Any]) -> dict[str, Any]:
+        """Return the options of a [[compare]] entry (see ``wstats.compare``)."""
+        d = self.defaults
+        if "variables" not in entry or "by" not in entry:
+            raise self.fail(f"{key} {'by' if 'variables' in entry else 'variables'}",
+                            "missing; e.g. variables = [\"bd_bmi\"] and by = \"dm_sex\"")
+        where = entry.get("where", d.get("where"))
+        ref = entry.get("reference")
+        return {
+            "variables": self.names(entry["variables"], f"{key} variables", empty=False),
+            "by": (self.text(entry["by"], f"{key} by"),),
+            "level": self.level(entry.get("level", d.get("level", 0.95)), f"{key} level"),
+            "where": None if where is None else self.text(where, f"{key} where"),
+            "reference": None if ref is None else self.text(str(ref), f"{key} reference"),
+            "pairs": self.choice(entry.get("pairs", "reference"), f"{key} pairs",
+                                 ("reference", "all")),
+            "adjust_p": self.choice(entry.get("adjust_p", "none"), f"{key} adjust_p",
+                                    ("none", "holm", "bh")),
+            "trend": self.flag(entry.get("trend", False), f"{key} trend"),
+            "reasons": self.flag(entry.get("reasons", False), f"{key} reasons"),
+            "categorical": self.names(entry.get("categorical", []), f"{key} categorical"),
+            **self.age(entry, key),
+        }
+
+    def statistics(self, key: str, value: Any) -> tuple[str, ...] | dict[str, tuple[str, ...]]:
+        """Return the statistics: one list for every variable, or a table of lists per variable."""
+        allowed = ("mean", "total", "proportion", "ratio", "quantile")
+        if isinstance(value, dict):
+            per = {self.text(v, f"{key} statistics"): self.names(s, f"{key} statistics.{v}")
+                   for v, s in value.items()}
+            for v, names in per.items():
+                for s in names:
+                    self.choice(s, f"{key} statistics.{v}", allowed)
+            return per
+        names = self.names(value, f"{key} statistics")
+        for s in names:
+            self.choice(s, f"{key} statistics", allowed)
+        return names
+
+    def reliability(self, key: str, entry: Mapping[str, Any]) -> str:
+        """Return the entry's reliability standard (or the default's), checked."""
+        from wstats.estimation.reliability import STANDARDS
+
+        return self.choice(entry.get("reliability", self.defaults.get(
+            "reliability", "nchs-2017")), f"{key} reliability", list(STANDARDS))
 
     def plot_options(self, key: str, entry: Mapping[str, Any]) -> dict[str, Any]:
         """Return kind, source entry and whether matplotlib is required."""
@@ -380,7 +428,8 @@ def _formats(kind: str) -> tuple[dict[str, str], list[str]]:
     from wstats import render
 
     registry = {"estimates": render.ESTIMATE_RENDERERS, "table": render.TABLE_RENDERERS,
-                "nonresponse": render.NONRESPONSE_RENDERERS}[kind]
+                "nonresponse": render.NONRESPONSE_RENDERERS,
+                "compare": render.COMPARE_RENDERERS}[kind]
     return ({s: f for s, f in render.SUFFIX_FORMATS.items() if f in registry},
             [f for f in registry])
 

@@ -14,9 +14,9 @@ from wstats.errors import UsageError
 
 __all__ = [
     "OUTPUT_FORMATS", "Parser", "add_bounds_args", "add_codebook_args", "add_columns_args",
-    "add_convert_args", "add_demo_args", "add_estimate_args", "add_nonresponse_args",
-    "add_run_args", "add_table_args", "data_paths", "design_from", "format_for", "needed_columns",
-    "one_line", "parse_rows", "ratio_pair", "split_list",
+    "add_compare_args", "add_convert_args", "add_demo_args", "add_estimate_args",
+    "add_nonresponse_args", "add_run_args", "add_table_args", "data_paths", "design_from",
+    "format_for", "needed_columns", "one_line", "parse_rows", "ratio_pair", "split_list",
 ]
 
 OUTPUT_FORMATS = ("table", "csv", "json", "markdown", "latex", "html")
@@ -168,28 +168,30 @@ def _is_data_path(text: str) -> bool:
 
 def add_estimate_args(p: argparse.ArgumentParser) -> None:
     _add_data_options(p)
-    p.add_argument("variables", metavar="VAR", nargs="+", help="variables to estimate")
+    p.add_argument("variables", metavar="VAR", nargs="*",
+                   help="variables to estimate (none needed when --ratio is given)")
     _add_design_options(p)
     g = p.add_argument_group("what to estimate")
     g.add_argument("--by", nargs="+", action="extend", metavar="COL", default=[],
                    help="domains: levels of these variables, crossed")
-    g.add_argument("--where", metavar="EXPR",
-                   help="row condition defining a subpopulation, e.g. 'dm_age >= 65'")
-    g.add_argument("--categorical", nargs="+", action="extend", metavar="COL", default=[],
-                   help="treat these variables as categorical (a proportion per level)")
-    g.add_argument("--stats", metavar="LIST",
+    g.add_argument("--margins", action="store_true",
+                   help="with crossed --by A B: also each by-variable alone (one-way margins)")
+    _add_subpopulation_options(g)
+    g.add_argument("--statistics", metavar="LIST",
                    help="comma list of mean,total,proportion,ratio,quantile (default: mean for "
                         "numbers, proportion for categories)")
+    g.add_argument("--stats", dest="statistics", action=_OldName, help=argparse.SUPPRESS)
     g.add_argument("--ratio", nargs="+", action="extend", metavar="NUM/DEN", default=[],
                    help="ratio of two variables, e.g. --ratio VISITS/PERSONS")
     g.add_argument("--quantiles", metavar="P,P", default="0.5",
-                   help="probabilities for --stats quantile (default 0.5)")
+                   help="probabilities for --statistics quantile (default 0.5)")
     g.add_argument("--level", type=float, default=0.95, help="confidence level (default 0.95)")
     g.add_argument("--proportion-ci", default="korn-graubard",
                    choices=("korn-graubard", "logit", "wilson", "wald"),
                    help="interval for proportions (default korn-graubard)")
-    g.add_argument("--standard", default="nchs-2017", metavar="NAME",
+    g.add_argument("--reliability", default=None, metavar="NAME",
                    help="reliability standard: nchs-2017 (default), rse-30, none")
+    _add_age_options(g)
     g.add_argument("--plot", metavar="FILE", help="also draw estimates across domains (.png/.svg)")
     _add_engine_options(p)
     _add_output_options(p, OUTPUT_FORMATS)
@@ -203,6 +205,60 @@ def _add_engine_options(p: argparse.ArgumentParser) -> None:
     e.add_argument("--scheduler", metavar="ADDRESS",
                    help="with --engine dask: a running scheduler (e.g. tcp://10.0.0.5:8786); "
                         "default: a local cluster for this command")
+
+
+def _add_subpopulation_options(g: Any) -> None:
+    g.add_argument("--where", metavar="EXPR",
+                   help="row condition defining a subpopulation, e.g. 'dm_age >= 65'")
+    g.add_argument("--categorical", nargs="+", action="extend", metavar="COL", default=[],
+                   help="treat these variables as categorical (a proportion per level)")
+
+
+def _add_age_options(g: Any) -> None:
+    g.add_argument("--age-adjust", metavar="AGEVAR",
+                   help="directly age-adjust over the levels of AGEVAR (needs --standard)")
+    g.add_argument("--standard", metavar="NAME|FILE.toml",
+                   help="standard population for --age-adjust: us2000-11, us2000-adults18, "
+                        "us2000-adults20 or a TOML file (without --age-adjust in estimate: "
+                        "the reliability standard, as --reliability)")
+
+
+def add_compare_args(p: argparse.ArgumentParser) -> None:
+    _add_data_options(p)
+    p.add_argument("variables", metavar="VAR", nargs="+", help="variables to compare")
+    _add_design_options(p)
+    g = p.add_argument_group("what to compare")
+    g.add_argument("--by", required=True, metavar="GROUP",
+                   help="the grouping variable whose levels are compared")
+    g.add_argument("--reference", metavar="LEVEL",
+                   help="level (label or code) the others are compared with (default: first)")
+    g.add_argument("--pairs", choices=("reference", "all"), default="reference",
+                   help="each level against the reference (default) or every pair")
+    g.add_argument("--adjust-p", choices=("none", "holm", "bh"), default="none",
+                   help="multiplicity adjustment of the differences' p-values (default none)")
+    g.add_argument("--trend", action="store_true",
+                   help="linear (and with 4+ levels quadratic) trend across the ordered levels")
+    g.add_argument("--reasons", action="store_true",
+                   help="also compare item nonresponse and its reasons across the groups")
+    _add_subpopulation_options(g)
+    g.add_argument("--level", type=float, default=0.95, help="confidence level (default 0.95)")
+    _add_age_options(g)
+    _add_output_options(p, ("table", "csv", "json", "markdown"))
+
+
+class _OldName(argparse.Action):
+    """An option kept under its old name: works, and says once what it is called now."""
+
+    def __call__(self, parser: argparse.ArgumentParser, namespace: argparse.Namespace,
+                 values: Any, option_string: str | None = None) -> None:
+        import warnings
+
+        from wstats.errors import WstatsWarning
+
+        new = "--" + self.dest.replace("_", "-")
+        warnings.warn(f"{option_string} is the old name of {new}; it still works for now, "
+                      f"but write {new}", WstatsWarning, stacklevel=2)
+        setattr(namespace, self.dest, values)
 
 
 def ratio_pair(text: str) -> tuple[str, str]:
@@ -242,6 +298,8 @@ def add_nonresponse_args(p: argparse.ArgumentParser) -> None:
     p.add_argument("--where", metavar="EXPR", help="row condition defining a subpopulation")
     p.add_argument("--worst-first", action="store_true",
                    help="sort by item nonresponse rate, highest first")
+    p.add_argument("--shares", action="store_true",
+                   help="show weighted shares of the rows per reason instead of row counts")
     p.add_argument("--exclude-invalid", action="store_true",
                    help="do not count 'invalid' answers as nonresponse")
     p.add_argument("--not-asked", default="skipped", metavar="REASONS",
@@ -263,6 +321,8 @@ def add_bounds_args(p: argparse.ArgumentParser) -> None:
     p.add_argument("--unknown", default="dont_know,refused", metavar="REASONS",
                    help="reasons whose answers are unknown (default dont_know,refused)")
     p.add_argument("--level", type=float, default=0.95, help="confidence level (default 0.95)")
+    p.add_argument("--standard", default="nchs-2017", metavar="NAME",
+                   help="reliability standard: nchs-2017 (default), rse-30, none")
     _add_output_options(p, ("table", "csv", "json", "markdown"))
 
 

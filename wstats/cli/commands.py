@@ -15,6 +15,7 @@ from wstats.cli.args import (
     add_bounds_args,
     add_codebook_args,
     add_columns_args,
+    add_compare_args,
     add_convert_args,
     add_demo_args,
     add_estimate_args,
@@ -23,6 +24,7 @@ from wstats.cli.args import (
     add_table_args,
     data_paths,
     design_from,
+    format_for,
     needed_columns,
     parse_rows,
     ratio_pair,
@@ -35,9 +37,10 @@ from wstats.cli.common import (
     _load_codebook,
     _not_an_input,
     _print_rich,
+    _provenance,
     _read,
 )
-from wstats.errors import UsageError
+from wstats.errors import UsageError, require_package
 
 __all__ = ["COMMANDS"]
 
@@ -51,20 +54,55 @@ def _run_estimate(args: argparse.Namespace) -> int:
     design = design_from(args, codebook)
     ratios = [ratio_pair(r) for r in args.ratio]
     variables = list(args.variables)
+    if not variables and not ratios:
+        raise UsageError("wstats estimate: name at least one VAR or give --ratio NUM/DEN "
+                         "(see 'wstats estimate --help')")
+    age = [args.age_adjust] if args.age_adjust else []
     data = _engine_data(args, codebook, design,
-                        [*variables, *[x for r in ratios for x in r], *args.by])
+                        [*variables, *[x for r in ratios for x in r], *args.by, *age])
     table = estimate(
         data, design, variables, engine=args.engine, codebook=codebook,
-        scheduler=args.scheduler, statistics=split_list([args.stats]) or None, by=args.by,
+        scheduler=args.scheduler, statistics=split_list([args.statistics]) or None, by=args.by,
         where=args.where, categorical=args.categorical, ratios=ratios,
         quantiles=[float(q) for q in split_list([args.quantiles])], level=args.level,
-        proportion_ci=args.proportion_ci, reliability=_standard(args.standard),
+        proportion_ci=args.proportion_ci, reliability=_standard(_reliability_name(args)),
+        margins=args.margins, age_adjust=args.age_adjust,
+        standard=args.standard if args.age_adjust else None,
     )
     _emit(table, "estimate", args, paths, args.codebook)
     if args.plot:
         from wstats.reports.plots import plot_domains
 
-        plot_domains(table, Path(args.plot), overwrite=args.overwrite)
+        plot_domains(table, Path(args.plot), overwrite=args.overwrite,
+                     provenance=_provenance(table, [args.data], args.codebook))
+    return 0
+
+
+def _reliability_name(args: argparse.Namespace) -> str:
+    """Return the reliability standard: --reliability, else --standard without --age-adjust."""
+    if args.reliability:
+        return str(args.reliability)
+    if args.standard and not args.age_adjust:
+        return str(args.standard)
+    return "nchs-2017"
+
+
+def _run_compare(args: argparse.Namespace) -> int:
+    parse_rows(args.rows)
+    paths = data_paths(args)  # several files: a glob, a folder or paths before VAR
+    _check_outputs(args, [*paths, args.codebook, args.standard])
+    from wstats.reports.compare import compare
+
+    codebook = _load_codebook(args.codebook)
+    design = design_from(args, codebook)
+    age = [args.age_adjust] if args.age_adjust else []
+    needed = needed_columns([*args.variables, args.by, *age], design, args.where, args.data)
+    data = _read(args, codebook, needed)
+    result = compare(data, design, args.variables, by=args.by, reference=args.reference,
+                     pairs=args.pairs, adjust_p=args.adjust_p, trend=args.trend,
+                     reasons=args.reasons, where=args.where, categorical=args.categorical,
+                     level=args.level, age_adjust=args.age_adjust, standard=args.standard)
+    _emit(result, "compare", args, paths, args.codebook)
     return 0
 
 
@@ -84,8 +122,9 @@ def _standard(name: str) -> Any:
     from wstats.estimation.reliability import STANDARDS
 
     if name not in STANDARDS:
-        raise UsageError(f"--standard '{name}' is unknown; choose one of "
-                         f"{', '.join(STANDARDS)}")
+        raise UsageError(f"reliability standard '{name}' is unknown; choose one of "
+                         f"{', '.join(STANDARDS)} (a standard population for age adjustment "
+                         "needs --age-adjust AGEVAR)")
     return STANDARDS[name]
 
 
@@ -102,11 +141,13 @@ def _run_nonresponse(args: argparse.Namespace) -> int:
                         level=args.level, count_invalid=not args.exclude_invalid,
                         sort_worst=args.worst_first, not_asked=tuple(split_list([args.not_asked])),
                         engine=args.engine, codebook=codebook, scheduler=args.scheduler)
-    _emit(table, "nonresponse", args, paths, args.codebook)
+    _emit(table.showing_shares() if args.shares else table, "nonresponse", args, paths,
+          args.codebook)
     if args.plot:
         from wstats.reports.plots import plot_reasons
 
-        plot_reasons(table, Path(args.plot), overwrite=args.overwrite)
+        plot_reasons(table, Path(args.plot), overwrite=args.overwrite,
+                     provenance=_provenance(table, [args.data], args.codebook))
     return 0
 
 
@@ -121,8 +162,8 @@ def _run_bounds(args: argparse.Namespace) -> int:
     data = _read(args, codebook, needed_columns([*args.variables, *args.by], design,
                                                 args.where, args.data))
     frame = bounds(data, design, args.variables, by=args.by, where=args.where,
-                   level=args.level, reasons=tuple(split_list([args.unknown])))
-    frame.attrs.setdefault("design", design.bind(data).summary())
+                   level=args.level, reasons=tuple(split_list([args.unknown])),
+                   reliability=_standard(args.standard))
     _emit(frame, "bounds", args, paths, args.codebook)
     return 0
 
@@ -133,6 +174,9 @@ def _run_table(args: argparse.Namespace) -> int:
     spec = load_table_spec(args.spec)
     if args.format == "xlsx" and not args.output:
         raise UsageError("xlsx output needs -o FILE.xlsx")
+    if format_for(args) == "xlsx" or (not args.output and not args.format and any(
+            fmt == "xlsx" for _, fmt in spec.outputs)):
+        require_package("xlsx files", str(args.spec))
     table = build_table(spec, progress=sys.stderr.isatty())
     if not args.output and not args.format and table.outputs:
         from wstats.render import write_table
@@ -220,6 +264,10 @@ COMMANDS: dict[str, Command] = {
         "wstats estimate survey.xpt sl_hours hs_rate --weight wt_final --strata ds_strat "
         "--psu ds_psu --by dm_age5 --codebook codebook.toml",
         add_estimate_args, _run_estimate),
+    "compare": Command(
+        "differences between groups with design-based SEs, Rao-Scott and Wald tests, trends",
+        "wstats compare survey.xpt bd_bmi hs_rate --by dm_age5 --codebook codebook.toml",
+        add_compare_args, _run_compare),
     "nonresponse": Command(
         "counts and weighted shares of every missing reason; item nonresponse rates",
         "wstats nonresponse survey.xpt sl_hours fd_fruit --codebook codebook.toml --worst-first",

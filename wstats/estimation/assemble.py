@@ -1,13 +1,12 @@
-"""From Pieces to the tidy EstimateTable: columns, intervals, reliability flags.
+"""From Pieces to the tidy EstimateTable's columns; the options that need no data.
 
 Shared by the in-memory engine (:mod:`wstats.estimation.estimate`) and the engine that works
-from summed partitions (:mod:`wstats.estimation.dask_engine`); also the checks of the options
-that need no data.
+from summed partitions (:mod:`wstats.estimation.dask_engine`), so both give the same columns.
 """
 
 from __future__ import annotations
 
-from collections.abc import Callable, Sequence
+from collections.abc import Callable, Mapping, Sequence
 from typing import TYPE_CHECKING, Any
 
 import numpy as np
@@ -24,38 +23,50 @@ if TYPE_CHECKING:
 
     Index = npt.NDArray[np.int64]
 
-__all__ = ["NAMES", "check_options", "table_of"]
+__all__ = ["NAMES", "Statistics", "check_options", "columns_of", "scope", "table_of"]
 
 NAMES = ("mean", "total", "proportion", "ratio", "quantile")
+Statistics = dict[str, list[str]] | list[str] | None
 
 
 def table_of(pieces: list[Piece], by: Sequence[str],
              by_levels: list[tuple[list[Any], list[Any]]], reason_names: Sequence[str],
              level: float, proportion_ci: str, reliability: ReliabilityStandard | None,
-             design_summary: dict[str, Any], settings: dict[str, Any]) -> EstimateTable:
+             design_summary: dict[str, Any], settings: dict[str, Any],
+             where: str | None = None) -> EstimateTable:
     """Return the EstimateTable of *pieces*: tidy columns, intervals, reliability flags.
 
-    Shared by the in-memory engine and the engine that works from summed partitions.
+    As :func:`wstats.estimation.estimate.estimate` makes it (without age adjustment).
     """
     from wstats.estimation.reliability import DEFAULT_STANDARD, assess
     from wstats.estimation.results import EstimateTable, object_column
 
-    rows = _columns(pieces, list(by), by_levels, reason_names, level)
-    standard = reliability or DEFAULT_STANDARD
-    same_kg = proportion_ci == "korn-graubard" and level == standard.kg_level
-    flags, suppress = assess(rows, standard, level,
+    rows = columns_of(pieces, list(by), by_levels, reason_names, level)
+    rules = reliability or DEFAULT_STANDARD
+    same_kg = proportion_ci == "korn-graubard" and level == rules.kg_level
+    old_flags = rows["flags"]
+    flags, suppress = assess(rows, rules, level,
                              (rows["ci_low"], rows["ci_high"]) if same_kg else None)
-    rows["flags"] = object_column(flags)
+    rows["flags"] = object_column([(*a, *f) for a, f in zip(old_flags, flags, strict=True)])
     rows["suppress"] = suppress
     return EstimateTable(rows, tuple(by), level, design_summary, {
         "proportion_ci": proportion_ci, "mean_ci": "wald-t", "quantile_ci": "woodruff",
-        "df_rule": settings.get("df_rule"), "level": level, "reliability": standard.name,
-        "deff_srs": "with-replacement", **settings})
+        "df_rule": settings.get("df_rule"), "level": level, "reliability": rules.name,
+        "deff_srs": "with-replacement", **scope(rows, by, where), **settings})
 
 
-def check_options(statistics: str | Sequence[str] | None, level: float, proportion_ci: str,
-                   quantiles: Sequence[float]) -> list[str] | None:
-    """Check the options that need no data; return the statistics as a list (or None)."""
+def scope(rows: dict[str, npt.NDArray[Any]], by: Sequence[str], where: str | None
+           ) -> dict[str, Any]:
+    """Return what the table covers: subpopulation, domains, statistics, range of df."""
+    df = rows["df"][np.isfinite(rows["df"])]
+    return {"where": where, "domains": list(by),
+            "statistics": list(dict.fromkeys(str(s) for s in rows["statistic"])),
+            "df_range": [float(df.min()), float(df.max())] if len(df) else None}
+
+
+def check_options(statistics: str | Sequence[str] | Mapping[str, str | Sequence[str]] | None,
+                   level: float, proportion_ci: str, quantiles: Sequence[float]) -> Statistics:
+    """Check the options that need no data; return the statistics as a list, dict or None."""
     if not (isinstance(level, int | float) and 0.0 < float(level) < 1.0):
         raise EstimationError(f"confidence level {level!r} is outside (0, 1); use e.g. 0.95")
     Proportion(proportion_ci)  # checks the name
@@ -63,6 +74,13 @@ def check_options(statistics: str | Sequence[str] | None, level: float, proporti
         Quantile(p)
     if statistics is None:
         return None
+    if isinstance(statistics, Mapping):
+        return {str(v): stat_names(s) for v, s in statistics.items()}
+    return stat_names(statistics)
+
+
+def stat_names(statistics: str | Sequence[str]) -> list[str]:
+    """Return one variable's statistics as a list of checked names."""
     names = [statistics] if isinstance(statistics, str) else list(statistics)
     for name in names:
         if name not in NAMES:
@@ -72,7 +90,7 @@ def check_options(statistics: str | Sequence[str] | None, level: float, proporti
     return names
 
 
-def _columns(pieces: list[Piece], by: list[str],
+def columns_of(pieces: list[Piece], by: list[str],
              by_levels: list[tuple[list[Any], list[Any]]], reason_names: Sequence[str],
              level: float) -> dict[str, npt.NDArray[Any]]:
     """Return the tidy columns of all pieces (per ESTIMATE_COLUMNS, by-columns after ``p``)."""

@@ -16,7 +16,7 @@ without given factors, a linearization design without PSUs.
 
 from __future__ import annotations
 
-from collections.abc import Iterator, Sequence
+from collections.abc import Iterator, Mapping, Sequence
 from contextlib import contextmanager
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
@@ -29,6 +29,7 @@ from wstats.errors import EngineError
 if TYPE_CHECKING:
     from wstats.decoding.codebook import Codebook
     from wstats.design.declared import Design
+    from wstats.estimation.assemble import Statistics
     from wstats.estimation.from_sums import Summed
     from wstats.estimation.partition_rates import Rates
     from wstats.estimation.partition_sums import PartSums, Request, Task
@@ -54,7 +55,8 @@ def need_dask() -> None:
 
 def estimate_dask(
     data: str | Path | Sequence[str | Path], design: Design, variables: Sequence[str], *,
-    codebook: Codebook | str | Path | None = None, statistics: str | Sequence[str] | None = None,
+    codebook: Codebook | str | Path | None = None,
+    statistics: str | Sequence[str] | Mapping[str, str | Sequence[str]] | None = None,
     ratios: Sequence[tuple[str, str]] = (),
     by: Sequence[str] = (), where: str | None = None, categorical: Sequence[str] = (),
     level: float = 0.95, proportion_ci: str = "korn-graubard",
@@ -78,7 +80,8 @@ def estimate_dask(
 
 def summed_estimate(
     data: str | Path | Sequence[str | Path], design: Design, variables: Sequence[str], *,
-    codebook: Codebook | str | Path | None = None, statistics: str | Sequence[str] | None = None,
+    codebook: Codebook | str | Path | None = None,
+    statistics: str | Sequence[str] | Mapping[str, str | Sequence[str]] | None = None,
     ratios: Sequence[tuple[str, str]] = (), by: Sequence[str] = (), where: str | None = None,
     categorical: Sequence[str] = (), level: float = 0.95, proportion_ci: str = "korn-graubard",
     reliability: ReliabilityStandard | None = None, scheduler: str | None = None,
@@ -95,8 +98,9 @@ def summed_estimate(
     from wstats.estimation.summed_design import check_summable, summed_design
 
     stats = check_options(statistics, level, proportion_ci, ())
-    check_summable(design, stats or [])
-    if stats and "ratio" in stats and not ratios:
+    every = [x for v in stats.values() for x in v] if isinstance(stats, dict) else stats or []
+    check_summable(design, every)
+    if "ratio" in every and not ratios:
         from wstats.errors import EstimationError
 
         raise EstimationError("statistic 'ratio' needs ratios=[(numerator, denominator)]")
@@ -160,7 +164,7 @@ def _period_files(paths: list[str], cb: Codebook | None) -> PeriodFiles:
 
 
 def _request(paths: list[str], design: Design, variables: Sequence[str],
-             stats: list[str] | None, by: Sequence[str], where: str | None,
+             stats: Statistics, by: Sequence[str], where: str | None,
              categorical: Sequence[str], cb: Codebook | None, encoding: str,
              ratios: Sequence[tuple[str, str]] = (), rates: Rates | None = None
              ) -> tuple[Request, list[str], list[str], list[str]]:
@@ -211,7 +215,7 @@ def _first_rows(paths: list[str], names: list[str], cb: Codebook | None, encodin
                       "derived variable of the codebook")
 
 
-def _kinds(first: Any, variables: Sequence[str], stats: list[str] | None,
+def _kinds(first: Any, variables: Sequence[str], stats: Statistics,
            categorical: Sequence[str]) -> tuple[list[str], list[str], list[str]]:
     """Return the variables summed as numbers, as categories, and those that may be either.
 
@@ -219,13 +223,17 @@ def _kinds(first: Any, variables: Sequence[str], stats: list[str] | None,
     *categorical* are categories; numbers whose every value is labelled are too, which only
     the summed values can tell (both kinds of sums are made for them).
     """
+    from wstats.estimation.statistics import check_statistic
+
     numeric, cats, ambiguous = [], [], []
     for name in variables:
         col = first[name]
-        if stats:
-            if any(s in ("mean", "total") for s in stats):
+        given = _given(stats, name)
+        if given:
+            if any(s in ("mean", "total") for s in given):
                 numeric.append(name)
-            if "proportion" in stats:
+            if "proportion" in given:
+                check_statistic("proportion", col, list(categorical))
                 cats.append(name)
         elif name in categorical or col.kind in ("categorical", "binary", "text"):
             cats.append(name)
@@ -312,8 +320,13 @@ def _reduce(client: Any, tasks: list[Task], req: Request) -> PartSums:
     return total
 
 
+def _given(stats: Statistics, name: str) -> list[str] | None:
+    """Return the statistics asked for *name* (None: its kind's default)."""
+    return stats.get(name) if isinstance(stats, dict) else stats
+
+
 def _pieces(s: Summed, total: PartSums, req: Request, variables: Sequence[str],
-            stats: list[str] | None, numeric: list[str], cats: list[str],
+            stats: Statistics, numeric: list[str], cats: list[str],
             ambiguous: list[str], ci: str, design: Design, files: PeriodFiles | None,
             by: Sequence[str]) -> list[Any]:
     """Return the Pieces of every variable and statistic, in the order asked."""
@@ -325,8 +338,8 @@ def _pieces(s: Summed, total: PartSums, req: Request, variables: Sequence[str],
     order = [*req.numeric, *req.categorical]
     reps = replicate_parts(s, total, req, design, files, by) if req.replicates else None
     for name in variables:  # loop over variables and statistics only
-        wanted = stats or (["proportion"] if name in cats and name not in ambiguous
-                           else ["mean"])
+        wanted = _given(stats, name) or (["proportion"] if name in cats
+                                         and name not in ambiguous else ["mean"])
         if name in ambiguous:  # numbers whose every value is labelled are categories
             seen = categorical_parts(s, total, name, order.index(name, len(req.numeric)))[3]
             labelled = total.labels.get(name, {})

@@ -10,19 +10,21 @@ the full design (all strata and PSUs) is kept for its variance.
 from __future__ import annotations
 
 import itertools
-from collections.abc import Sequence
+from collections.abc import Mapping, Sequence
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
 from wstats.decoding.columns import Dataset
-from wstats.decoding.reasons import VALID
 from wstats.errors import EstimationError, did_you_mean
-from wstats.estimation.assemble import check_options, table_of
+from wstats.estimation.assemble import Statistics
+from wstats.estimation.assemble import check_options as _check_options
+from wstats.estimation.assemble import columns_of as _columns
+from wstats.estimation.assemble import scope as _scope
 from wstats.estimation.dask_engine import ENGINES, estimate_dask
-from wstats.estimation.domains import Domains, no_cell
-from wstats.estimation.levels import category_levels, distinct_values, level_index
+from wstats.estimation.domain_setup import build_domains as _domains
+from wstats.estimation.domain_setup import check_names as _check_names
 from wstats.estimation.statistics import (
     Context,
     Mean,
@@ -31,6 +33,8 @@ from wstats.estimation.statistics import (
     Quantile,
     Ratio,
     Total,
+    check_statistic,
+    is_categorical,
 )
 from wstats.estimation.sums import WeightedSums
 
@@ -38,18 +42,17 @@ if TYPE_CHECKING:
     import numpy.typing as npt
 
     from wstats.decoding.codebook import Codebook
-    from wstats.decoding.columns import DecodedColumn
     from wstats.design.bound import BoundDesign
     from wstats.design.declared import Design
+    from wstats.estimation.domains import Domains
     from wstats.estimation.reliability import ReliabilityStandard
     from wstats.estimation.results import EstimateTable
+    from wstats.estimation.standards import Standard
 
     Index = npt.NDArray[np.int64]
     Bool = npt.NDArray[np.bool_]
 
 __all__ = ["estimate"]
-
-MAX_CELLS = 10_000  # crossed by-cells allowed in one call
 
 
 def estimate(
@@ -57,7 +60,7 @@ def estimate(
     design: Design,
     variables: Sequence[str],
     *,
-    statistics: str | Sequence[str] | None = None,
+    statistics: str | Sequence[str] | Mapping[str, str | Sequence[str]] | None = None,
     by: Sequence[str] = (),
     where: str | None = None,
     categorical: Sequence[str] = (),
@@ -66,6 +69,9 @@ def estimate(
     level: float = 0.95,
     proportion_ci: str = "korn-graubard",
     reliability: ReliabilityStandard | None = None,
+    margins: bool = False,
+    age_adjust: str | None = None,
+    standard: str | Standard | None = None,
     engine: str = "memory",
     codebook: Codebook | str | Path | None = None,
     scheduler: str | None = None,
@@ -80,7 +86,10 @@ def estimate(
     design : the sample design; bound and checked against *data*.
     variables : variables to analyse.
     statistics : None (mean for continuous/count, proportion for categorical/binary), one
-        name or a list of ``mean``, ``total``, ``proportion``, ``ratio``, ``quantile``.
+        name or a list of ``mean``, ``total``, ``proportion``, ``ratio``, ``quantile``, or a
+        mapping variable -> name(s) for statistics per variable (variables it does not name
+        get the default). The CLI's ``--statistics`` takes the same names. A statistic that
+        does not suit a variable's kind (a proportion of a continuous one) is refused.
     by : variables whose crossed levels form the domains (plus the whole population).
     where : condition in the codebook expression language; rows where it is valid and true
         form the population domain.
@@ -91,6 +100,13 @@ def estimate(
     proportion_ci : interval for proportions, a key of ``PROPORTION_INTERVALS``.
     reliability : reliability standard for flags and suppression (None: the default,
         ``nchs-2017``; pass ``STANDARDS["none"]`` to switch the rules off).
+    margins : with two or more *by* variables, also the one-way margins (each by-variable
+        alone, the others shown as "All"); see :mod:`wstats.estimation.margins`.
+    age_adjust : an age variable: add directly age-adjusted rows of every mean and
+        proportion (column ``standard`` names the standard population; None on crude rows;
+        the margins stay crude).
+    standard : the standard population for *age_adjust*: a built-in name (``us2000-11``,
+        ``us2000-adults18``, ``us2000-adults20``), a TOML standard file, or a ``Standard``.
     engine : ``memory`` (default) or ``dask``: the data files processed partition by
         partition on a Dask cluster (means, totals, proportions and ratios; see
         :mod:`wstats.estimation.dask_engine`); needs ``pip install 'wstats[dask]'``.
@@ -113,6 +129,9 @@ def estimate(
     >>> round(float(t.frame["estimate"][0]), 4)
     2.8333
     """
+    from wstats.estimation.reliability import DEFAULT_STANDARD, assess
+    from wstats.estimation.results import EstimateTable, object_column
+
     if engine not in ENGINES:
         raise EstimationError(f"engine '{engine}' is not one of {', '.join(ENGINES)}"
                               f"{did_you_mean(engine, ENGINES)}")
@@ -120,25 +139,62 @@ def estimate(
         if isinstance(data, Dataset):
             raise EstimationError("engine 'dask' reads the data files itself; give their paths "
                                   "(and codebook=...), not a Dataset")
+        if margins or age_adjust is not None:
+            raise EstimationError("margins and age adjustment are not available on the Dask "
+                                  "engine yet; run them with engine='memory'")
         return estimate_dask(data, design, variables, codebook=codebook, ratios=ratios,
                              statistics=statistics, by=by, where=where,
                              categorical=categorical, level=level, proportion_ci=proportion_ci,
                              reliability=reliability, scheduler=scheduler)
     if not isinstance(data, Dataset):
         data = _read_files(data, design, [*variables, *by, *categorical,
-                                          *(v for r in ratios for v in r)], where, codebook)
-    stats = check_options(statistics, level, proportion_ci, quantiles)
-    _check_names(data, [*variables, *by, *categorical, *(v for r in ratios for v in r)])
+                                          *(v for r in ratios for v in r),
+                                          *([age_adjust] if age_adjust else [])],
+                           where, codebook)
+    stats = _check_options(statistics, level, proportion_ci, quantiles)
+    _check_names(data, [*variables, *by, *categorical, *(v for r in ratios for v in r),
+                        *([age_adjust] if age_adjust else [])])
+    for name in stats if isinstance(stats, dict) else ():
+        if name not in variables:
+            raise EstimationError(f"statistics name '{name}', which is not among the variables "
+                                  f"to estimate ({', '.join(variables)}); add it or drop it")
     bound = design.bind(data)
     domains, by_levels = _domains(data, bound, list(by), where)
     columns = {name: bound.column(col) for name, col in data.columns.items()}
     ctx = Context(WeightedSums(bound, domains), columns, data.vocabulary, level,
                   per_domain_df=design.domain_df == "domain")
     pieces = _run(ctx, variables, stats, set(categorical), ratios, quantiles, proportion_ci)
+    rows = _columns(pieces, list(by), by_levels, data.vocabulary.names, level)
     _warn(data, bound, variables, domains, by_levels)
-    df_rule = "replicates" if bound.uses_replicates else design.domain_df
-    return table_of(pieces, by, by_levels, data.vocabulary.names, level, proportion_ci,
-                    reliability, bound.summary(), {"df_rule": df_rule})
+    std = _age_standard(age_adjust, standard)
+    if std is not None and age_adjust is not None:
+        from wstats.estimation.age_rows import age_adjusted_rows, with_rows
+
+        jobs = [(p.variable, p.statistic) for p in pieces if p.statistic in BY_AGE]
+        rows = with_rows(rows, age_adjusted_rows(data, design, list(dict.fromkeys(jobs)), by,
+                                                 where, age_adjust, std, level))
+    rules = reliability or DEFAULT_STANDARD
+    same_kg = (proportion_ci == "korn-graubard" and level == rules.kg_level and std is None)
+    old_flags = rows["flags"]
+    flags, suppress = assess(rows, rules, level,
+                             (rows["ci_low"], rows["ci_high"]) if same_kg else None)
+    rows["flags"] = object_column([(*a, *f) for a, f in zip(old_flags, flags, strict=True)])
+    rows["suppress"] = suppress
+    settings = {"proportion_ci": proportion_ci, "mean_ci": "wald-t", "quantile_ci": "woodruff",
+                "df_rule": "replicates" if bound.uses_replicates else design.domain_df,
+                "level": level, "reliability": rules.name,
+                "deff_srs": "with-replacement", **_scope(rows, by, where)}
+    if std is not None:
+        settings.update(age_adjust=age_adjust, standard=std.name, standard_source=std.source)
+    table = EstimateTable(rows, tuple(by), level, bound.summary(), settings)
+    if not margins or len(by) < 2:
+        return table
+    from wstats.estimation.margins import with_margins
+
+    return with_margins(table, [estimate(
+        data, design, variables, statistics=statistics, by=[b], where=where,
+        categorical=categorical, ratios=ratios, quantiles=quantiles, level=level,
+        proportion_ci=proportion_ci, reliability=reliability) for b in by])
 
 
 def _read_files(data: str | Path | Sequence[str | Path], design: Design, names: list[str],
@@ -158,6 +214,22 @@ def _read_files(data: str | Path | Sequence[str | Path], design: Design, names: 
     return read(data, list(dict.fromkeys(cols)), codebook)
 
 
+#: statistics that can be age-adjusted
+BY_AGE = ("mean", "proportion")
+
+
+def _age_standard(age_adjust: str | None, standard: str | Standard | None) -> Standard | None:
+    """Return the standard population of an age-adjusted call (None without one)."""
+    if (age_adjust is None) != (standard is None):
+        raise EstimationError("age adjustment needs both the age variable and a standard "
+                              "population (age_adjust=AGEVAR, standard=NAME|FILE.toml)")
+    if standard is None:
+        return None
+    from wstats.estimation.standards import load_standard
+
+    return load_standard(standard) if isinstance(standard, str) else standard
+
+
 def _warn(data: Dataset, bound: BoundDesign, variables: Sequence[str], domains: Domains,
           by_levels: list[tuple[list[Any], list[Any]]]) -> None:
     """Issue the data-sanity warnings of :mod:`wstats.estimation.sanity` (each once)."""
@@ -173,27 +245,7 @@ def _warn(data: Dataset, bound: BoundDesign, variables: Sequence[str], domains: 
     warn_all(estimation_warnings(data, facts, variables, groups))
 
 
-def _check_names(data: Dataset, names: Sequence[str]) -> None:
-    """Raise EstimationError naming the first variable that is not in *data*."""
-    for name in names:
-        if name not in data.columns:
-            where = f" in {data.source}" if data.source else ""
-            raise EstimationError(
-                f"variable '{name}' is not{where}{did_you_mean(name, data.columns)}"
-            )
-
-
-def _is_categorical(col: DecodedColumn, forced: set[str]) -> bool:
-    """Return True for categorical/binary/text kinds, names in *forced*, or fully labelled data."""
-    if col.name in forced or col.kind in ("categorical", "binary", "text"):
-        return True
-    if not col.value_labels or col.values.dtype.kind != "f":
-        return False
-    seen = distinct_values(col.values[col.valid])
-    return bool(len(seen)) and all(float(v) in col.value_labels for v in seen)
-
-
-def _run(ctx: Context, variables: Sequence[str], stats: list[str] | None, forced: set[str],
+def _run(ctx: Context, variables: Sequence[str], stats: Statistics, forced: set[str],
          ratios: Sequence[tuple[str, str]], quantiles: Sequence[float], ci: str) -> list[Piece]:
     """Call the statistics for every variable (loops over variables and statistics only).
 
@@ -207,15 +259,18 @@ def _run(ctx: Context, variables: Sequence[str], stats: list[str] | None, forced
     slots: list[list[Piece] | tuple[str, str]] = []
     for name in variables:
         col = ctx.columns[name]
-        wanted = stats or (["proportion"] if _is_categorical(col, forced) else ["mean"])
+        given = stats.get(name) if isinstance(stats, dict) else stats
+        wanted = given or (["proportion"] if is_categorical(col, list(forced)) else ["mean"])
         for stat in wanted:
+            check_statistic(stat, col, list(forced))
             if fast and stat in BATCHED:
                 slots.append((name, stat))
             elif stat in ("mean", "total", "proportion"):
                 slots.append([_one(ctx, name, stat, ci)])
             elif stat == "quantile":
                 slots.append([Quantile(p)(ctx, name) for p in quantiles])
-    if stats and "ratio" in stats and not ratios:
+    every = [x for v in stats.values() for x in v] if isinstance(stats, dict) else stats or []
+    if "ratio" in every and not ratios:
         raise EstimationError("statistic 'ratio' needs ratios=[(numerator, denominator)]")
     batched = iter(batch_pieces(ctx, [s for s in slots if isinstance(s, tuple)], ci))
     pieces: list[Piece] = []
@@ -233,41 +288,3 @@ def _one(ctx: Context, name: str, stat: str, ci: str) -> Piece:
     if stat == "total":
         return Total()(ctx, name)
     return Proportion(ci)(ctx, name)
-
-
-def _domains(data: Dataset, bound: BoundDesign, by: list[str], where: str | None
-             ) -> tuple[Domains, list[tuple[list[Any], list[Any]]]]:
-    """Return the domain membership and, per by-variable, its (values, display values)."""
-    inside: Bool = np.broadcast_to(np.True_, (bound.n_rows,))  # read-only, no memory per row
-    if where is not None:
-        from wstats.decoding.expressions import parse_expression
-
-        expr = parse_expression(where, list(data.columns), "where")
-        values, reasons = expr.evaluate(data.columns, data.vocabulary, data.n_rows)
-        ok = (reasons == VALID) & (np.nan_to_num(values, nan=0.0) != 0)
-        inside = ok if bound.rows is None else ok[bound.rows]
-    codes: list[Index] = []
-    levels: list[tuple[list[Any], list[Any]]] = []
-    for name in by:
-        col = bound.column(data.columns[name])
-        lv, labels = category_levels(col)
-        display = [lab if v in col.value_labels else _plain(v)
-                   for v, lab in zip(lv, labels, strict=True)]
-        codes.append(level_index(col, lv, col.valid))
-        levels.append((lv, display))
-    sizes = [len(v) for v, _ in levels]
-    if int(np.prod(sizes)) > MAX_CELLS:
-        raise EstimationError(
-            f"the by-variables {', '.join(by)} cross into {int(np.prod(sizes))} cells (limit "
-            f"{MAX_CELLS}); group a continuous by-variable into classes first"
-        )
-    if any(s == 0 for s in sizes):
-        return Domains(inside, no_cell(bound.n_rows), 0), levels
-    return Domains.build(inside, codes, sizes), levels
-
-
-def _plain(v: Any) -> Any:
-    """Return an integral float as int (a level shown as 3, not 3.0), else the value."""
-    if isinstance(v, float) and v.is_integer():
-        return int(v)
-    return v

@@ -106,7 +106,7 @@ class EstimateTable:
         for name, values in self.columns.items():
             if name in _LIST_COLUMNS:  # as if built from lists: pandas picks the text type
                 data[name] = np.asarray(values).tolist()
-            elif name in ("level", *self.by):  # None, not NaN, on the population rows
+            elif name in ("level", "standard", *self.by):  # None, not NaN (population, crude)
                 data[name] = pd.Series(values, dtype=object)
             else:
                 data[name] = values

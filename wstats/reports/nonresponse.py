@@ -91,6 +91,12 @@ class NonresponseTable:
     design: Mapping[str, Any] = field(default_factory=dict)
     settings: Mapping[str, Any] = field(default_factory=dict)
 
+    def showing_shares(self) -> NonresponseTable:
+        """Return the same table set to display weighted shares instead of row counts."""
+        import dataclasses
+
+        return dataclasses.replace(self, settings={**self.settings, "display": "shares"})
+
     def to_pandas(self) -> pd.DataFrame:
         """Return a copy of the frame."""
         return self.frame.copy()
@@ -209,14 +215,9 @@ def nonresponse(
     from wstats.estimation.reliability import STANDARDS
 
     if engine == "dask":
-        from wstats.reports.nonresponse_dask import nonresponse_dask
-
-        if isinstance(data, Dataset):
-            raise EstimationError("engine 'dask' reads the data files itself; give their paths "
-                                  "(and codebook=...), not a Dataset")
-        return nonresponse_dask(data, design, variables, by=by, where=where, level=level,
-                                count_invalid=count_invalid, sort_worst=sort_worst,
-                                not_asked=not_asked, codebook=codebook, scheduler=scheduler)
+        return _on_dask(data, design, variables, by=by, where=where, level=level,
+                        count_invalid=count_invalid, sort_worst=sort_worst,
+                        not_asked=not_asked, codebook=codebook, scheduler=scheduler)
     if engine != "memory":
         raise EstimationError(f"engine '{engine}' is not one of memory, dask")
     if not isinstance(data, Dataset):
@@ -239,6 +240,31 @@ def nonresponse(
     settings = _settings(counted, skip, count_invalid, est, design)
     return NonresponseTable(frame, tuple(by), data.vocabulary.names, est.level, est.design,
                             settings)
+
+
+def _on_dask(data: Dataset | str | Path | Sequence[str | Path], design: Design,
+             variables: Sequence[str], *, by: Sequence[str], where: str | None, level: float,
+             count_invalid: bool, sort_worst: bool, not_asked: Sequence[str],
+             codebook: Codebook | str | Path | None, scheduler: str | None
+             ) -> NonresponseTable:
+    """Return the table from parts summed on the Dask engine (the same assembly)."""
+    from wstats.reports.nonresponse_dask import dask_parts
+
+    if isinstance(data, Dataset):
+        raise EstimationError("engine 'dask' reads the data files itself; give their paths "
+                              "(and codebook=...), not a Dataset")
+    names = list(dict.fromkeys(variables))
+    skip = tuple(dict.fromkeys(("skipped", *not_asked)))
+    parts = dask_parts(data, design, names, _RATE, by=by, where=where, level=level,
+                       count_invalid=count_invalid, skip=skip, codebook=codebook,
+                       scheduler=scheduler)
+    frame = _assemble(parts.est, parts.sums, parts.reasons, by, parts.skip_codes)
+    if sort_worst:
+        frame = _worst_first(frame, names)
+    settings = {**_settings(parts.counted, skip, count_invalid, parts.est, design),
+                "engine": "dask"}
+    return NonresponseTable(frame, tuple(by), parts.reasons, parts.est.level,
+                            parts.est.design, settings)
 
 
 def _check_variables(data: Dataset, variables: Sequence[str]) -> list[str]:
@@ -276,7 +302,7 @@ def _reason_sums(data: Dataset, design: Design, names: list[str], by: Sequence[s
     The domains are the estimation engine's own (same rows, same order as its estimates):
     row 0 the population, then the crossed by-cells.
     """
-    from wstats.estimation.estimate import _domains
+    from wstats.estimation.domain_setup import build_domains as _domains
 
     bound = design.bind(data)
     domains, _ = _domains(data, bound, list(by), where)
@@ -364,7 +390,8 @@ def _settings(counted: tuple[str, ...], skip: tuple[str, ...], count_invalid: bo
             "not_asked": list(skip), "denominator": f"asked (not {', '.join(skip)})",
             "weight": design.weight,
             "proportion_ci": "korn-graubard", "level": est.level, "df_rule":
-            est.settings.get("df_rule"), "definition": definition,
+            est.settings.get("df_rule"), "df_range": est.settings.get("df_range"),
+            "where": est.settings.get("where"), "definition": definition,
             "title": "Item nonresponse", "threshold": NCES_MIN_RESPONSE}
 
 

@@ -3,13 +3,14 @@
 The workers make each item's nonresponse indicator and sum every reason's rows and weights
 by group (:mod:`wstats.estimation.partition_rates`); the rate and its interval are the Dask
 engine's proportion of the indicator, the counts and shares the groups' sums added up by
-domain. The table is assembled by :mod:`wstats.reports.nonresponse`'s own code, so both
-engines give the same columns and numbers.
+domain. :mod:`wstats.reports.nonresponse` assembles the table from these parts with its own
+code, so both engines give the same columns and numbers.
 """
 
 from __future__ import annotations
 
 from collections.abc import Sequence
+from dataclasses import dataclass
 from pathlib import Path
 from typing import TYPE_CHECKING
 
@@ -23,48 +24,48 @@ if TYPE_CHECKING:
     from wstats.decoding.codebook import Codebook
     from wstats.design.declared import Design
     from wstats.estimation.from_sums import Summed
-    from wstats.reports.nonresponse import NonresponseTable
+    from wstats.estimation.results import EstimateTable
 
-__all__ = ["nonresponse_dask"]
+__all__ = ["DaskParts", "dask_parts"]
 
 
-def nonresponse_dask(
-    data: str | Path | Sequence[str | Path], design: Design, variables: Sequence[str], *,
-    by: Sequence[str] = (), where: str | None = None, level: float = 0.95,
-    count_invalid: bool = True, sort_worst: bool = False,
-    not_asked: Sequence[str] = ("skipped",), codebook: Codebook | str | Path | None = None,
-    scheduler: str | None = None,
-) -> NonresponseTable:
-    """Return :func:`wstats.nonresponse`'s table computed on the Dask engine (same options)."""
+def dask_parts(
+    data: str | Path | Sequence[str | Path], design: Design, names: Sequence[str],
+    suffix: str, *, by: Sequence[str] = (), where: str | None = None, level: float = 0.95,
+    count_invalid: bool = True, skip: tuple[str, ...] = ("skipped",),
+    codebook: Codebook | str | Path | None = None, scheduler: str | None = None,
+) -> DaskParts:
+    """Return what :func:`wstats.nonresponse` assembles its table from, computed on Dask.
+
+    *suffix* names each item's indicator (``item + suffix``), as the in-memory report does.
+    """
     from wstats.estimation.dask_engine import summed_estimate
     from wstats.estimation.partition_rates import Rates
     from wstats.estimation.reliability import STANDARDS
-    from wstats.reports.nonresponse import (
-        _RATE,
-        NonresponseTable,
-        _assemble,
-        _settings,
-        _worst_first,
-    )
 
-    names = list(dict.fromkeys(variables))
     if not names:
         raise EstimationError("no variables given; name at least one item")
-    skip = tuple(dict.fromkeys(("skipped", *not_asked)))
-    rates = Rates(tuple((v, f"{v}{_RATE}") for v in names), skip, count_invalid)
+    rates = Rates(tuple((v, f"{v}{suffix}") for v in names), skip, count_invalid)
     est, summed = summed_estimate(
         data, design, [i for _, i in rates.items], codebook=codebook, statistics="proportion",
         by=by, where=where, level=level, reliability=STANDARDS["none"], scheduler=scheduler,
         rates=rates)
     vocab = summed.vocabulary
-    skip_codes = np.array([vocab.code(r) for r in skip], dtype=np.int8)
-    sums = {v: _domain_reasons(summed, v) for v in names}
-    frame = _assemble(est, sums, vocab.names, by, skip_codes)
-    if sort_worst:
-        frame = _worst_first(frame, names)
-    settings = {**_settings(rates.counted(vocab.names), skip, count_invalid, est, design),
-                "engine": "dask"}
-    return NonresponseTable(frame, tuple(by), vocab.names, est.level, est.design, settings)
+    return DaskParts(est, {v: _domain_reasons(summed, v) for v in names}, vocab.names,
+                     np.array([vocab.code(r) for r in skip], dtype=np.int8),
+                     rates.counted(vocab.names))
+
+
+@dataclass(frozen=True, eq=False)
+class DaskParts:
+    """The parts of a nonresponse table: the rate estimates, each item's reason sums by
+    domain (rows, weights), the reasons, the codes of the skip reasons, the counted ones."""
+
+    est: EstimateTable
+    sums: dict[str, tuple[npt.NDArray[np.int64], npt.NDArray[np.float64]]]
+    reasons: tuple[str, ...]
+    skip_codes: npt.NDArray[np.int8]
+    counted: tuple[str, ...]
 
 
 def _domain_reasons(summed: Summed, item: str

@@ -15,6 +15,7 @@ if TYPE_CHECKING:
     from wstats.decoding.columns import Dataset
     from wstats.estimation.results import EstimateTable
     from wstats.reports.table_specs import RowSpec, TableSpec
+    from wstats.reports.table_tests import PKey
 
 __all__ = ["TableColumn"]
 
@@ -73,16 +74,18 @@ class _Layout:
     """Lays out the table lines (sections, level rows) and formats their cells."""
 
     def __init__(self, spec: TableSpec, est: EstimateTable, columns: Sequence[TableColumn],
-                 data: Dataset) -> None:
+                 data: Dataset, p_values: Mapping[PKey, float] | None = None
+                 ) -> None:
         from wstats.reports.cells import FlagNotes
 
         self.spec, self.est, self.columns, self.data = spec, est, columns, data
+        self.p_values = dict(p_values or {})
         self.flags = FlagNotes()
         self.used: dict[str, str] = {}
-        self.index: dict[tuple[str, str, str, str], dict[str, Any]] = {}
+        self.index: dict[tuple[str, str, str, str, str], dict[str, Any]] = {}
         for rec in _records(est.frame):
             key = (str(rec["variable"]), str(rec["statistic"]), _level_key(rec),
-                   _column_key(rec, spec.by))
+                   _column_key(rec, spec.by), str(rec.get("standard") or ""))
             self.index.setdefault(key, rec)
 
     def frames(self, sizes: Mapping[str, tuple[float, float]]) -> tuple[pd.DataFrame,
@@ -107,18 +110,25 @@ class _Layout:
     def _lines(self, i: int, row: RowSpec) -> list[tuple[dict[str, Any], dict[str, Any]]]:
         """Return (text, numbers) dicts for one row spec: a heading plus levels, or one line."""
         stat = row.statistic or self._statistic(row.variable)
+        std = row.standard.name if row.standard is not None else ""
         label = row.label or _label(self.data, row.variable)
+        if std:
+            label = f"{label}, age-adjusted (standard {std})"
         base = {"variable": row.variable}
         if stat != "proportion":
             lvl = repr(float(row.p)) if stat == "quantile" else ""
             word = f"quantile {row.p:g}" if stat == "quantile" else _STAT_WORDS[stat]
-            name = f"{label}, {'median' if stat == 'quantile' and row.p == 0.5 else word}"
+            word = "median" if stat == "quantile" and row.p == 0.5 else word
+            name = label if _names_statistic(label, word) else f"{label}, {word}"
             return [self._line(name, "data", {**base, "level": None}, stat, lvl, row)]
-        head = {"label": f"{label}, %", "kind": "section", **base, "level": None}
+        shown = label if _names_statistic(label, "%") else f"{label}, %"
+        head = {"label": shown, "kind": "section", **base, "level": None}
         blank = {c.key: "" for c in self.columns}
         out = [({**head, **blank}, {**head, **dict.fromkeys(blank, math.nan)})]
         for lv in self._levels(i, row):
             out.append(self._line(lv, "data", {**base, "level": lv}, stat, lv, row))
+        if len(out) > 1:  # a test of the whole variable: on its first level's line
+            self._p_cells(*out[1], (row.variable, stat, "", std))
         return out
 
     def _line(self, label: str, kind: str, base: Mapping[str, Any], stat: str, lvl: str,
@@ -126,10 +136,25 @@ class _Layout:
         """Format one table line across the columns."""
         text = {"label": label, "kind": kind, **base}
         nums = dict(text)
+        std = row.standard.name if row.standard is not None else ""
         for col in self.columns:
-            rec = self.index.get((row.variable, stat, lvl, col.key))
+            rec = self.index.get((row.variable, stat, lvl, col.key, std))
             text[col.key], nums[col.key] = self._cell(rec, stat, row)
+        if lvl or stat == "mean":  # a level's own test (age-adjusted), or a mean's
+            self._p_cells(text, nums, (row.variable, stat, lvl, std))
         return text, nums
+
+    def _p_cells(self, text: dict[str, Any], nums: dict[str, Any],
+                 key: tuple[str, str, str, str]) -> None:
+        """Fill the p-value columns of one line (a cell left as it is where no test is)."""
+        from wstats.reports.cells import fmt_number
+
+        for col in self.columns:
+            p = self.p_values.get((*key, col.key[2:]), math.nan)
+            if not col.key.startswith("p:") or math.isnan(p):
+                continue
+            nums[col.key] = p
+            text[col.key] = "<0.001" if p < 0.001 else fmt_number(p, 3)
 
     def _cell(self, rec: Mapping[str, Any] | None, stat: str, row: RowSpec) -> tuple[str, float]:
         """Return the text and number of one cell (marks added, suppressed hidden)."""
@@ -147,6 +172,8 @@ class _Layout:
         self.used[stat] = template
         decimals = self.spec.decimals if row.decimals is None else row.decimals
         se_decimals = self.spec.se_decimals if row.decimals is None else row.decimals + 1
+        if stat == "total":  # a total's SE is as large as the total: no more decimals than it
+            se_decimals = min(se_decimals, decimals)
         scale = 100.0 if stat == "proportion" and self.spec.percent else 1.0
         return with_marks(cell_text(template, rec, decimals=decimals, se_decimals=se_decimals,
                                     scale=scale), marks), value
@@ -189,7 +216,20 @@ class _Layout:
         where = f" (restricted to {self.spec.where})" if self.spec.where else ""
         out.append(f"Unweighted n: records in the column's population{where}; weighted N: the "
                    f"sum of their weights ({self.est.design.get('weight', 'weight')}).")
+        if self.spec.p_value:
+            from wstats.reports.table_tests import p_value_note
+
+            out.append(p_value_note(self.spec))
         return [*out, *self.spec.notes]
+
+
+def _names_statistic(label: str, word: str) -> bool:
+    """Tell whether a row label already names its statistic ('Age, median'; 'Deaths, total')."""
+    import re
+
+    last = re.split(r"[,(]", label.lower())[-1]
+    words = {"%": ("%", "percent"), "total": ("total",)}.get(word, (word.lower(),))
+    return any(re.search(rf"(^|\W){re.escape(w)}(\W|$)", last) for w in words)
 
 
 def _level_key(rec: Mapping[str, Any]) -> str:

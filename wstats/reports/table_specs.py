@@ -19,6 +19,7 @@ from wstats.errors import AnalysisError, did_you_mean
 if TYPE_CHECKING:
     from wstats.decoding.codebook import Codebook
     from wstats.design.declared import Design
+    from wstats.estimation.standards import Standard
 
 __all__ = ["STATISTICS", "RowSpec", "TableSpec", "design_over_codebook", "load_table_spec"]
 
@@ -28,8 +29,9 @@ _DEFAULT_STYLES = {"mean": "{est} ({se})", "total": "{est} ({se})", "quantile": 
                    "proportion": "{pct} ({lo}–{hi})"}
 _TOP = ("title", "data", "codebook", "where", "notes", "reliability", "design", "columns",
         "rows", "cells", "intervals", "output")
-_ROW = ("variable", "statistic", "label", "levels", "p", "style", "decimals")
-_COLUMNS = ("total", "by")
+_ROW = ("variable", "statistic", "label", "levels", "p", "style", "decimals", "age_adjust",
+        "standard")
+_COLUMNS = ("total", "by", "p_value")
 _CELLS = ("mean", "total", "proportion", "quantile", "decimals", "se_decimals", "percent",
           "suppressed")
 _INTERVALS = ("level", "proportion")
@@ -53,6 +55,8 @@ class RowSpec:
     p: float = 0.5
     style: str | None = None
     decimals: int | None = None
+    age_adjust: str | None = None
+    standard: Standard | None = None
 
 
 @dataclass(frozen=True)
@@ -78,6 +82,8 @@ class TableSpec:
     reliability : name of the reliability standard (``wstats.estimation.reliability.STANDARDS``).
     notes : extra footnotes, printed last.
     outputs : ``(path, format)`` pairs to write.
+    p_value : add a p-value column after each grouping variable's columns (Rao-Scott for a
+        categorical row, the adjusted Wald F for a mean).
     files : every data file when ``data`` names several (a list or a glob: pooled, each file
         one period), else empty; ``data`` is then the first.
     """
@@ -102,6 +108,7 @@ class TableSpec:
     notes: tuple[str, ...] = ()
     files: tuple[Path, ...] = ()
     outputs: tuple[tuple[Path, str], ...] = ()
+    p_value: bool = False
 
 
 # ------------------------------------------------------------------ reading the spec
@@ -280,6 +287,7 @@ class _Spec:
         """Return ``by`` and ``total`` from [columns]."""
         cols = self.table("columns")
         self.keys(cols, _COLUMNS, "columns.")
+        p_value = self.flag(cols.get("p_value", False), "columns.p_value")
         total = cols.get("total", "All")
         if total is not False:
             total = self.text(total, "columns.total")
@@ -287,7 +295,10 @@ class _Spec:
         if total is False and not by:
             raise self.fail("columns.total", "false leaves the table without columns; "
                             "keep the total or add columns.by")
-        return {"by": by, "total": None if total is False else total}
+        if p_value and not by:
+            raise self.fail("columns.p_value", "a p-value compares the columns.by groups; "
+                            "add columns.by")
+        return {"by": by, "total": None if total is False else total, "p_value": p_value}
 
     def rows(self) -> tuple[RowSpec, ...]:
         """Return the row specs; a plain string is a variable with default settings."""
@@ -317,7 +328,30 @@ class _Spec:
                                                                  stat),
             decimals=None if "decimals" not in item else int(
                 self.number(item["decimals"], f"{key}.decimals", 0, 10)),
+            **self.age(item, key),
         )
+
+    def age(self, item: Mapping[str, Any], key: str) -> dict[str, Any]:
+        """Return ``age_adjust`` and ``standard`` of a row (both or neither)."""
+        from wstats.errors import WstatsError
+        from wstats.estimation.standards import load_standard, standard_from_mapping
+
+        if ("age_adjust" in item) != ("standard" in item):
+            raise self.fail(f"{key}.age_adjust", "give both age_adjust = \"AGEVAR\" and "
+                            "standard = NAME, a .toml file or an inline table")
+        if "age_adjust" not in item:
+            return {}
+        value = item["standard"]
+        try:
+            if isinstance(value, dict):
+                std = standard_from_mapping(value, f"{self.source}: {key}.standard")
+            else:
+                text = self.text(value, f"{key}.standard")
+                std = load_standard(str(self.base / text) if text.endswith(".toml") else text)
+        except WstatsError as exc:
+            raise self.fail(f"{key}.standard", str(exc)) from exc
+        return {"age_adjust": self.text(item["age_adjust"], f"{key}.age_adjust"),
+                "standard": std}
 
     def list(self, value: Any, key: str) -> list[Any]:
         """Return *value* as a non-empty list of level codes or labels."""

@@ -16,6 +16,7 @@ from typing import TYPE_CHECKING, Any
 from wstats.errors import AnalysisError, did_you_mean
 from wstats.reports.table_layout import TableColumn, _is_na, _label, _Layout, _records
 from wstats.reports.table_specs import STATISTICS, RowSpec, TableSpec, load_table_spec
+from wstats.reports.table_tests import table_methods_sentences, table_p_values
 
 if TYPE_CHECKING:
     import pandas as pd
@@ -114,7 +115,8 @@ def build_table(
                     progress=progress)
     estimates = _estimate_all(spec, data, design)
     columns = _columns(spec, estimates, data)
-    layout = _Layout(spec, estimates, columns, data)
+    p_values = table_p_values(spec, data, design) if spec.p_value else {}
+    layout = _Layout(spec, estimates, columns, data, p_values)
     sizes = _domain_sizes(spec, data, design, columns)
     cells, numbers = layout.frames(sizes)
     return PublicationTable(
@@ -163,6 +165,7 @@ def table_variables(spec: TableSpec) -> list[str]:
     from wstats.decoding.expressions import expression_names
 
     names = [r.variable for r in spec.rows] + list(spec.by)
+    names += [r.age_adjust for r in spec.rows if r.age_adjust]
     names += expression_names(spec.where, f"where in {spec.source}") if spec.where else []
     return list(dict.fromkeys(names))
 
@@ -180,20 +183,22 @@ def _estimate_all(spec: TableSpec, data: Dataset, design: Design) -> EstimateTab
     from wstats.estimation.reliability import STANDARDS
     from wstats.estimation.results import EstimateTable
 
-    groups: dict[tuple[str | None, float], list[str]] = {}
+    groups: dict[tuple[Any, ...], list[str]] = {}
     for r in spec.rows:
-        groups.setdefault((r.statistic, r.p if r.statistic == "quantile" else 0.5),
-                          []).append(r.variable)
+        groups.setdefault((r.statistic, r.p if r.statistic == "quantile" else 0.5,
+                           r.age_adjust, r.standard), []).append(r.variable)
     frames, first = [], None
     for by in [(), *((b,) for b in spec.by)]:
-        for (stat, p), variables in groups.items():
+        for (stat, p, age, std), variables in groups.items():
             t = estimate(data, design, list(dict.fromkeys(variables)), statistics=stat, by=by,
                          where=spec.where, categorical=variables if stat == "proportion" else (),
                          quantiles=(p,), level=spec.level, proportion_ci=spec.proportion_ci,
-                         reliability=STANDARDS[spec.reliability])
+                         reliability=STANDARDS[spec.reliability], age_adjust=age, standard=std)
             frame = t.frame
             if by:  # keep only the rows of this grouping's levels
                 frame = frame[frame[by[0]].notna()]
+            if age is not None:  # the adjusted rows only: crude rows come from their own spec
+                frame = frame[frame["standard"].notna()]
             frames.append(frame)
             first = first or t
     assert first is not None  # spec.rows is never empty
@@ -201,7 +206,11 @@ def _estimate_all(spec: TableSpec, data: Dataset, design: Design) -> EstimateTab
     cols = [c for c in stacked.columns if c not in spec.by]
     at = cols.index("p") + 1
     stacked = stacked[[*cols[:at], *spec.by, *cols[at:]]]
-    settings = {**first.settings, "level": spec.level, "proportion_ci": spec.proportion_ci}
+    if "standard" in stacked.columns:
+        stacked["standard"] = stacked["standard"].astype(object).where(
+            stacked["standard"].notna(), None)
+    settings = {**first.settings, "level": spec.level, "proportion_ci": spec.proportion_ci,
+                "domains": list(spec.by)}
     return EstimateTable.from_frame(stacked, by=spec.by, level=spec.level, design=first.design,
                          settings=settings)
 
@@ -215,6 +224,8 @@ def _columns(spec: TableSpec, est: EstimateTable, data: Dataset) -> tuple[TableC
         levels = est.frame[b].dropna()
         for level in dict.fromkeys(group_text(v) for v in levels):
             cols.append(TableColumn(f"{b}={level}", level, _label(data, b), b, level))
+        if spec.p_value:
+            cols.append(TableColumn(f"p:{b}", "p", _label(data, b), b, None))
     return tuple(cols)
 
 
@@ -243,7 +254,9 @@ def _domain_sizes(
         for value, row in agg.iterrows():
             text = group_text(col.value_labels.get(float(value), value))  # type: ignore[arg-type]
             sizes[f"{b}={text}"] = (float(row["size"]), float(row["sum"]))
-    return {c.key: sizes.get(c.key, (0.0, 0.0)) for c in columns}
+    nan = (float("nan"), float("nan"))  # a p-value column has no domain
+    return {c.key: nan if c.key.startswith("p:") else sizes.get(c.key, (0.0, 0.0))
+            for c in columns}
 
 
 def _methods(spec: TableSpec, est: EstimateTable, codebook: Codebook | None) -> str:
@@ -263,11 +276,14 @@ def _methods(spec: TableSpec, est: EstimateTable, codebook: Codebook | None) -> 
         asked = int(rec["n"]) + nonresp
         if asked:
             rates.append(nonresp / asked)
-    return methods_paragraph(
-        est.design, est.settings, totals, (min(rates), max(rates)) if rates else None,
+    # the table's own sentences name every standard its rows use (table_methods_sentences)
+    settings = {k: v for k, v in est.settings.items()
+                if k not in ("standard", "standard_source", "age_adjust")}
+    text = methods_paragraph(
+        est.design, settings, totals, (min(rates), max(rates)) if rates else None,
         spec.data.name, spec.reliability, recodes=_recodes(spec, codebook),
-        reason_descriptions=dict(codebook.reasons) if codebook else None,
     )
+    return " ".join([text, *table_methods_sentences(spec)])
 
 
 def _recodes(spec: TableSpec, codebook: Codebook | None) -> list[str]:

@@ -1,0 +1,204 @@
+"""Comparisons (``wstats.compare``) in every text format: terminal, Markdown, CSV, JSON.
+
+Two grids: the differences between groups and the tests across them. Proportions show as
+percentages and their differences in percentage points; p-values below 0.001 as ``<0.001``;
+flags as ids in their own column, explained in the notes.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+from collections.abc import Mapping
+from typing import TYPE_CHECKING, Any
+
+from wstats.render._grid import Column, Grid, default_provenance, design_line
+from wstats.reports.cells import auto_decimals, fmt_number, interval
+
+if TYPE_CHECKING:
+    from rich.console import RenderableType
+
+    from wstats.reports.compare import Comparison
+
+__all__ = ["compare_csv", "compare_grids", "compare_json", "compare_markdown",
+           "compare_terminal"]
+
+_DIFF_COLUMNS = (
+    Column("variable", "Variable", "l"), Column("level", "Level", "l"),
+    Column("group_a", "Group A", "l"), Column("group_b", "Group B", "l"),
+    Column("estimate_a", "A"), Column("estimate_b", "B"),
+    Column("difference", "B - A"), Column("se", "SE"),
+    Column("ci", "Interval"), Column("t", "t"), Column("p", "p"),
+    Column("p_adjusted", "p adjusted"), Column("flags", "Flags", "l"))
+_TEST_COLUMNS = (
+    Column("variable", "Variable", "l"), Column("test", "Test", "l"),
+    Column("level", "Of", "l"), Column("statistic", "F or t"), Column("df1", "df1"),
+    Column("df2", "df2"), Column("p", "p"), Column("mean_deff", "Mean deff"),
+    Column("deff_cv2", "a-hat^2"), Column("flags", "Flags", "l"))
+_TEST_WORDS = {"rao-scott": "Rao-Scott F (2nd order)", "wald": "Wald F (adjusted)",
+               "trend-linear": "linear trend", "trend-quadratic": "quadratic trend"}
+
+
+def p_text(p: Any) -> str:
+    """Return a p-value as text: 3 decimals, ``<0.001`` below that, '' when missing."""
+    if p is None or (isinstance(p, float) and math.isnan(p)):
+        return ""
+    return "<0.001" if float(p) < 0.001 else fmt_number(p, 3)
+
+
+def _scaled(row: Mapping[str, Any], key: str) -> float:
+    """Return a number of a difference row, as percent (points) for proportions and rates."""
+    v = row.get(key)
+    x = math.nan if v is None else float(v)
+    return x * 100.0 if row.get("statistic") != "mean" else x
+
+
+def _difference_cells(row: Mapping[str, Any]) -> tuple[str, ...]:
+    """Return the formatted cells of one difference row."""
+    d = auto_decimals(_scaled(row, "se"), lowest=1 if row["statistic"] != "mean" else 0)
+    num = {k: fmt_number(_scaled(row, k), d) for k in
+           ("estimate_a", "estimate_b", "difference", "se", "ci_low", "ci_high")}
+    level = row.get("level") or ("nonresponse" if row["statistic"] == "nonresponse-rate"
+                                 else "mean")
+    return (row["variable"], str(level), str(row["group_a"]), str(row["group_b"]),
+            num["estimate_a"], num["estimate_b"], num["difference"], num["se"],
+            interval(num["ci_low"], num["ci_high"]), fmt_number(row["t"], 2),
+            p_text(row["p"]), p_text(row["p_adjusted"]), ", ".join(row.get("flags") or ()))
+
+
+def _test_cells(row: Mapping[str, Any]) -> tuple[str, ...]:
+    """Return the formatted cells of one test row."""
+    of = row.get("level") or row.get("quantity") or ""
+    if row.get("quantity") == "reasons":
+        of = f"reasons ({of})"
+    return (row["variable"], _TEST_WORDS.get(row["test"], row["test"]), str(of),
+            fmt_number(row["statistic"], 2), fmt_number(row["df1"], 2).rstrip("0").rstrip("."),
+            fmt_number(row["df2"], 1).rstrip("0").rstrip("."), p_text(row["p"]),
+            fmt_number(row.get("mean_deff"), 2), fmt_number(row.get("deff_cv2"), 2),
+            ", ".join(row.get("flags") or ()))
+
+
+def _title_tail(result: Comparison) -> str:
+    """Return ", age-adjusted (standard NAME)" when the comparison is age-adjusted."""
+    std = result.settings.get("standard")
+    return f", age-adjusted (standard {std})" if std else ""
+
+
+def compare_notes(result: Comparison) -> tuple[str, ...]:
+    """Return the notes under a comparison: what the numbers are, tests, cautions, flags."""
+    from wstats.reports.compare_rows import FLAGS
+
+    s = result.settings
+    notes = [design_line(result.design, {}, result.level),
+             "B - A: group B's value minus group A's; proportions and "
+             "nonresponse rates in percent, their differences in percentage points. SE from "
+             "the full design covariance of the two estimates; t and two-sided p on the "
+             "design degrees of freedom.",
+             "Wald F: all group means (or adjusted values) equal, on (k-1, d-k+2) degrees of "
+             "freedom. Rao-Scott: independence of the variable and the groups, second-order "
+             "corrected F with the design effects taken at the independence fit.",
+             "A difference that is not significant is not evidence that the groups are equal; "
+             "many comparisons raise the chance of a false positive."]
+    if s.get("adjust_p") and s["adjust_p"] != "none":
+        word = {"holm": "Holm (1979)", "bh": "Benjamini-Hochberg (1995)"}[s["adjust_p"]]
+        notes.append(f"p adjusted: {word}, over all differences of this comparison.")
+    if s.get("standard"):
+        notes.append(f"Age-adjusted (standard {s['standard']}) by direct standardisation over "
+                     f"the levels of {s.get('age_adjust')}.")
+    fired = sorted({f for r in result.differences.rows + result.tests.rows
+                    for f in r.get("flags") or ()})
+    notes += [f"{f}: {FLAGS[f]}" for f in fired if f in FLAGS]
+    return tuple(notes)
+
+
+def compare_grids(result: Comparison) -> tuple[Grid, Grid]:
+    """Return the differences grid and the tests grid of a comparison.
+
+    Columns that would be empty everywhere (adjusted p without an adjustment, flags that
+    never fire, design effects without a Rao-Scott test) are left out.
+    """
+    tail = _title_tail(result)
+    diffs = result.differences.rows
+    drop = set()
+    if result.settings.get("adjust_p", "none") == "none":
+        drop.add("p_adjusted")
+    if not any(r.get("flags") for r in diffs):
+        drop.add("flags")
+    diff = _grid(f"Differences between levels of {result.by}{tail}", _DIFF_COLUMNS, drop,
+                 [_difference_cells(r) for r in diffs], ())
+    keep_test = set()
+    if not any(r["test"] == "rao-scott" for r in result.tests.rows):
+        keep_test |= {"mean_deff", "deff_cv2"}
+    if not any(r.get("flags") for r in result.tests.rows):
+        keep_test.add("flags")
+    tests = _grid(f"Tests across levels of {result.by}{tail}", _TEST_COLUMNS, keep_test,
+                  [_test_cells(r) for r in result.tests.rows], compare_notes(result))
+    return diff, tests
+
+
+def _grid(title: str, columns: tuple[Column, ...], drop: set[str],
+          rows: list[tuple[str, ...]], notes: tuple[str, ...]) -> Grid:
+    """Return a grid of *rows* without the columns named in *drop*."""
+    keep = [i for i, c in enumerate(columns) if c.key not in drop]
+    return Grid(title, tuple(columns[i] for i in keep),
+                tuple(tuple(r[i] for i in keep) for r in rows), ("data",) * len(rows), notes)
+
+
+def compare_terminal(result: Comparison, provenance: Any = None) -> RenderableType:
+    """Return a rich renderable of a comparison: the differences, then the tests."""
+    from rich.console import Group
+
+    from wstats.render._terminal import GridView
+
+    diff, tests = compare_grids(result)
+    return Group(GridView(diff, per_section=False), GridView(tests, per_section=False))
+
+
+def compare_markdown(result: Comparison, provenance: Mapping[str, Any] | None = None) -> str:
+    """Render a comparison as Markdown: provenance comment, two pipe tables, notes."""
+    from wstats.render._markdown import grid_markdown
+
+    diff, tests = compare_grids(result)
+    prov = provenance or default_provenance(result)
+    first = grid_markdown(diff, prov)
+    second = grid_markdown(tests, {})
+    return first + "\n" + second[second.index("**"):]
+
+
+def compare_csv(result: Comparison, provenance: Mapping[str, Any] | None = None) -> str:
+    """Render a comparison as one tidy CSV: a ``row_type`` column (difference | test)."""
+    import csv
+    import io
+
+    from wstats.render._csv import value_text
+    from wstats.render._grid import provenance_lines
+
+    columns = list(dict.fromkeys([*result.differences.columns, *result.tests.columns]))
+    buf = io.StringIO()
+    for line in provenance_lines(provenance or default_provenance(result)):
+        buf.write(f"# {line}\n")
+    w = csv.writer(buf, lineterminator="\n")
+    w.writerow(["row_type", *columns])
+    for kind, table in (("difference", result.differences), ("test", result.tests)):
+        for rec in table.records():
+            w.writerow([kind, *(_csv_value(rec.get(c), value_text) for c in columns)])
+    return buf.getvalue()
+
+
+def _csv_value(v: Any, text: Any) -> str:
+    """Return one CSV field (a list of flags joined by ';')."""
+    if isinstance(v, list | tuple):
+        return ";".join(str(x) for x in v)
+    return str(text(v))
+
+
+def compare_json(result: Comparison, provenance: Mapping[str, Any] | None = None) -> str:
+    """Render a comparison as ``{"provenance", "differences", "tests"}`` (plus flag meanings)."""
+    from wstats.reports.compare_rows import FLAGS
+
+    diffs, tests = result.differences.records(), result.tests.records()
+    fired = sorted({f for r in [*diffs, *tests] for f in r.get("flags") or ()})
+    data = {"provenance": provenance or default_provenance(result), "differences": diffs,
+            "tests": tests, "settings": dict(result.settings),
+            "flags": {f: FLAGS[f] for f in fired if f in FLAGS}}
+    return json.dumps(data, indent=2, ensure_ascii=False, allow_nan=False) + "\n"
