@@ -395,3 +395,31 @@ def test_compare_periods_when_compare_is_there() -> None:
     assert row["difference"] == pytest.approx(float(per.estimate[2] - per.estimate[1]),
                                               rel=1e-10)
     assert row["df"] == float(per.df[0])
+
+
+def test_satterthwaite_df_of_a_change_between_periods() -> None:
+    # REFERENCES §16: df of a change, (v1+v2)^2 / (v1^2/d1 + v2^2/d2) as an option; the p
+    # value on that df (t distribution: scipy.stats.t, a general library)
+    from scipy import stats
+
+    from wstats.reports.compare import compare
+
+    a, b = _period(70, psus=3), _period(71, strata=4, psus=2, weight=12.0)
+    data = _pooled(a, b)
+    row = dict(compare(data, DESIGN, ["y"], by="_file", period_df="satterthwaite")
+               .differences.rows[0])
+    per = estimate(data, DESIGN, ["y"], by=["_file"])
+    v1, v2 = float(per.frame.se[1]) ** 2, float(per.frame.se[2]) ** 2
+    d1, d2 = per.design["pool"]["df_per_file"].values()
+    expected = (v1 + v2) ** 2 / (v1 * v1 / d1 + v2 * v2 / d2)
+    assert row["df"] == pytest.approx(expected, rel=1e-10)
+    assert row["p"] == pytest.approx(2 * stats.t.sf(abs(row["t"]), expected), rel=1e-8)
+    summed = dict(compare(data, DESIGN, ["y"], by="_file").differences.rows[0])
+    assert summed["df"] == d1 + d2
+    with pytest.raises(DesignError, match="period df rule"):
+        change_df([1.0], [1.0], "mean")
+    from wstats.errors import EstimationError
+
+    with pytest.raises(EstimationError, match="Satterthwaite df of a change needs pooled files "
+                       "compared by _file"):
+        compare(Dataset.from_arrays(a), DESIGN, ["y"], by="S", period_df="satterthwaite")

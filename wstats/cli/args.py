@@ -238,6 +238,9 @@ def add_compare_args(p: argparse.ArgumentParser) -> None:
                    help="multiplicity adjustment of the differences' p-values (default none)")
     g.add_argument("--trend", action="store_true",
                    help="linear (and with 4+ levels quadratic) trend across the ordered levels")
+    g.add_argument("--period-df", choices=("sum", "satterthwaite"), default="sum",
+                   help="pooled files compared --by _file: df of a change, the files' df added "
+                        "up (default) or Satterthwaite's from each period's own df")
     g.add_argument("--reasons", action="store_true",
                    help="also compare item nonresponse and its reasons across the groups")
     _add_subpopulation_options(g)

@@ -11,7 +11,7 @@ each variable is compared too (:mod:`wstats.reports.compare_reasons`).
 from __future__ import annotations
 
 from collections.abc import Mapping, Sequence
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from typing import TYPE_CHECKING, Any
 
 import numpy as np
@@ -29,6 +29,7 @@ from wstats.estimation.influence import (
 from wstats.reports.compare_rows import (
     DIFFERENCE_COLUMNS,
     TEST_COLUMNS,
+    PairDf,
     difference_rows,
     rao_scott_table,
     trend_rows,
@@ -115,6 +116,7 @@ class _Plan:
     age: tuple[str, Any, list[str]] | None  # (variable, weights per level, labels)
     standard: str | None
     groups: DomainSums  # the sums over the groups alone (the same as eng without ages)
+    pair_df: PairDf | None = None  # pooled periods: the df of each change (else design df)
 
     @property
     def n_groups(self) -> int:
@@ -144,6 +146,7 @@ def compare(
     age_adjust: str | None = None,
     standard: str | Standard | None = None,
     not_asked: Sequence[str] = ("skipped",),
+    period_df: str = "sum",
 ) -> Comparison:
     """Compare groups: differences with design-based SEs, global tests, trends, reasons.
 
@@ -183,6 +186,7 @@ def compare(
     """
     plan = _plan(data, design, variables, by, reference, pairs, adjust_p, level, trend,
                  age_adjust, standard, categorical, where, reasons)
+    plan = replace(plan, pair_df=_period_df(plan, period_df))
     diff_rows: list[dict[str, Any]] = []
     test_rows: list[dict[str, Any]] = []
     for name in variables:  # loop over variables only
@@ -197,12 +201,37 @@ def compare(
             test_rows += t
     _adjust(diff_rows, adjust_p)
     settings = {"pairs": pairs, "reference": plan.labels[plan.pairs[0][0]],
-                "adjust_p": adjust_p, "df_rule": "design", "level": level,
+                "adjust_p": adjust_p,
+                "df_rule": "design" if plan.pair_df is None else "satterthwaite (periods)",
+                "level": level,
                 "standard": plan.standard, "age_adjust": age_adjust,
                 "deff_at": "independence fit", "wald_df2": "d - k + 2"}
     return Comparison(RowTable(tuple(diff_rows), DIFFERENCE_COLUMNS),
                       RowTable(tuple(test_rows), TEST_COLUMNS), by, level,
                       plan.eng.bound.summary(), settings)
+
+
+def _period_df(plan: _Plan, rule: str) -> PairDf | None:
+    """Return the df of a change between two pooled periods (None: the design df).
+
+    ``sum`` keeps the design df (the files' df added up); ``satterthwaite`` gives each pair
+    (v_a+v_b)^2/(v_a^2/d_a + v_b^2/d_b) from the periods' own df (REFERENCES §16).
+    """
+    from wstats.design.pooling import FILE_COLUMN, PERIOD_DF_RULES, change_df
+
+    if rule not in PERIOD_DF_RULES:
+        raise UsageError(f"period df '{rule}' is not one of {', '.join(PERIOD_DF_RULES)}"
+                         f"{did_you_mean(rule, PERIOD_DF_RULES)}")
+    if rule == "sum":
+        return None
+    pool = plan.eng.bound.summary().get("pool") or {}
+    if plan.by != FILE_COLUMN or not pool.get("df_per_file"):
+        raise EstimationError("the Satterthwaite df of a change needs pooled files compared by "
+                              "_file, with strata per file and linearization; drop it or use "
+                              "by='_file'")
+    per_period = dict(zip(pool["periods"], pool["df_per_file"].values(), strict=True))
+    dfs = [float(per_period.get(lab, np.nan)) for lab in plan.labels]
+    return lambda a, b, va, vb: change_df([va, vb], [dfs[a], dfs[b]], "satterthwaite")
 
 
 def _plan(data: Dataset, design: Design, variables: Sequence[str], by: str,
@@ -312,7 +341,8 @@ def _variable(data: Dataset, plan: _Plan, name: str, forced: bool
         flags = _age_flags(cov, j, g)
         sub = cov.covariance.subset(np.arange(j * g, (j + 1) * g))
         level_head = {**head, "level": lab if stat == "proportion" else None}
-        diffs += difference_rows(sub, plan.pairs, plan.labels, level_head, plan.level, flags)
+        diffs += difference_rows(sub, plan.pairs, plan.labels, level_head, plan.level, flags,
+                                 plan.pair_df)
         test_head = {"variable": name, "by": plan.by, "quantity": stat,
                      "level": level_head["level"], "standard": plan.standard}
         if plan.trend:
