@@ -14,13 +14,13 @@ from pathlib import Path
 from typing import Any
 
 from wstats.errors import AnalysisError, did_you_mean
+from wstats.reports.spec_inputs import check_engine
 from wstats.reports.table_specs import _Spec
 
 __all__ = ["JOB_KEYS", "Analysis", "Job", "Output", "load_analysis"]
 
 _TOP = ("data", "codebook", "title", "design", "defaults", "estimates", "nonresponse",
         "bounds", "compare", "table", "methods", "plot", "engine")
-_ENGINES = ("memory", "dask")
 _OUT = ("output", "format")
 _DOMAIN = ("variables", "by", "where", "level")
 #: table name -> allowed keys of each entry
@@ -75,9 +75,8 @@ class Analysis:
         ``[design]`` lies underneath.
     jobs : every output-producing entry: estimates, nonresponse, bounds, table, methods,
         plot (the order they are computed and written in), each kind in file order.
-    files : every data file when ``data`` names several (a list or a glob; they are pooled,
-        each file one period), else empty.
-    engine : ``memory`` or ``dask`` (``[[estimates]]`` entries on a Dask cluster).
+    files : every data file when ``data`` names several (pooled, one period each), else ().
+    engine : ``memory`` or ``dask`` (entries run on a Dask cluster).
     """
 
     source: Path
@@ -89,8 +88,7 @@ class Analysis:
     engine: str = "memory"
 
     @property
-    def data_files(self) -> tuple[Path, ...]:
-        """Every data file (one, or the pooled files)."""
+    def data_files(self) -> tuple[Path, ...]:  # every data file: one, or the pooled files
         return self.files or (self.data,)
 
     def outputs(self) -> list[Output]:
@@ -174,19 +172,6 @@ class _Parser(_Spec):
                             "analysis file's folder")
         return p
 
-    def engine(self, jobs: Sequence[Job]) -> str:
-        """Return the engine; the Dask engine runs [[estimates]], [[nonresponse]], charts."""
-        engine = self.text(self.doc.get("engine", "memory"), "engine")
-        if engine not in _ENGINES:
-            raise self.fail("engine", f"'{engine}' is not one of {', '.join(_ENGINES)}"
-                            f"{did_you_mean(engine, _ENGINES)}")
-        other = [j.key for j in jobs if j.kind not in ("estimates", "nonresponse", "plot")]
-        if engine == "dask" and other:
-            raise self.fail("engine", f"engine 'dask' runs [[estimates]] and [[nonresponse]] "
-                            f"entries only, not {other[0]}; run that entry in another "
-                            "analysis file")
-        return engine
-
     def analysis(self) -> Analysis:
         """Check every part and assemble the Analysis."""
         if "data" not in self.doc:
@@ -214,11 +199,10 @@ class _Parser(_Spec):
                                 "entries; give each its own name")
             seen.add((job.kind, job.name))
             self.check_source(job, jobs)
-        files = self.data_files()
-        return Analysis(self.source, files[0],
+        return Analysis(self.source, self.data_files()[0],
                         self.input_path("codebook") if "codebook" in self.doc else None,
                         self.subtable(self.doc.get("design", {}), "design"), tuple(jobs),
-                        tuple(files) if len(files) > 1 else (), self.engine(jobs))
+                        self.pooled_files(), check_engine(self, [(j.key, j.kind) for j in jobs]))
 
     def check_source(self, job: Job, jobs: Sequence[Job]) -> None:
         """Check that a [methods] or [[plot]] entry names an entry that exists."""

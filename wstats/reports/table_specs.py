@@ -200,29 +200,9 @@ class _Spec:
 
     def data_files(self) -> list[Path]:
         """Return the data files: one path, a glob or a list of paths (relative to the file)."""
-        import glob
+        from wstats.reports.spec_inputs import data_files
 
-        if "data" not in self.doc:
-            raise self.fail("data", "missing; name the file, e.g. data = \"survey.xpt\"")
-        value = self.doc["data"]
-        items = value if isinstance(value, list) else [value]
-        out: list[Path] = []
-        for i, item in enumerate(items):
-            text = self.text(item, "data" if len(items) == 1 else f"data[{i + 1}]")
-            if any(c in text for c in "*?["):
-                found = sorted(Path(p) for p in glob.glob(str(self.base / text)))
-                if not found:
-                    raise self.fail("data", f"'{text}' matches no file in {self.base}")
-                out.extend(found)
-                continue
-            p = self.base / text
-            if not p.is_file():
-                raise self.fail("data", f"file {p} does not exist; paths are relative to "
-                                f"{self.RELATIVE_TO}")
-            out.append(p)
-        if not out:
-            raise self.fail("data", "the list names no file; give at least one")
-        return out
+        return data_files(self)
 
     def pooled_files(self) -> tuple[Path, ...]:
         """Return the data files when ``data`` names several, else an empty tuple."""
