@@ -345,3 +345,27 @@ def test_replicate_glob_is_matched_against_the_file(folder: Path,
                                                                        "RW4"]
     with pytest.raises(wstats.errors.DesignError, match=r"replicate glob 'QQ\*' matches no"):
         run_analysis(_analysis(folder, body.format("QQ*", "f.json"), "q.toml"))
+
+
+def test_a_word_table_without_python_docx_is_refused_before_reading(
+        folder: Path, read_calls: list[list[str]], monkeypatch: pytest.MonkeyPatch) -> None:
+    import importlib.util
+
+    real = importlib.util.find_spec
+    monkeypatch.setattr(importlib.util, "find_spec",
+                        lambda name, *a: None if name == "docx" else real(name, *a))
+    text = ('data = "s.csv"\ncodebook = "cb.toml"\n[[table]]\nrows = ["Y"]\n'
+            'output = "t.docx"\n')
+    with pytest.raises(AnalysisError, match=r"output\[0\]: .*pip install 'wstats\[word\]'"):
+        run_analysis(_analysis(folder, text))
+    assert read_calls == [] and not (folder / "t.docx").exists()
+
+
+def test_a_word_table_from_an_analysis_file(folder: Path) -> None:
+    import docx
+
+    text = ('data = "s.csv"\ncodebook = "cb.toml"\n[[table]]\ntitle = "T"\nrows = ["Y"]\n'
+            'output = "t.docx"\n')
+    assert [p.name for p in run_analysis(_analysis(folder, text))] == ["t.docx"]
+    doc = docx.Document(str(folder / "t.docx"))
+    assert doc.paragraphs[0].text == "T" and len(doc.tables) == 1

@@ -62,8 +62,9 @@ def test_public_names_are_exactly_the_documented_list() -> None:
         "ExpressionError", "NonresponseTable", "OutputError", "ReadError", "Reasons",
         "ReliabilityStandard", "SingletonStratumError", "UsageError", "WeightError",
         "WstatsError", "__version__", "bounds", "build_table", "check_codebook", "compare",
-        "convert", "decode", "draft_codebook", "estimate", "load_codebook", "load_table_spec",
-        "methods_paragraph", "nonresponse", "read", "read_raw", "run_analysis",
+        "convert", "decode", "describe_columns", "draft_codebook", "estimate", "load_codebook",
+        "load_table_spec", "look", "methods_paragraph", "nonresponse", "read", "read_raw",
+        "run_analysis",
     }
     assert set(wstats.__all__) == expected
     assert wstats.__all__ == sorted(wstats.__all__)

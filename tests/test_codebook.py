@@ -244,10 +244,13 @@ def test_declared_codes_without_labels_never_merge() -> None:
 
 @pytest.mark.parametrize(("label", "reason"), [
     ("DK", "dont_know"), ("dont know", "dont_know"), ("Not sure", "dont_know"),
-    ("Refusal", "refused"), ("REFUSED", "refused"), ("Not asked", "skipped"),
-    ("Legitimate skip", "skipped"), ("Inapplicable", "skipped"), ("Not applicable", "skipped"),
-    ("Not ascertained", "missing"), ("Refused / Don't know", "declared_97"),
-    ("Other", "declared_97"),
+    ("Refusal", "refused"), ("REFUSED", "refused"), ("Not asked", "not_applicable"),
+    ("Legitimate skip", "not_applicable"), ("Inapplicable", "not_applicable"),
+    ("Not applicable", "not_applicable"), ("Not eligible", "not_applicable"),
+    ("Not ascertained", "missing"), ("No answer", "missing"),
+    ("Refused / Don't know", "declared_97"), ("Other", "declared_97"),
+    ("Missing - not applicable", "not_applicable"), ("Weiß nicht", "dont_know"),
+    ("Sans objet", "not_applicable"), ("No sabe", "dont_know"), ("Don’t know", "dont_know"),
 ])
 def test_declared_code_naming_from_label(label: str, reason: str) -> None:
     ds = decode(table(num("Q", [97], value_labels={97: label}, user_missing=[97.0])))

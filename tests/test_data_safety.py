@@ -102,6 +102,11 @@ COMMANDS: dict[str, tuple[list[str], list[str]]] = {
     "table": (["table", "table.toml", "-o", "out/table.md"], ["out/table.md"]),
     "run": (["run", "analysis.toml"], [f"out/{n}" for n in ANALYSIS_OUTPUTS]),
     "columns": (["columns", "survey.csv"], []),
+    "columns-json": (["columns", "survey.sav", "--search", "sleep", "-o", "out/cols.json"],
+                     ["out/cols.json"]),
+    "look": (["look", "survey.sav", "SLEEP", "SMOKE", "--codebook", "codebook.toml",
+              "-o", "out/look.json"], ["out/look.json"]),
+    "table-docx": (["table", "table.toml", "-o", "out/table.docx"], ["out/table.docx"]),
 }
 
 

@@ -63,10 +63,13 @@ def test_draft_loads_and_lists_metadata(tmp_path: Path) -> None:
     assert book.kind_of("EVER_SMK") == "binary"  # 7 and 9 are suspected, leaving Yes/No
     assert book.kind_of("ar_dist") == "categorical" and book.kind_of("COMMENT") == "text"
     assert book.labels_for("ar_dist") == {1.0: "North", 2.0: "South", 3.0: "East"}
-    # file declarations become codes; the reasons they use are declared
-    assert book.variables["ar_dist"].codes.numeric[8.0].reason == "declared_8"
+    # file declarations become codes, named from their labels; added reasons are declared
+    assert book.variables["ar_dist"].codes.numeric[8.0].reason == "not_applicable"
     assert book.variables["ar_dist"].codes.tags["a"].reason == "tag_a"
-    assert set(book.reasons) == {"declared_8", "tag_a"}
+    assert set(book.reasons) == {"not_applicable", "tag_a"}
+    # codes labelled with nothing but reason words are confirmed entries too
+    smk = book.variables["EVER_SMK"].codes.numeric
+    assert (smk[7.0].reason, smk[9.0].reason) == ("dont_know", "refused")
 
 
 def test_draft_comments_suspected_codes_with_counts() -> None:
@@ -75,7 +78,8 @@ def test_draft_comments_suspected_codes_with_counts() -> None:
         in text
     assert '# 99 = "refused"   # suspected special code: 20 rows' in text
     assert "# 888 = 0   # suspected 'none' code (a valid 0): 10 rows" in text
-    assert '# 7 = "dont_know"   # suspected special code: 20 rows' in text
+    assert '7 = "dont_know"  # labelled in the file, label "DK/NS"' in text
+    assert '# 7 = "dont_know"   # suspected' not in text  # the label settled it
     assert "# [variables.EXER_FREQ.unit_prefixed]   # suspected: 100% of values" in text
     assert '# blank = "skipped"   # 40 blank rows' in text
     assert '# blank = "skipped"   # 400 blank rows' in text  # "" and " " in COMMENT
@@ -95,7 +99,7 @@ def test_accepting_the_suggestions_decodes_as_suggested(tmp_path: Path) -> None:
     assert exer.reason_counts()["dont_know"] == 30 and exer.reason_counts()["refused"] == 5
     assert (exer.values[30:40] == 0).all()  # 888 -> 0
     assert set(np.unique(exer.values[45:])) <= {365.0, 730.0, 156.0, 260.0, 12.0, 120.0, 2.0}
-    assert ds["ar_dist"].reason_counts()["declared_8"] == 5
+    assert ds["ar_dist"].reason_counts()["not_applicable"] == 5
 
 
 def test_quoting_of_odd_names_and_codes(tmp_path: Path) -> None:
@@ -132,7 +136,8 @@ def test_check_counts_rules_unexplained_and_absent() -> None:
     sleep = check.frame[check.frame.variable == "SLEEP_HRS"]
     assert sleep[["raw_code", "reason", "count"]].values.tolist() == [
         ["77", "dont_know", 40], ["blank", "skipped", 40]]
-    assert int(check.frame["count"].sum()) == 40 + 40 + 5 + 4 + 400
+    # + EVER_SMK's 7 "DK/NS" (20 rows) and 9 "Refused" (10), named by their labels
+    assert int(check.frame["count"].sum()) == 40 + 40 + 5 + 4 + 400 + 20 + 10
     odd = check.unexplained
     assert odd.values.tolist() == [["SLEEP_HRS", 11.0, int((raw.columns["SLEEP_HRS"].data ==
                                                              11).sum())],

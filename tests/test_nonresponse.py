@@ -82,13 +82,16 @@ def test_added_reasons_count_unless_declared_not_asked() -> None:
     reasons = np.array([VALID, VALID, 6, 7, VALID, DONT_KNOW])  # 6 not_measured, 7 not_appl.
     w = np.array([1.0, 1.0, 2.0, 3.0, 1.0, 1.0])
     ds = _dataset(reasons, w, extra=("not_measured", "not_applicable"))
+    # not_applicable is outside the item's universe by default, like a skip
     t = nonresponse(ds, Design("W"), ["Y"])
-    assert t.frame["nonresponse_rate"][0] == pytest.approx((2 + 3 + 1) / w.sum())
+    assert t.frame["asked"][0] == 5
+    assert t.frame["nonresponse_rate"][0] == pytest.approx((2 + 1) / (w.sum() - 3))
     assert t.frame["count_not_applicable"][0] == 1
-    t2 = nonresponse(ds, Design("W"), ["Y"], not_asked=["not_applicable"])
-    assert t2.frame["asked"][0] == 5
-    assert t2.frame["nonresponse_rate"][0] == pytest.approx((2 + 1) / (w.sum() - 3))
-    assert t2.reasons == (*CORE, "not_measured", "not_applicable")
+    assert t.reasons == (*CORE, "not_measured", "not_applicable")
+    # naming the not-asked reasons replaces the default: now it is nonresponse
+    t2 = nonresponse(ds, Design("W"), ["Y"], not_asked=["skipped"])
+    assert t2.frame["asked"][0] == 6
+    assert t2.frame["nonresponse_rate"][0] == pytest.approx((2 + 3 + 1) / w.sum())
 
 
 def test_se_equals_the_estimation_engine_on_a_hand_built_indicator() -> None:

@@ -189,8 +189,8 @@ def _spec(folder: Path, text: str) -> Path:
     ('data = "sample.csv"\nrows = ["SLEEP"]\nreliability = "nchs"\n', r"reliability: 'nchs'"),
     ('data = "sample.csv"\nrows = ["SLEEP"]\n[design]\nwieght = "WT"\n',
      r"design.wieght: unknown key.*did you mean 'weight'"),
-    ('data = "sample.csv"\nrows = ["SLEEP"]\n[output]\nfiles = ["t.docx"]\n',
-     r"output.files\[0\]: 't.docx' has no known suffix"),
+    ('data = "sample.csv"\nrows = ["SLEEP"]\n[output]\nfiles = ["t.odt"]\n',
+     r"output.files\[0\]: 't.odt' has no known suffix"),
     ('data = "sample.csv"\nrows = ["SLEEP"\n', r"bad.toml: not valid TOML: Unclosed array"),
     ('data = "sample.csv"\nrows = ["SLEEP"]\n[columns]\ntotal = false\n',
      r"columns.total: false leaves the table without columns"),
@@ -274,3 +274,41 @@ def test_real_nonresponse_table_renders_in_every_format(survey: Path) -> None:
             assert out[:2] == b"PK"  # a zip container
         else:
             assert dk in out and "sample.csv" not in out  # provenance given: the fixed record
+
+
+def test_publication_docx_cells(survey: Path) -> None:
+    import docx
+
+    table = build_table(survey / "t1.toml", time=False)
+    doc = docx.Document(io.BytesIO(TABLE_RENDERERS["docx"](table, provenance=PROVENANCE)))
+    assert doc.paragraphs[0].text == "Table 1. Test survey"
+    (word,) = doc.tables
+    cells = [[c.text for c in row.cells] for row in word.rows]
+    assert cells[0][1:] == ["", "Sex", "Sex"]  # spanning header, merged over the two levels
+    assert cells[1] == ["", "All", "Male", "Female"]
+    assert cells[2] == [table.cells.loc[0, "label"], table.cells.loc[0, "all"],
+                        table.cells.loc[0, "dm_sex=Male"], table.cells.loc[0, "dm_sex=Female"]]
+    section = table.cells.loc[1, "label"]
+    assert cells[3] == [section] * 4  # a section row is one merged cell across the table
+    assert cells[-1][0] == "Weighted N"
+    text = "\n".join(p.text for p in doc.paragraphs)
+    assert "Source: invented data." in text and "Methods. " in text
+    assert "sha256" in doc.paragraphs[-1].text  # provenance, last, in small type
+
+
+def test_docx_without_python_docx_says_how_to_install_before_work(
+        survey: Path, monkeypatch: pytest.MonkeyPatch, capsys: pytest.CaptureFixture[str]) -> None:
+    import importlib.util
+
+    import wstats.reports.tables
+    from wstats.cli.main import main
+
+    real = importlib.util.find_spec
+    monkeypatch.setattr(importlib.util, "find_spec",
+                        lambda name, *a: None if name == "docx" else real(name, *a))
+    monkeypatch.setattr(wstats.reports.tables, "build_table",
+                        lambda *a, **k: pytest.fail("work was done before the check"))
+    code = main(["table", str(survey / "t1.toml"), "-o", str(survey / "t1.docx")])
+    err = capsys.readouterr().err.strip()
+    assert code != 0 and len(err.splitlines()) == 1
+    assert "pip install 'wstats[word]'" in err and not (survey / "t1.docx").exists()

@@ -58,6 +58,12 @@ def demo(tmp_path_factory: pytest.TempPathFactory) -> dict[str, Any]:
         "table": ["table", spec],
         "codebook_check": ["codebook", "check", data, cb],
         "demo": ["demo", "tour", "--rows", "3000"],
+        "compare": ["compare", data, "hs_rate", "bd_bmi", "--by", "dm_age5", "--trend",
+                    "--reasons", *common],
+        "compare_pairs": ["compare", data, "bd_bmi", "--by", "dm_age5", "--pairs", "all",
+                          "--adjust-p", "holm", *common],
+        "columns": ["columns", data, "--search", "health"],
+        "look": ["look", data, *est["variables"][:3], "--codebook", cb],
     }
     return {"folder": folder, "commands": commands}
 
@@ -80,7 +86,8 @@ def _screen(demo: dict[str, Any], name: str, width: int, monkeypatch: pytest.Mon
 
 @pytest.mark.parametrize("width", WIDTHS)
 @pytest.mark.parametrize("name", ["estimate", "nonresponse", "nonresponse_shares", "bounds",
-                                  "table", "codebook_check", "demo"])
+                                  "table", "codebook_check", "demo", "compare",
+                                  "compare_pairs", "columns", "look"])
 def test_screen_fits_and_matches_golden(demo: dict[str, Any], name: str, width: int,
                                         monkeypatch: pytest.MonkeyPatch,
                                         capsys: pytest.CaptureFixture[str]) -> None:

@@ -39,10 +39,12 @@ _EXPORTS: dict[str, str] = {
     "compare": "wstats.reports.compare",
     "convert": "wstats.readers.cache",
     "decode": "wstats.decoding.codebook",
+    "describe_columns": "wstats.readers.overview",
     "draft_codebook": "wstats.decoding.draft",
     "estimate": "wstats.estimation.estimate",
     "load_codebook": "wstats.decoding.codebook",
     "load_table_spec": "wstats.reports.tables",
+    "look": "wstats.reports.look",
     "methods_paragraph": "wstats.reports.methods",
     "nonresponse": "wstats.reports.nonresponse",
     "read": "wstats.decoding.load",
@@ -59,6 +61,7 @@ def __getattr__(name: str) -> Any:
     except KeyError:
         raise AttributeError(f"module 'wstats' has no attribute {name!r}") from None
     value = getattr(importlib.import_module(module), name)
+    importlib.import_module("wstats.render")  # results show themselves (estimation/display.py)
     globals()[name] = value
     return value
 

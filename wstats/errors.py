@@ -48,7 +48,8 @@ __all__ = [
 ]
 
 #: optional feature -> (module it imports, pip extra that installs it)
-OPTIONAL_PACKAGES = {"charts": ("matplotlib", "plot"), "xlsx files": ("openpyxl", "xlsx")}
+OPTIONAL_PACKAGES = {"charts": ("matplotlib", "plot"), "xlsx files": ("openpyxl", "xlsx"),
+                     "Word files": ("docx", "word")}
 
 
 class WstatsError(Exception):

@@ -114,15 +114,17 @@ def _same_files(spec: Any, analysis: Analysis) -> bool:
 
 
 def _check_plot_support(analysis: Analysis) -> None:
-    """Refuse a required chart or an xlsx output whose package is absent (before any work)."""
+    """Refuse a required chart, an xlsx or a Word output whose package is absent (before any
+    work)."""
     from wstats.errors import require_package
 
     for job in analysis.jobs:
         if job.kind == "plot" and job.options["required"]:
             require_package("charts", f"{analysis.source}: {job.key}", AnalysisError)
     for out in analysis.outputs():
-        if out.fmt == "xlsx":
-            require_package("xlsx files", f"{analysis.source}: {out.key}", AnalysisError)
+        if out.fmt in ("xlsx", "docx"):
+            feature = "xlsx files" if out.fmt == "xlsx" else "Word files"
+            require_package(feature, f"{analysis.source}: {out.key}", AnalysisError)
 
 
 def _codebook(analysis: Analysis) -> Codebook | None:

@@ -13,6 +13,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
+from wstats.decoding.reasons import NOT_ASKED
 from wstats.errors import AnalysisError, did_you_mean
 from wstats.reports.spec_inputs import check_engine
 from wstats.reports.table_specs import _Spec
@@ -255,7 +256,7 @@ class _Parser(_Spec):
             opts["count_invalid"] = self.flag(entry.get("count_invalid", True),
                                               f"{key} count_invalid")
             opts["sort_worst"] = self.flag(entry.get("sort_worst", False), f"{key} sort_worst")
-            opts["not_asked"] = self.names(entry.get("not_asked", ["skipped"]),
+            opts["not_asked"] = self.names(entry.get("not_asked", list(NOT_ASKED)),
                                            f"{key} not_asked")
         else:
             opts["reasons"] = self.names(entry.get("reasons", ["dont_know", "refused"]),

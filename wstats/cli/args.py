@@ -15,13 +15,15 @@ from wstats.errors import UsageError
 __all__ = [
     "OUTPUT_FORMATS", "Parser", "add_bounds_args", "add_codebook_args", "add_columns_args",
     "add_compare_args", "add_convert_args", "add_demo_args", "add_estimate_args",
+    "add_look_args",
     "add_nonresponse_args", "add_run_args", "add_table_args", "data_paths", "design_from",
     "format_for", "needed_columns", "one_line", "parse_rows", "ratio_pair", "split_list",
 ]
 
 OUTPUT_FORMATS = ("table", "csv", "json", "markdown", "latex", "html")
 _SUFFIX_FORMAT = {".csv": "csv", ".json": "json", ".md": "markdown", ".tex": "latex",
-                  ".html": "html", ".htm": "html", ".txt": "table", ".xlsx": "xlsx"}
+                  ".html": "html", ".htm": "html", ".txt": "table", ".xlsx": "xlsx",
+                  ".docx": "docx"}
 
 
 def _add_design_options(p: argparse.ArgumentParser) -> None:
@@ -305,9 +307,10 @@ def add_nonresponse_args(p: argparse.ArgumentParser) -> None:
                    help="show weighted shares of the rows per reason instead of row counts")
     p.add_argument("--exclude-invalid", action="store_true",
                    help="do not count 'invalid' answers as nonresponse")
-    p.add_argument("--not-asked", default="skipped", metavar="REASONS",
+    p.add_argument("--not-asked", default="skipped,not_applicable", metavar="REASONS",
                    help="reasons that put a row outside the item's universe, like a skip "
-                        "(default skipped; e.g. skipped,not_applicable)")
+                        "(default skipped,not_applicable; 'skipped' alone counts "
+                        "not_applicable as nonresponse)")
     p.add_argument("--level", type=float, default=0.95, help="confidence level (default 0.95)")
     p.add_argument("--plot", metavar="FILE", help="also draw reasons per variable (.png/.svg)")
     _add_engine_options(p)
@@ -331,7 +334,7 @@ def add_bounds_args(p: argparse.ArgumentParser) -> None:
 
 def add_table_args(p: argparse.ArgumentParser) -> None:
     p.add_argument("spec", metavar="SPEC.toml", help="publication table spec")
-    _add_output_options(p, (*OUTPUT_FORMATS, "xlsx"))
+    _add_output_options(p, (*OUTPUT_FORMATS, "xlsx", "docx"))
 
 
 def add_run_args(p: argparse.ArgumentParser) -> None:
@@ -368,6 +371,23 @@ def add_convert_args(p: argparse.ArgumentParser) -> None:
 
 def add_columns_args(p: argparse.ArgumentParser) -> None:
     p.add_argument("data", metavar="FILE", help="survey file")
+    p.add_argument("--search", nargs="+", metavar="WORD", default=[],
+                   help="show only columns whose name or label holds every WORD "
+                        "(case-insensitive)")
+    p.add_argument("--names-only", action="store_true",
+                   help="print the matching names, one a line, without reading the data")
+    p.add_argument("--encoding", default="utf-8", metavar="NAME",
+                   help="text encoding of a CSV file or of labels (e.g. latin-1)")
+    _add_output_options(p, ("table", "json", "csv"))
+
+
+def add_look_args(p: argparse.ArgumentParser) -> None:
+    _add_data_options(p)
+    p.add_argument("variables", metavar="VAR", nargs="+", help="columns to look at")
+    p.add_argument("--weight", metavar="COL",
+                   help="weights for the weighted mean, quartiles and chart (default: the "
+                        "codebook's [design] weight, else none)")
+    _add_output_options(p, ("table", "json"))
 
 
 def add_demo_args(p: argparse.ArgumentParser) -> None:

@@ -19,6 +19,7 @@ from wstats.cli.args import (
     add_convert_args,
     add_demo_args,
     add_estimate_args,
+    add_look_args,
     add_nonresponse_args,
     add_run_args,
     add_table_args,
@@ -40,6 +41,7 @@ from wstats.cli.common import (
     _provenance,
     _read,
 )
+from wstats.cli.first_look import run_columns, run_look
 from wstats.errors import UsageError, require_package
 
 __all__ = ["COMMANDS"]
@@ -173,11 +175,12 @@ def _run_table(args: argparse.Namespace) -> int:
     from wstats.reports.tables import build_table, load_table_spec
 
     spec = load_table_spec(args.spec)
-    if args.format == "xlsx" and not args.output:
-        raise UsageError("xlsx output needs -o FILE.xlsx")
-    if format_for(args) == "xlsx" or (not args.output and not args.format and any(
-            fmt == "xlsx" for _, fmt in spec.outputs)):
-        require_package("xlsx files", str(args.spec))
+    if format_for(args) in ("xlsx", "docx") and not args.output:
+        raise UsageError(f"{format_for(args)} output needs -o FILE.{format_for(args)}")
+    wanted = {format_for(args)} if args.output or args.format else {f for _, f in spec.outputs}
+    for fmt, feature in (("xlsx", "xlsx files"), ("docx", "Word files")):
+        if fmt in wanted:
+            require_package(feature, str(args.spec))  # before any work is done
     table = build_table(spec, progress=sys.stderr.isatty())
     if not args.output and not args.format and table.outputs:
         from wstats.render import write_table
@@ -243,14 +246,6 @@ def _run_convert(args: argparse.Namespace) -> int:
     return 0
 
 
-def _run_columns(args: argparse.Namespace) -> int:
-    from wstats.readers.dispatch import file_columns
-
-    for name in file_columns(args.data):
-        print(name)
-    return 0
-
-
 def _run_demo(args: argparse.Namespace) -> int:
     from wstats.cli.demo import run_demo
 
@@ -290,8 +285,14 @@ COMMANDS: dict[str, Command] = {
         "convert a survey file to a Parquet cache that keeps labels and missing codes",
         "wstats convert survey.xpt survey.parquet", add_convert_args, _run_convert),
     "columns": Command(
-        "list the columns of a survey file (metadata only, fast)",
-        "wstats columns survey.xpt", add_columns_args, _run_columns),
+        "list the columns of a survey file: label, type, blanks, distinct values, declared "
+        "missing codes",
+        "wstats columns survey.xpt --search sleep", add_columns_args, run_columns),
+    "look": Command(
+        "look at variables: raw codes with counts and labels, what decoding makes of them, a "
+        "summary and a chart",
+        "wstats look survey.xpt sl_hours hs_rate --codebook codebook.toml --weight wt_final",
+        add_look_args, run_look),
     "demo": Command(
         "write the built-in demo survey and show what wstats does with it",
         "wstats demo ./wstats-demo", add_demo_args, _run_demo),

@@ -28,7 +28,7 @@ from wstats.decoding.codebook_records import (
 )
 from wstats.decoding.columns import KINDS
 from wstats.decoding.expressions import parse_expression
-from wstats.decoding.reasons import CORE_REASONS, Reasons
+from wstats.decoding.reasons import CORE_REASONS, NOT_ASKED, Reasons
 from wstats.errors import CodebookError, did_you_mean
 
 __all__ = ["codebook_from_dict", "read_toml"]
@@ -187,7 +187,8 @@ class _Parser:
 
     def __init__(self, data: Mapping[str, Any], source: str, text: str | None) -> None:
         self.data, self.source, self.loc = data, source, _Locator(source, text)
-        self.known: tuple[str, ...] = CORE_REASONS
+        # not_applicable needs no declaration: its meaning (outside the universe) is built in
+        self.known: tuple[str, ...] = (*CORE_REASONS, *NOT_ASKED[1:])
 
     def rule(self, value: Any, where: str, code: str, origin: str) -> Rule:
         """Turn one code's meaning (reason name or number) into a Rule."""
@@ -251,7 +252,7 @@ class _Parser:
                 raise CodebookError(f"{where}: {exc}") from None
             if not isinstance(text, str):
                 raise CodebookError(f"{where}: reason '{name}' needs a description in quotes")
-        self.known = tuple(probe.names)
+        self.known = tuple(dict.fromkeys((*probe.names, *NOT_ASKED[1:])))
         return dict(table)
 
     def range(self, value: Any, where: str) -> tuple[float, float] | None:

@@ -1,5 +1,6 @@
 """Codes a file declares missing itself (user-missing values and ranges, tagged missing
-values) and the reasons they get, named from their value labels when the label is clear."""
+values), and codes it labels with nothing but reason words; the reasons they get, named from
+their value labels when the label is clear (see :mod:`wstats.decoding.label_reasons`)."""
 
 from __future__ import annotations
 
@@ -7,23 +8,12 @@ import re
 from typing import TYPE_CHECKING
 
 from wstats.decoding.codebook_records import Rule
+from wstats.decoding.label_reasons import label_reason, only_reason_words
 
 if TYPE_CHECKING:
     from wstats.readers.raw import RawColumn
 
-__all__ = ["LABEL_PATTERNS", "declared_codes", "declared_reason", "tag_reason"]
-
-# Label wording -> core reason. A label matching exactly one of these names the reason; a
-# label matching several ("Don't know/Refused") or none keeps a reason of its own.
-LABEL_PATTERNS: dict[str, re.Pattern[str]] = {
-    "dont_know": re.compile(r"\bdon['’]?t\s+know\b|\bdo not know\b|\bdk\b|\bnot sure\b"
-                            r"|\bunsure\b|\bcan['’]?t say\b", re.I),
-    "refused": re.compile(r"\brefus(ed|al|es?)\b|\brf\b|\bdeclined\b", re.I),
-    "skipped": re.compile(r"\bnot asked\b|\blegitimate(ly)?\s+skip|\bvalid skip\b|\binapplicable"
-                          r"\b|\bnot applicable\b|\bn/a\b|\bskipped\b", re.I),
-    "missing": re.compile(r"\bnot ascertained\b|\bno answer\b|\bmissing\b|\bno response\b",
-                          re.I),
-}
+__all__ = ["declared_codes", "declared_reason", "tag_label", "tag_reason"]
 
 
 def _code_name(value: float) -> str:
@@ -34,25 +24,43 @@ def _code_name(value: float) -> str:
 
 def declared_reason(value: float | str, label: str | None) -> str:
     """Name the reason of a code the file declares missing, from its label when clear."""
-    if label:
-        hits = [name for name, pat in LABEL_PATTERNS.items() if pat.search(label)]
-        if len(hits) == 1:
-            return hits[0]
+    named = label_reason(label)
+    if named is not None:
+        return named
     if isinstance(value, str):
         slug = re.sub(r"[^a-z0-9]+", "_", value.lower()).strip("_") or "blank"
         return f"declared_{slug}"[:40]
     return f"declared_{_code_name(value)}"[:40]
 
 
-def tag_reason(letter: str) -> str:
-    """Name a tagged missing value's reason: ``.a``/``.A`` -> tag_a, ``._`` -> tag_underscore."""
+def tag_reason(letter: str, label: str | None = None) -> str:
+    """Name a tagged missing value's reason: from its label when clear, else ``.a``/``.A`` ->
+    tag_a, ``._`` -> tag_underscore."""
+    named = label_reason(label)
+    if named is not None:
+        return named
     return "tag_underscore" if letter == "_" else f"tag_{letter.lower()}"
 
 
+def tag_label(col: RawColumn, byte: int) -> str | None:
+    """Return the file's value label of the tag letter *byte* (either case), or None."""
+    letter = chr(byte)
+    for key in (letter, letter.lower(), letter.upper(), f".{letter}", f".{letter.lower()}"):
+        label = col.value_labels.get(key)
+        if label is not None:
+            return label
+    return None
+
+
 def declared_codes(col: RawColumn) -> tuple[dict[float, Rule], list[tuple[float, float, Rule]]]:
-    """Return rules for the file's user-missing singles (and labelled codes inside ranges)."""
+    """Return rules for the file's user-missing singles (and labelled codes inside ranges),
+    and for codes whose label holds nothing but reason words (origin ``file label``)."""
     labels = {float(k): v for k, v in col.value_labels.items() if not isinstance(k, str)}
     singles: dict[float, Rule] = {}
+    for code, text in labels.items():
+        inferred = only_reason_words(text)
+        if inferred is not None:
+            singles[code] = Rule(inferred, None, "file label")
     ranges: list[tuple[float, float, Rule]] = []
     for item in col.user_missing:
         if isinstance(item, tuple):

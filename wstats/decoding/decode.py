@@ -9,7 +9,8 @@ Order per variable (each step only sees rows no earlier step decided):
 4. range check (after conversion; substitutes are exempt) -> ``invalid``;
 5. blank / system missing -> the variable's ``blank`` (default ``[defaults] blank``).
 Codes declared by the file become one reason each (``7`` and ``9`` never merge), named after
-their value label when it clearly says don't know / refused / not asked / missing.
+their value label when it clearly says don't know / refused / not applicable / missing; a code
+the file labels with nothing but such words is that reason too (``declared_codes``).
 """
 
 from __future__ import annotations
@@ -22,7 +23,12 @@ from typing import TYPE_CHECKING, Any
 import numpy as np
 
 from wstats.decoding.columns import Dataset, DecodedColumn, row_tiles
-from wstats.decoding.declared_codes import declared_codes, declared_reason, tag_reason
+from wstats.decoding.declared_codes import (
+    declared_codes,
+    declared_reason,
+    tag_label,
+    tag_reason,
+)
 from wstats.decoding.decode_tiles import Decoded, NumberPlan, run_plan
 from wstats.decoding.reasons import VALID, Reasons
 from wstats.errors import CodebookError, ExpressionError, did_you_mean
@@ -102,7 +108,8 @@ def _numeric(col: RawColumn, cb: Codebook, spec: VariableSpec | None, vocab: Rea
             seen += np.bincount(tags[rows], minlength=256)
         for byte in (np.flatnonzero(seen[1:]) + 1).tolist():  # in byte order, as met
             letter = chr(byte).lower()
-            tag_rules.append((byte, codes.tags.get(letter) or _reason_rule(tag_reason(letter))))
+            tag_rules.append((byte, codes.tags.get(letter)
+                              or _reason_rule(tag_reason(letter, tag_label(col, byte)))))
     singles, ranges = declared_codes(col)
     table = {**singles, **codes.numeric}
     blank = (spec.blank if spec and spec.blank else None) or cb.blank

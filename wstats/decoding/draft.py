@@ -26,8 +26,9 @@ from typing import TYPE_CHECKING, Any
 import numpy as np
 
 from wstats.decoding.codebook import Codebook
-from wstats.decoding.declared_codes import declared_codes, tag_reason
+from wstats.decoding.declared_codes import declared_codes, tag_label, tag_reason
 from wstats.decoding.decode import add_derived, decode_column, new_vocabulary
+from wstats.decoding.label_reasons import REASON_DESCRIPTIONS
 from wstats.decoding.reasons import CORE_REASONS, INVALID
 from wstats.errors import CodebookError, did_you_mean
 
@@ -101,15 +102,20 @@ def _unit_prefixed_share(x: np.ndarray) -> float:
 
 def _code_lines(col: RawColumn, reasons: dict[str, str],
                 suspects: list[tuple[float, int]]) -> list[str]:
-    """Write the codes table lines: file declarations, tags, then commented suspicions."""
+    """Write the codes table lines: file declarations, labelled codes, tags, then commented
+    suspicions. What the file's labels say is written as a confirmed entry, the label in a
+    comment beside it."""
     lines: list[str] = []
     singles, ranges = declared_codes(col)
     for code, rule in sorted(singles.items()):
         name = str(rule.reason)
-        reasons.setdefault(name, f"Declared missing in the file (code {code:g})")
         label = col.value_labels.get(code)
-        note = f"  # declared missing in the file, label {_q(label)}" if label else \
-            "  # declared missing in the file"
+        declared = rule.origin != "file label"
+        reasons.setdefault(name, REASON_DESCRIPTIONS.get(name) or (
+            f"Declared missing in the file (code {code:g})" if declared
+            else f"Labelled {label!r} in the file"))
+        what = "declared missing in the file" if declared else "labelled in the file"
+        note = f"  # {what}, label {_q(label)}" if label else f"  # {what}"
         lines.append(f"{_code(code)} = {_q(name)}{note}")
     for low, high, _rule in ranges:
         lines.append(f"# the file declares codes {low:g} to {high:g} missing (kept as a range)")
@@ -117,10 +123,13 @@ def _code_lines(col: RawColumn, reasons: dict[str, str],
         tags, counts = np.unique(col.tags[col.tags != 0], return_counts=True)
         for t, k in zip(tags.tolist(), counts.tolist(), strict=True):
             letter = chr(int(t))
-            name = tag_reason(letter)
-            reasons.setdefault(name, f"Special missing value .{letter} in the file")
-            lines.append(f"{_q('.' + letter)} = {_q(name)}  # tagged missing in the file, "
-                         f"{k} rows")
+            label = tag_label(col, int(t))
+            name = tag_reason(letter, label)
+            reasons.setdefault(name, REASON_DESCRIPTIONS.get(name)
+                               or f"Special missing value .{letter} in the file")
+            said = f", label {_q(label)}" if label else ""
+            lines.append(f"{_q('.' + letter)} = {_q(name)}  # tagged missing in the file"
+                         f"{said}, {k} rows")
     for code, k in suspects:
         if code in singles:
             continue

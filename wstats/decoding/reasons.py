@@ -6,9 +6,15 @@ change; added reasons get codes from 6 upwards in the order they are registered,
 
 Precedence (used when a derived value combines inputs that are not all valid) is, strongest
 first: ``refused > dont_know > (added reasons, in registration order) > invalid > missing >
-skipped > valid``. The rationale: an explicit refusal or don't-know by the respondent is the
-most informative statement about why the value is absent; ``skipped`` is weakest because a
-derived value of a skipped item with a non-skipped input is not a legitimate skip any more.
+not_applicable > skipped > valid``. The rationale: an explicit refusal or don't-know by the
+respondent is the most informative statement about why the value is absent; ``skipped`` is
+weakest because a derived value of a skipped item with a non-skipped input is not a legitimate
+skip any more. ``not_applicable`` (an added reason, read from a file's labels or declared by a
+codebook) says the same as a skip -- the item is outside the respondent's universe -- so it
+ranks just above ``skipped`` rather than among the added reasons.
+
+:data:`NOT_ASKED` are the reasons that put a row outside an item's universe by default: they
+leave the denominator of item nonresponse rates.
 """
 
 from __future__ import annotations
@@ -25,6 +31,7 @@ __all__ = [
     "DONT_KNOW",
     "INVALID",
     "MISSING",
+    "NOT_ASKED",
     "REFUSED",
     "SKIPPED",
     "VALID",
@@ -32,6 +39,8 @@ __all__ = [
 ]
 
 VALID, SKIPPED, DONT_KNOW, REFUSED, INVALID, MISSING = 0, 1, 2, 3, 4, 5
+#: Reasons meaning "the item does not apply to this row" by default (not nonresponse).
+NOT_ASKED: tuple[str, ...] = ("skipped", "not_applicable")
 CORE_REASONS: tuple[str, ...] = ("valid", "skipped", "dont_know", "refused", "invalid", "missing")
 _NAME = re.compile(r"^[a-z][a-z0-9_]{0,39}$")
 _MAX_CODES = 127
@@ -92,8 +101,10 @@ class Reasons(Mapping[str, int]):
 
     def precedence(self) -> np.ndarray:
         """Return rank per code (higher wins) following the documented precedence."""
-        order = ["valid", "skipped", "missing", "invalid", *reversed(self.extra),
-                 "dont_know", "refused"]
+        weak = [name for name in NOT_ASKED[1:] if name in self._codes]
+        strong = [name for name in reversed(self.extra) if name not in weak]
+        order = ["valid", "skipped", *weak, "missing", "invalid", *strong, "dont_know",
+                 "refused"]
         rank = np.zeros(len(self._codes), dtype=np.int16)
         for r, name in enumerate(order):
             rank[self._codes[name]] = r

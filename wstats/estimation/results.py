@@ -15,6 +15,8 @@ from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
+from wstats.estimation.display import as_html, as_text
+
 if TYPE_CHECKING:
     import numpy.typing as npt
     import pandas as pd
@@ -91,6 +93,15 @@ class EstimateTable:
         table = cls(columns, tuple(by), level, dict(design or {}), dict(settings or {}))
         table.__dict__["frame"] = frame  # the cached property's slot: no rebuild
         return table
+
+    def __repr__(self) -> str:
+        """Show the table as the terminal does, with its design line."""
+        names = sorted(set(np.asarray(self.columns.get("variable", [])).tolist()))
+        return as_text(self, f"EstimateTable({self.n_rows} rows; variables {names})")
+
+    def _repr_html_(self) -> str | None:
+        """Show the table as the ``--format html`` renderer does (notebooks)."""
+        return as_html(self)
 
     @property
     def n_rows(self) -> int:

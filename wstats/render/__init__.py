@@ -4,13 +4,19 @@ One registry per result type maps a format name to ``f(table, provenance=None)``
 
 - :data:`ESTIMATE_RENDERERS` for :class:`~wstats.estimation.results.EstimateTable`,
 - :data:`NONRESPONSE_RENDERERS` for ``NonresponseTable``,
-- :data:`TABLE_RENDERERS` for ``PublicationTable``,
-- :data:`COMPARE_RENDERERS` for a ``Comparison``.
+- :data:`TABLE_RENDERERS` for ``PublicationTable`` (also ``docx``, a Word document),
+- :data:`COMPARE_RENDERERS` for a ``Comparison``,
+- :data:`COLUMNS_RENDERERS` and :data:`LOOK_RENDERERS` for the first-look results.
+
+Results show themselves in a Python session through these registries: importing this
+package registers :func:`wstats.render._show.show_text` and ``show_html`` with
+:mod:`wstats.estimation.display`.
 
 Text formats return ``str``, ``xlsx`` returns ``bytes`` and ``terminal`` a rich renderable.
 Every written format carries the provenance record (``provenance=None`` falls back to the
 table's own, or to a minimal record). The ``xlsx`` entries are absent when openpyxl is not
-installed. Nothing here prints; the command line does.
+installed; ``docx`` is always listed (the command line says how to install python-docx
+before any work is done). Nothing here prints; the command line does.
 """
 
 from __future__ import annotations
@@ -28,9 +34,11 @@ if TYPE_CHECKING:
 
 __all__ = [
     "BOUNDS_RENDERERS",
+    "COLUMNS_RENDERERS",
     "COMPARE_RENDERERS",
     "ESTIMATE_RENDERERS",
     "FORMATS",
+    "LOOK_RENDERERS",
     "NONRESPONSE_RENDERERS",
     "TABLE_RENDERERS",
     "plain_text",
@@ -86,12 +94,19 @@ def _each_module(kind: str) -> _Registry:
 
 ESTIMATE_RENDERERS: MutableMapping[str, Renderer] = _each_module("estimate")
 NONRESPONSE_RENDERERS: MutableMapping[str, Renderer] = _each_module("nonresponse")
-TABLE_RENDERERS: MutableMapping[str, Renderer] = _each_module("table")
+TABLE_RENDERERS: MutableMapping[str, Renderer] = _Registry(
+    {**{fmt: (f"_{fmt}", f"table_{fmt}") for fmt in _FORMATS}, "docx": ("_docx", "table_docx")})
 #: renderers of a comparison (``wstats.compare``)
 COMPARE_RENDERERS: MutableMapping[str, Renderer] = _Registry(
     {fmt: ("_compare", f"compare_{fmt}") for fmt in ("terminal", "markdown", "csv", "json")})
 BOUNDS_RENDERERS: MutableMapping[str, Renderer] = _Registry(
     {fmt: ("_bounds", f"bounds_{fmt}") for fmt in ("terminal", "markdown", "csv", "json")})
+#: ``wstats columns`` (a FileOverview): terminal text at a given width, JSON, CSV
+COLUMNS_RENDERERS: MutableMapping[str, Renderer] = _Registry(
+    {fmt: ("_columns", f"columns_{fmt}") for fmt in ("terminal", "json", "csv")})
+#: ``wstats look`` (a LookResult): terminal text at a given width, JSON
+LOOK_RENDERERS: MutableMapping[str, Renderer] = _Registry(
+    {fmt: ("_look", f"look_{fmt}") for fmt in ("terminal", "json")})
 
 
 def render_check(report: Any) -> Any:
@@ -108,6 +123,7 @@ FORMATS: tuple[str, ...] = tuple(TABLE_RENDERERS)
 SUFFIX_FORMATS: dict[str, str] = {
     ".md": "markdown", ".markdown": "markdown", ".tex": "latex", ".html": "html",
     ".htm": "html", ".csv": "csv", ".json": "json", ".xlsx": "xlsx", ".txt": "terminal",
+    ".docx": "docx",
 }
 
 
@@ -124,8 +140,11 @@ def write_table(table: PublicationTable, overwrite: bool = False) -> list[Path]:
     list of Path
         The files written, in spec order.
     """
+    from wstats.errors import require_package
     from wstats.readers.output import atomic_write
 
+    if any(fmt == "docx" for _, fmt in table.outputs):
+        require_package("Word files", "", OutputError)  # before any file is written
     written = []
     for path, fmt in table.outputs:
         if fmt not in TABLE_RENDERERS:
@@ -179,3 +198,27 @@ def with_provenance(text: str, fmt: str, provenance: Mapping[str, Any] | None) -
     if fmt == "latex":
         return "".join(f"% {ln}\n" for ln in lines) + text
     return text.rstrip("\n") + "\n\n" + "".join(f"  {ln}\n" for ln in lines)
+
+
+def _show_text(obj: Any) -> str | None:
+    """Draw a result as terminal text (the module is imported on the first ``repr``)."""
+    from wstats.render._show import show_text
+
+    return show_text(obj)
+
+
+def _show_html(obj: Any) -> str | None:
+    """Draw a result as HTML (the module is imported on the first notebook display)."""
+    from wstats.render._show import show_html
+
+    return show_html(obj)
+
+
+def _register_display() -> None:
+    """Let results show themselves (see :mod:`wstats.estimation.display`)."""
+    from wstats.estimation.display import register
+
+    register(_show_text, _show_html)
+
+
+_register_display()

@@ -33,10 +33,10 @@ _DIFF_COLUMNS = (
 _TEST_COLUMNS = (
     Column("variable", "Variable", "l"), Column("test", "Test", "l"),
     Column("level", "Of", "l"), Column("statistic", "F or t"), Column("df1", "df1"),
-    Column("df2", "df2"), Column("p", "p"), Column("mean_deff", "Mean deff"),
-    Column("deff_cv2", "a-hat^2"), Column("flags", "Flags", "l"))
-_TEST_WORDS = {"rao-scott": "Rao-Scott F (2nd order)", "wald": "Wald F (adjusted)",
-               "trend-linear": "linear trend", "trend-quadratic": "quadratic trend"}
+    Column("df2", "df2"), Column("p", "p"), Column("mean_deff", "deff"),
+    Column("deff_cv2", "a2"), Column("flags", "Flags", "l"))
+_TEST_WORDS = {"rao-scott": "Rao-Scott F", "wald": "Wald F",
+               "trend-linear": "linear t", "trend-quadratic": "quadratic t"}
 
 
 def p_text(p: Any) -> str:
@@ -53,9 +53,13 @@ def _scaled(row: Mapping[str, Any], key: str) -> float:
     return x * 100.0 if row.get("statistic") != "mean" else x
 
 
-def _difference_cells(row: Mapping[str, Any]) -> tuple[str, ...]:
-    """Return the formatted cells of one difference row."""
-    d = auto_decimals(_scaled(row, "se"), lowest=1 if row["statistic"] != "mean" else 0)
+def _decimals(row: Mapping[str, Any]) -> int:
+    """Return the decimals a difference row's own SE asks for."""
+    return auto_decimals(_scaled(row, "se"), lowest=1 if row["statistic"] != "mean" else 0)
+
+
+def _difference_cells(row: Mapping[str, Any], d: int) -> tuple[str, ...]:
+    """Return the formatted cells of one difference row, numbers with *d* decimals."""
     num = {k: fmt_number(_scaled(row, k), d) for k in
            ("estimate_a", "estimate_b", "difference", "se", "ci_low", "ci_high")}
     level = row.get("level") or ("nonresponse" if row["statistic"] == "nonresponse-rate"
@@ -69,8 +73,8 @@ def _difference_cells(row: Mapping[str, Any]) -> tuple[str, ...]:
 def _test_cells(row: Mapping[str, Any]) -> tuple[str, ...]:
     """Return the formatted cells of one test row."""
     of = row.get("level") or row.get("quantity") or ""
-    if row.get("quantity") == "reasons":
-        of = f"reasons ({of})"
+    if row.get("quantity") == "reasons":  # the categories are in the notes and machine formats
+        of = "reasons"
     return (row["variable"], _TEST_WORDS.get(row["test"], row["test"]), str(of),
             fmt_number(row["statistic"], 2), fmt_number(row["df1"], 2).rstrip("0").rstrip("."),
             fmt_number(row["df2"], 1).rstrip("0").rstrip("."), p_text(row["p"]),
@@ -95,8 +99,11 @@ def compare_notes(result: Comparison) -> tuple[str, ...]:
              "the full design covariance of the two estimates; t and two-sided p on the "
              "design degrees of freedom.",
              "Wald F: all group means (or adjusted values) equal, on (k-1, d-k+2) degrees of "
-             "freedom. Rao-Scott: independence of the variable and the groups, second-order "
-             "corrected F with the design effects taken at the independence fit.",
+             "freedom. Rao-Scott F: independence of the variable and the groups, second-order "
+             "(Satterthwaite) corrected, with the design effects taken at the independence fit; "
+             "deff: their mean (delta-bar), a2: their squared coefficient of variation. "
+             "linear t, quadratic t: orthogonal-polynomial trend contrasts across the ordered "
+             "levels.",
              "A difference that is not significant is not evidence that the groups are equal; "
              "many comparisons raise the chance of a false positive."]
     if s.get("adjust_p") and s["adjust_p"] != "none":
@@ -105,6 +112,12 @@ def compare_notes(result: Comparison) -> tuple[str, ...]:
     if s.get("standard"):
         notes.append(f"Age-adjusted (standard {s['standard']}) by direct standardisation over "
                      f"the levels of {s.get('age_adjust')}.")
+    kinds = sorted({str(r.get("level")) for r in result.tests.rows
+                    if r.get("quantity") == "reasons"})
+    if kinds:
+        notes.append("reasons: a Rao-Scott test of the reason of each row asked ("
+                     + "; ".join(k.replace("+", ", ") for k in kinds)
+                     + ") against the groups, among the rows asked.")
     fired = sorted({f for r in result.differences.rows + result.tests.rows
                     for f in r.get("flags") or ()})
     notes += [f"{f}: {FLAGS[f]}" for f in fired if f in FLAGS]
@@ -124,8 +137,19 @@ def compare_grids(result: Comparison) -> tuple[Grid, Grid]:
         drop.add("p_adjusted")
     if not any(r.get("flags") for r in diffs):
         drop.add("flags")
+    # one number of decimals per variable and statistic, so that a column reads evenly
+    decimals: dict[tuple[str, str], int] = {}
+    for r in diffs:
+        key = (r["variable"], r["statistic"])
+        decimals[key] = max(decimals.get(key, 0), _decimals(r))
+    notes: tuple[str, ...] = ()
+    firsts = {str(r["group_a"]) for r in diffs}
+    if len(firsts) == 1:  # every row against one reference level: say it once
+        drop.add("group_a")
+        notes = (f"A: {firsts.pop()}, the reference level; B: the level compared with it.",)
     diff = _grid(f"Differences between levels of {result.by}{tail}", _DIFF_COLUMNS, drop,
-                 [_difference_cells(r) for r in diffs], ())
+                 [_difference_cells(r, decimals[(r["variable"], r["statistic"])])
+                  for r in diffs], notes)
     keep_test = set()
     if not any(r["test"] == "rao-scott" for r in result.tests.rows):
         keep_test |= {"mean_deff", "deff_cv2"}
@@ -151,7 +175,27 @@ def compare_terminal(result: Comparison, provenance: Any = None) -> RenderableTy
     from wstats.render._terminal import GridView
 
     diff, tests = compare_grids(result)
-    return Group(GridView(diff, per_section=False), GridView(tests, per_section=False))
+    return Group(GridView(_by_variable(diff), per_section=True),
+                 GridView(_by_variable(tests), per_section=True))
+
+
+def _by_variable(g: Grid) -> Grid:
+    """Return *g* with one section per variable instead of a Variable column.
+
+    On a terminal the label columns after it (level, groups, test) are repeated in every
+    block of columns that fits the width, so each block still says which row is which.
+    """
+    rows: list[tuple[str, ...]] = []
+    kinds: list[str] = []
+    current = None
+    for row in g.rows:
+        if row[0] != current:
+            current = row[0]
+            rows.append((current,))
+            kinds.append("section")
+        rows.append(row[1:])
+        kinds.append("data")
+    return Grid(g.title, g.columns[1:], tuple(rows), tuple(kinds), g.notes)
 
 
 def compare_markdown(result: Comparison, provenance: Mapping[str, Any] | None = None) -> str:

@@ -7,12 +7,14 @@
 from __future__ import annotations
 
 from collections.abc import Sequence
+from functools import lru_cache
 from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
 from wstats.decoding.columns import Dataset, DecodedColumn
 from wstats.decoding.reasons import VALID
+from wstats.estimation.display import as_html, as_text
 from wstats.estimation.results import _plain
 from wstats.reports.nonresponse import _UNKNOWN, _augmented, _check_variables, _indicator, _rows
 
@@ -86,7 +88,7 @@ def bounds(
     aug = _augmented(data, extra)
     est = estimate(aug, design, [*names, *extra], statistics="proportion", by=by, where=where,
                    categorical=names, level=level, reliability=reliability)
-    frame = _bounds_frame(est, names, list(by))
+    frame = _shown(_bounds_frame(est, names, list(by)))
     frame.attrs.update({"by": list(by), "reasons": list(reasons), "level": est.level,
                         "design": dict(est.design), "settings": dict(est.settings)})
     return frame
@@ -146,3 +148,35 @@ def _bounds_frame(est: EstimateTable, names: list[str], by: list[str]) -> pd.Dat
         block["flags"], block["suppress"] = cat["flags"].to_numpy(), cat["suppress"].to_numpy()
         blocks.append(block)
     return pd.concat(blocks, ignore_index=True)
+
+
+def _shown(frame: pd.DataFrame) -> pd.DataFrame:
+    """Return *frame* as a frame that shows itself as the bounds table (same data)."""
+    shown = _bounds_type()(frame)
+    shown.attrs.update(frame.attrs)
+    return shown
+
+
+@lru_cache(maxsize=1)
+def _bounds_type() -> type[pd.DataFrame]:
+    """Make the frame type of :func:`bounds` (pandas is imported only when bounds are made).
+
+    A pandas frame whose ``repr`` is the terminal bounds table with its design line and whose
+    notebook view is that table; a slice or copy of it is a plain frame again.
+    """
+    import pandas as pd
+
+    class BoundsFrame(pd.DataFrame):
+        """The frame :func:`bounds` returns; it shows itself as the bounds table."""
+
+        @property
+        def _constructor(self) -> type[pd.DataFrame]:
+            return pd.DataFrame
+
+        def __repr__(self) -> str:
+            return as_text(self, pd.DataFrame(self).__repr__())
+
+        def _repr_html_(self) -> str | None:
+            return as_html(self)
+
+    return BoundsFrame

@@ -19,6 +19,7 @@ import numpy as np
 from wstats.errors import EstimationError, UsageError, did_you_mean
 from wstats.estimation.contrasts import ADJUSTMENTS, adjust_p
 from wstats.estimation.covariance import Covariance, joint_covariance
+from wstats.estimation.display import as_html, as_text
 from wstats.estimation.influence import (
     DomainSums,
     domain_sums,
@@ -100,6 +101,14 @@ class Comparison:
     level: float
     design: Mapping[str, Any] = field(default_factory=dict)
     settings: Mapping[str, Any] = field(default_factory=dict)
+
+    def __repr__(self) -> str:
+        """Show the comparison as the terminal does, with its design line."""
+        return as_text(self, f"Comparison(by {self.by!r})")
+
+    def _repr_html_(self) -> str | None:
+        """Show the comparison in a notebook (its terminal text: it has no html format)."""
+        return as_html(self)
 
 
 @dataclass(frozen=True)

@@ -11,6 +11,7 @@ from __future__ import annotations
 from collections.abc import Iterable, Mapping, Sequence
 from typing import Any
 
+from wstats.decoding.reasons import NOT_ASKED
 from wstats.errors import UsageError
 
 __all__ = ["escape_latex", "escape_markdown", "methods_paragraph"]
@@ -236,10 +237,11 @@ def _domain_df(settings: Mapping[str, Any]) -> str:
 def _reason_sentences(counts: Mapping[str, int], recodes: Sequence[str]) -> list[str]:
     """Say how each reason for a missing value was handled."""
     out = []
-    if counts.get("skipped"):
+    if any(counts.get(r) for r in NOT_ASKED):
         out.append("Records that were not asked an item (legitimate skips, outside the item's "
                    "universe) were left out of that item's domain and are not nonresponse.")
-    named = [_NONRESPONSE_WORDS.get(r, r.replace("_", " ")) for r in counts if r != "skipped"]
+    named = [_NONRESPONSE_WORDS.get(r, r.replace("_", " ")) for r in counts
+             if r not in NOT_ASKED]
     if named:
         listed = ", ".join(named[:-1]) + (" and " if len(named) > 1 else "") + named[-1]
         out.append(f"Answers coded as {listed} were left out of the item's estimates "

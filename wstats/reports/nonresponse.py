@@ -16,9 +16,10 @@ domains (population row first, then the crossed by-cells).
 Conventions (each changes numbers; see ``docs/nonresponse.md``):
 
 - Asked = every row of the domain whose reason is not ``skipped`` (legitimate skip / not in
-  the item's universe) nor another reason the caller names in ``not_asked`` (e.g. a codebook's
-  ``not_applicable``). NCES Statistical Standards, Standard 1-3: item response rate =
-  responses / (unit respondents - legitimate skips).
+  the item's universe) nor another reason in ``not_asked`` (default
+  :data:`~wstats.decoding.reasons.NOT_ASKED`: ``skipped`` and ``not_applicable``; a caller's list
+  replaces it, ``skipped`` always stays). NCES Statistical Standards, Standard 1-3: item
+  response rate = responses / (unit respondents - legitimate skips).
 - Nonresponse = ``dont_know``, ``refused``, ``missing`` and every reason a codebook or file
   added (unless named in ``not_asked``); plus ``invalid`` when ``count_invalid`` (the
   default). With ``count_invalid=False`` an invalid answer counts as an answer (it is in the
@@ -38,8 +39,9 @@ from typing import TYPE_CHECKING, Any
 import numpy as np
 
 from wstats.decoding.columns import Dataset, DecodedColumn
-from wstats.decoding.reasons import VALID
+from wstats.decoding.reasons import NOT_ASKED, VALID
 from wstats.errors import EstimationError
+from wstats.estimation.display import as_html, as_text
 from wstats.estimation.reliability import NONRESPONSE_RULES
 from wstats.estimation.results import _plain
 
@@ -91,6 +93,15 @@ class NonresponseTable:
     design: Mapping[str, Any] = field(default_factory=dict)
     settings: Mapping[str, Any] = field(default_factory=dict)
 
+    def __repr__(self) -> str:
+        """Show the table as the terminal does, with its design line."""
+        return as_text(self, f"NonresponseTable({len(self.frame)} rows; variables "
+                             f"{sorted(set(self.frame['variable']))})")
+
+    def _repr_html_(self) -> str | None:
+        """Show the table as the ``--format html`` renderer does (notebooks)."""
+        return as_html(self)
+
     def showing_shares(self) -> NonresponseTable:
         """Return the same table set to display weighted shares instead of row counts."""
         import dataclasses
@@ -136,7 +147,7 @@ class NonresponseTable:
 
 
 def nonresponse_reasons(data: Dataset, count_invalid: bool = True,
-                        not_asked: Sequence[str] = ("skipped",)) -> tuple[str, ...]:
+                        not_asked: Sequence[str] = NOT_ASKED) -> tuple[str, ...]:
     """Return the reasons counted as item nonresponse for *data*'s vocabulary.
 
     Parameters
@@ -170,7 +181,7 @@ def nonresponse(
     level: float = 0.95,
     count_invalid: bool = True,
     sort_worst: bool = False,
-    not_asked: Sequence[str] = ("skipped",),
+    not_asked: Sequence[str] = NOT_ASKED,
     engine: str = "memory",
     codebook: Codebook | str | Path | None = None,
     scheduler: str | None = None,
@@ -189,7 +200,9 @@ def nonresponse(
     sort_worst : order the variables by their population nonresponse rate, highest first
         (domains stay under their variable).
     not_asked : reasons that mean the item was not asked (out of its universe): left out of
-        the denominator like ``skipped``, which is always among them.
+        the denominator like ``skipped``, which is always among them. Default: ``skipped``
+        and ``not_applicable``; a list given replaces it (``("skipped",)`` counts
+        ``not_applicable`` as nonresponse).
     engine : ``memory`` (default), or ``dask``: *data* are then the data files (a path, a
         glob, a folder or a list), read with *codebook* partition by partition on a Dask
         cluster (*scheduler*: a running one; None: a local cluster for the call).
@@ -225,7 +238,9 @@ def nonresponse(
 
         data = _read_files(data, design, [*variables, *by], where, codebook)
     names = _check_variables(data, variables)
-    skip = tuple(dict.fromkeys(("skipped", *not_asked)))
+    # a default reason the data never met is left out; a name the caller gave must exist
+    skip = tuple(r for r in dict.fromkeys(("skipped", *not_asked))
+                 if r in data.vocabulary or r not in NOT_ASKED)
     counted = nonresponse_reasons(data, count_invalid, skip)
     codes = np.array([data.vocabulary.code(r) for r in counted], dtype=np.int8)
     skip_codes = np.array([data.vocabulary.code(r) for r in skip], dtype=np.int8)

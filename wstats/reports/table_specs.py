@@ -37,7 +37,8 @@ _CELLS = ("mean", "total", "proportion", "quantile", "decimals", "se_decimals", 
 _INTERVALS = ("level", "proportion")
 _OUTPUT = ("files",)
 _SUFFIXES = {".md": "markdown", ".tex": "latex", ".html": "html", ".htm": "html",
-             ".csv": "csv", ".json": "json", ".xlsx": "xlsx", ".txt": "terminal"}
+             ".csv": "csv", ".json": "json", ".xlsx": "xlsx", ".txt": "terminal",
+             ".docx": "docx"}
 
 
 @dataclass(frozen=True)

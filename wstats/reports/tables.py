@@ -13,7 +13,9 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
+from wstats.decoding.reasons import NOT_ASKED
 from wstats.errors import AnalysisError, did_you_mean
+from wstats.estimation.display import as_html, as_text
 from wstats.reports.table_layout import TableColumn, _is_na, _label, _Layout, _records
 from wstats.reports.table_specs import STATISTICS, RowSpec, TableSpec, load_table_spec
 from wstats.reports.table_tests import table_methods_sentences, table_p_values
@@ -69,6 +71,14 @@ class PublicationTable:
     provenance: Mapping[str, Any]
     outputs: tuple[tuple[Path, str], ...] = ()
     spec: TableSpec | None = None
+
+    def __repr__(self) -> str:
+        """Show the table as the terminal does (methods paragraph below)."""
+        return as_text(self, f"PublicationTable({self.title!r}, {len(self.cells)} rows)")
+
+    def _repr_html_(self) -> str | None:
+        """Show the table as the ``--format html`` renderer does (notebooks)."""
+        return as_html(self)
 
 
 def build_table(
@@ -272,7 +282,7 @@ def _methods(spec: TableSpec, est: EstimateTable, codebook: Codebook | None) -> 
         reasons = {k: int(v) for k, v in dict(rec["reasons"] or {}).items()}
         for k, v in reasons.items():
             totals[k] = totals.get(k, 0) + v
-        nonresp = sum(v for k, v in reasons.items() if k not in ("skipped", "valid"))
+        nonresp = sum(v for k, v in reasons.items() if k not in (*NOT_ASKED, "valid"))
         asked = int(rec["n"]) + nonresp
         if asked:
             rates.append(nonresp / asked)
