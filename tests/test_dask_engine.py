@@ -249,8 +249,7 @@ def test_nonresponse_tables_on_dask(periods: Path, cluster: str) -> None:
     from wstats import nonresponse
 
     cb = periods / "tbchs_codebook.toml"
-    options: dict[str, Any] = {"by": ["dm_age5"], "codebook": cb, "sort_worst": True,
-                               "not_asked": ("skipped",)}
+    options: dict[str, Any] = {"by": ["dm_age5"], "codebook": cb, "sort_worst": True}
     for files in (periods / "period1.xpt", str(periods / "period*.xpt")):
         memory = nonresponse(files, DEMO, ["sl_hours", "hs_rate", "tc_now"], **options)
         dask = nonresponse(files, DEMO, ["sl_hours", "hs_rate", "tc_now"], engine="dask",

@@ -76,8 +76,7 @@ class Analysis:
         ``[design]`` lies underneath.
     jobs : every output-producing entry: estimates, nonresponse, bounds, table, methods,
         plot (the order they are computed and written in), each kind in file order.
-    files : every data file when ``data`` names several (pooled, one period each), else ().
-    engine : ``memory`` or ``dask`` (entries run on a Dask cluster).
+    files, engine : the pooled data files (``data`` names several; else ()); the engine.
     """
 
     source: Path

@@ -27,6 +27,7 @@ from wstats.estimation.influence import (
     mean_influence,
     proportion_influence,
 )
+from wstats.reports.compare_periods import period_pair_df
 from wstats.reports.compare_rows import (
     DIFFERENCE_COLUMNS,
     TEST_COLUMNS,
@@ -195,7 +196,8 @@ def compare(
     """
     plan = _plan(data, design, variables, by, reference, pairs, adjust_p, level, trend,
                  age_adjust, standard, categorical, where, reasons)
-    plan = replace(plan, pair_df=_period_df(plan, period_df))
+    plan = replace(plan, pair_df=period_pair_df(plan.by, plan.labels,
+                                                plan.eng.bound.summary(), period_df))
     diff_rows: list[dict[str, Any]] = []
     test_rows: list[dict[str, Any]] = []
     for name in variables:  # loop over variables only
@@ -218,29 +220,6 @@ def compare(
     return Comparison(RowTable(tuple(diff_rows), DIFFERENCE_COLUMNS),
                       RowTable(tuple(test_rows), TEST_COLUMNS), by, level,
                       plan.eng.bound.summary(), settings)
-
-
-def _period_df(plan: _Plan, rule: str) -> PairDf | None:
-    """Return the df of a change between two pooled periods (None: the design df).
-
-    ``sum`` keeps the design df (the files' df added up); ``satterthwaite`` gives each pair
-    (v_a+v_b)^2/(v_a^2/d_a + v_b^2/d_b) from the periods' own df (REFERENCES §16).
-    """
-    from wstats.design.pooling import FILE_COLUMN, PERIOD_DF_RULES, change_df
-
-    if rule not in PERIOD_DF_RULES:
-        raise UsageError(f"period df '{rule}' is not one of {', '.join(PERIOD_DF_RULES)}"
-                         f"{did_you_mean(rule, PERIOD_DF_RULES)}")
-    if rule == "sum":
-        return None
-    pool = plan.eng.bound.summary().get("pool") or {}
-    if plan.by != FILE_COLUMN or not pool.get("df_per_file"):
-        raise EstimationError("the Satterthwaite df of a change needs pooled files compared by "
-                              "_file, with strata per file and linearization; drop it or use "
-                              "by='_file'")
-    per_period = dict(zip(pool["periods"], pool["df_per_file"].values(), strict=True))
-    dfs = [float(per_period.get(lab, np.nan)) for lab in plan.labels]
-    return lambda a, b, va, vb: change_df([va, vb], [dfs[a], dfs[b]], "satterthwaite")
 
 
 def _plan(data: Dataset, design: Design, variables: Sequence[str], by: str,

@@ -276,7 +276,7 @@ def _on_dask(data: Dataset | str | Path | Sequence[str | Path], design: Design,
     frame = _assemble(parts.est, parts.sums, parts.reasons, by, parts.skip_codes)
     if sort_worst:
         frame = _worst_first(frame, names)
-    settings = {**_settings(parts.counted, skip, count_invalid, parts.est, design),
+    settings = {**_settings(parts.counted, parts.skip, count_invalid, parts.est, design),
                 "engine": "dask"}
     return NonresponseTable(frame, tuple(by), parts.reasons, parts.est.level,
                             parts.est.design, settings)

@@ -16,6 +16,7 @@ from typing import TYPE_CHECKING
 
 import numpy as np
 
+from wstats.decoding.reasons import NOT_ASKED
 from wstats.errors import EstimationError
 
 if TYPE_CHECKING:
@@ -51,21 +52,25 @@ def dask_parts(
         by=by, where=where, level=level, reliability=STANDARDS["none"], scheduler=scheduler,
         rates=rates)
     vocab = summed.vocabulary
+    # as in memory: a default reason the data never met is left out; a given one must exist
+    kept = tuple(r for r in skip if r in vocab or r not in NOT_ASKED)
+    counted = Rates(rates.items, kept, count_invalid).counted(vocab.names)
     return DaskParts(est, {v: _domain_reasons(summed, v) for v in names}, vocab.names,
-                     np.array([vocab.code(r) for r in skip], dtype=np.int8),
-                     rates.counted(vocab.names))
+                     np.array([vocab.code(r) for r in kept], dtype=np.int8), counted, kept)
 
 
 @dataclass(frozen=True, eq=False)
 class DaskParts:
     """The parts of a nonresponse table: the rate estimates, each item's reason sums by
-    domain (rows, weights), the reasons, the codes of the skip reasons, the counted ones."""
+    domain (rows, weights), the reasons, the codes of the skip reasons, the counted ones,
+    the skip reasons."""
 
     est: EstimateTable
     sums: dict[str, tuple[npt.NDArray[np.int64], npt.NDArray[np.float64]]]
     reasons: tuple[str, ...]
     skip_codes: npt.NDArray[np.int8]
     counted: tuple[str, ...]
+    skip: tuple[str, ...]
 
 
 def _domain_reasons(summed: Summed, item: str
