@@ -67,6 +67,8 @@ def _both(files: Any, design: Design, variables: list[str], scheduler: str,
                     scheduler=scheduler, **options)
     _same(memory, dask)
     assert dask.settings["engine"] == "dask"
+    assert memory.settings == {k: v for k, v in dask.settings.items() if k != "engine"}
+    assert dict(memory.design) == dict(dask.design)  # strata, PSUs, df, the pooling
 
 
 def test_demo_means_and_proportions_by_domain(periods: Path, cluster: str) -> None:

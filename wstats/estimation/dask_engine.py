@@ -120,13 +120,28 @@ def summed_estimate(
     summed = pieces_from_sums(total, bound, design, lam, by, level)
     pieces = _pieces(summed, total, req, variables, stats, numeric, cats, ambiguous,
                      proportion_ci, design, files, by)
-    summary = bound.summary()
-    summary["n_rows"] = int(total.main["rows"].sum())
+    summary = _summary(bound.summary(), total, req, design)
     df_rule = "replicates" if req.replicates else design.domain_df
     table = table_of(pieces, by, summed.by_levels, summed.vocabulary.names, level,
-                     proportion_ci, reliability, summary, {"df_rule": df_rule,
-                                                           "engine": "dask"})
+                     proportion_ci, reliability, summary,
+                     {"df_rule": df_rule, "engine": "dask"}, where)
     return table, summed
+
+
+def _summary(summary: dict[str, Any], total: PartSums, req: Request, design: Design
+             ) -> dict[str, Any]:
+    """Return the design summary as binding the rows would give it (the groups' is of groups)."""
+    frame = total.main
+    out = {**summary, "n_rows": int(frame["rows"].sum())}
+    if design.psu is None:  # every row its own PSU
+        per_stratum = frame.groupby(["_file", "_s"] if summary.get("pool") and
+                                    not design.shared_psus else ["_s"])["rows"].sum()
+        out.update(n_psu=out["n_rows"], singleton_strata=int((per_stratum == 1).sum()))
+    if req.replicates:
+        out.update(variance_method="replicates", replicate_method=design.replicate_method,
+                   n_replicates=len(req.replicates),
+                   replicate_center=design.replicate_center)
+    return out
 
 
 def _warn_pooling(total: PartSums, files: PeriodFiles) -> None:
