@@ -145,12 +145,22 @@ def test_pooled_replicate_files_in_blocks(tmp_path: Path, cluster: str) -> None:
           ratios=[("y", "g")])
 
 
+def test_quantiles_exactly_with_woodruff_intervals(periods: Path, cluster: str) -> None:
+    # exact lower quantiles and Woodruff (1952) intervals from the (group, value) sums
+    cb = periods / "tbchs_codebook.toml"
+    _both(periods / "period1.xpt", DEMO, ["sl_hours", "bd_bmi", "dm_age"], cluster, cb,
+          statistics="quantile", quantiles=[0.25, 0.5, 0.9], by=["dm_age5"])
+    _both(str(periods / "period*.xpt"), DEMO, ["sl_hours"], cluster, cb,
+          statistics=["mean", "quantile"], by=["_file"], where="dm_sex == 2")
+
+
 @pytest.mark.parametrize(("options", "message"), [
-    ({"statistics": "quantile"}, "statistic 'quantile' is not available on the Dask engine "
-     r"\(an exact quantile needs every value of a domain sorted together\)"),
     ({"design": Design("wt_final", strata="ds_strat", psu="ds_psu", fpc="ds_strat")},
      "the Dask engine does not support fpc yet"),
     ({"design": Design("wt_final")}, "a linearization design without a PSU column"),
+    ({"design": Design("wt_final", replicates=["wt_final", "wt_base"],
+                       replicate_method="jackknife"), "statistics": "quantile"},
+     "quantiles of a replicate design are not available on the Dask engine"),
 ])
 def test_what_the_engine_cannot_do_is_refused(periods: Path, options: dict[str, Any],
                                               message: str) -> None:

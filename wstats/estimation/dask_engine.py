@@ -6,12 +6,13 @@ are added pairwise on the workers, and the client makes the estimates from the t
 (:mod:`wstats.estimation.from_sums`). Rows never travel: memory per worker follows the
 partition, not the data.
 
-Available: means, totals, proportions and ratios, overall and by domains, ``where``, Taylor
-linearization (strata, PSUs; singleton treatments) and replicate weights, pooled files.
+Available: means, totals, proportions, ratios and quantiles (exact, with Woodruff
+intervals; :mod:`wstats.estimation.summed_quantiles`), overall and by domains, ``where``,
+Taylor linearization (strata, PSUs; singleton treatments) and replicate weights, pooled files.
 Item nonresponse tables run here too (:mod:`wstats.reports.nonresponse_dask`).
-Refused with a message naming what is missing: quantiles (an exact quantile needs
-every value of a domain sorted together), FPC, ``drop_incomplete``, domain df, jackknife-strata
-without given factors, a linearization design without PSUs.
+Refused with a message naming what is missing: quantiles of a replicate design, FPC,
+``drop_incomplete``, domain df, jackknife-strata without given factors, a linearization design
+without PSUs, margins and age adjustment.
 """
 
 from __future__ import annotations
@@ -57,13 +58,13 @@ def estimate_dask(
     data: str | Path | Sequence[str | Path], design: Design, variables: Sequence[str], *,
     codebook: Codebook | str | Path | None = None,
     statistics: str | Sequence[str] | Mapping[str, str | Sequence[str]] | None = None,
-    ratios: Sequence[tuple[str, str]] = (),
+    ratios: Sequence[tuple[str, str]] = (), quantiles: Sequence[float] = (0.5,),
     by: Sequence[str] = (), where: str | None = None, categorical: Sequence[str] = (),
     level: float = 0.95, proportion_ci: str = "korn-graubard",
     reliability: ReliabilityStandard | None = None, scheduler: str | None = None,
     encoding: str = "utf-8", partition_rows: int = PARTITION_ROWS, workers: int | None = None,
 ) -> EstimateTable:
-    """Estimate means, totals, proportions and ratios on a Dask cluster (module docstring).
+    """Estimate means, totals, proportions, ratios, quantiles on a Dask cluster (see above).
 
     Parameters are those of :func:`wstats.estimate` with the data given as files (a path,
     a glob, a folder or a list; several files are pooled), plus *codebook*, *scheduler* (the
@@ -73,7 +74,8 @@ def estimate_dask(
     """
     return summed_estimate(
         data, design, variables, codebook=codebook, statistics=statistics, ratios=ratios,
-        by=by, where=where, categorical=categorical, level=level, proportion_ci=proportion_ci,
+        quantiles=quantiles, by=by, where=where, categorical=categorical, level=level,
+        proportion_ci=proportion_ci,
         reliability=reliability, scheduler=scheduler, encoding=encoding,
         partition_rows=partition_rows, workers=workers)[0]
 
@@ -82,7 +84,8 @@ def summed_estimate(
     data: str | Path | Sequence[str | Path], design: Design, variables: Sequence[str], *,
     codebook: Codebook | str | Path | None = None,
     statistics: str | Sequence[str] | Mapping[str, str | Sequence[str]] | None = None,
-    ratios: Sequence[tuple[str, str]] = (), by: Sequence[str] = (), where: str | None = None,
+    ratios: Sequence[tuple[str, str]] = (), quantiles: Sequence[float] = (0.5,),
+    by: Sequence[str] = (), where: str | None = None,
     categorical: Sequence[str] = (), level: float = 0.95, proportion_ci: str = "korn-graubard",
     reliability: ReliabilityStandard | None = None, scheduler: str | None = None,
     encoding: str = "utf-8", partition_rows: int = PARTITION_ROWS, workers: int | None = None,
@@ -97,7 +100,7 @@ def summed_estimate(
     from wstats.estimation.assemble import check_options, table_of
     from wstats.estimation.summed_design import check_summable, summed_design
 
-    stats = check_options(statistics, level, proportion_ci, ())
+    stats = check_options(statistics, level, proportion_ci, quantiles)
     every = [x for v in stats.values() for x in v] if isinstance(stats, dict) else stats or []
     check_summable(design, every)
     if "ratio" in every and not ratios:
@@ -119,7 +122,7 @@ def summed_estimate(
 
     summed = pieces_from_sums(total, bound, design, lam, by, level)
     pieces = _pieces(summed, total, req, variables, stats, numeric, cats, ambiguous,
-                     proportion_ci, design, files, by)
+                     proportion_ci, design, files, by, quantiles)
     summary = _summary(bound.summary(), total, req, design)
     df_rule = "replicates" if req.replicates else design.domain_df
     table = table_of(pieces, by, summed.by_levels, summed.vocabulary.names, level,
@@ -203,10 +206,11 @@ def _request(paths: list[str], design: Design, variables: Sequence[str],
     reps = () if design.replicates is None else tuple(
         resolve_replicate_columns(design.replicates, in_file, paths[0]))
     columns = [*own, *extra, *design.columns(in_file, paths[0])]
+    asked = [v for v in variables if "quantile" in (_given(stats, v) or [])]
     req = Request(design.weight, design.strata, design.psu, reps, tuple(by), where,
                   tuple(numeric), tuple(cats),
                   tuple(c for c in dict.fromkeys(columns) if c != FILE_COLUMN), cb, encoding,
-                  tuple((str(a), str(b)) for a, b in ratios), rates)
+                  tuple((str(a), str(b)) for a, b in ratios), rates, tuple(asked))
     return req, numeric, cats, ambiguous
 
 
@@ -343,7 +347,7 @@ def _given(stats: Statistics, name: str) -> list[str] | None:
 def _pieces(s: Summed, total: PartSums, req: Request, variables: Sequence[str],
             stats: Statistics, numeric: list[str], cats: list[str],
             ambiguous: list[str], ci: str, design: Design, files: PeriodFiles | None,
-            by: Sequence[str]) -> list[Any]:
+            by: Sequence[str], probs: Sequence[float] = (0.5,)) -> list[Any]:
     """Return the Pieces of every variable and statistic, in the order asked."""
     from wstats.estimation.from_sums import mean_or_total, proportion, ratio
     from wstats.estimation.partition_sums import ratio_key
@@ -365,6 +369,12 @@ def _pieces(s: Summed, total: PartSums, req: Request, variables: Sequence[str],
                 j = order.index(name)
                 var = reps.mean_or_total(j, stat) if reps else None
                 pieces.append(mean_or_total(s, name, j, stat, var))
+            elif stat == "quantile":
+                from wstats.estimation.summed_quantiles import quantile_piece
+
+                j = len(order) + req.quantiles.index(name)
+                pieces.extend(quantile_piece(s, name, j, total.levels[j], float(p))
+                              for p in probs)
             elif stat == "proportion":
                 j = order.index(name, len(req.numeric))
                 values, labels, matrix, _ = categorical_parts(s, total, name, j)

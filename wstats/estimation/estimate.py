@@ -143,6 +143,7 @@ def estimate(
             raise EstimationError("margins and age adjustment are not available on the Dask "
                                   "engine yet; run them with engine='memory'")
         return estimate_dask(data, design, variables, codebook=codebook, ratios=ratios,
+                             quantiles=quantiles,
                              statistics=statistics, by=by, where=where,
                              categorical=categorical, level=level, proportion_ci=proportion_ci,
                              reliability=reliability, scheduler=scheduler)

@@ -177,18 +177,24 @@ def ratio(s: Summed, name: str, key: str, replicate: Array | None) -> Piece:
     return _piece(name, "ratio", Context(ws, {}, s.vocabulary, s.level), m, est, var, v_srs)
 
 
+def group_rows(s: Summed, levels: pd.DataFrame) -> npt.NDArray[np.int64]:
+    """Return, for each row of a (group, value) sums frame, its group's row in ``s.frame``."""
+    keys = [c for c in s.frame.columns if c in KEYS or (c[0] == "b" and c[1:].isdigit())]
+    index = s.frame[keys].reset_index().rename(columns={"index": "_row"})
+    hit = levels[keys].merge(index, on=keys, how="left")  # a left merge keeps the order
+    return hit["_row"].to_numpy(np.int64)
+
+
 def level_matrix(s: Summed, levels: pd.DataFrame, values: list[Any], col: DecodedColumn
                  ) -> Array:
     """Return sums of w by group row and level (groups x levels) from the level sums."""
-    keys = [c for c in s.frame.columns if c in KEYS or (c[0] == "b" and c[1:].isdigit())]
-    index = s.frame[keys].reset_index().rename(columns={"index": "_row"})
-    hit = levels.merge(index, on=keys, how="left")
-    vals = hit["value"].to_numpy()
+    row = group_rows(s, levels)
+    vals = levels["value"].to_numpy()
     probe = col.replace(values=np.asarray(vals, dtype=col.values.dtype),
                         missing_codes=np.zeros(0 if col.numeric else len(vals), np.int8))
     lv = level_index(probe, values, np.ones(len(vals), dtype=bool))
     out = np.zeros((len(s.frame), len(values)))
-    np.add.at(out, (hit["_row"].to_numpy(np.int64), lv), hit["w"].to_numpy(float))
+    np.add.at(out, (row, lv), levels["w"].to_numpy(float))
     return out * s.lam[:, None]
 
 

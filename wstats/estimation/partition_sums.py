@@ -68,6 +68,7 @@ class Request:
     encoding: str = "utf-8"
     ratios: tuple[tuple[str, str], ...] = ()
     rates: Rates | None = None
+    quantiles: tuple[str, ...] = ()
 
 
 @dataclass
@@ -112,7 +113,7 @@ def partition_sums(task: Task, req: Request) -> PartSums:
                 False, req.encoding)
     indicators = {i for _, i in req.rates.items} if req.rates else set()
     wanted = [n for n in dict.fromkeys((*req.by, *req.numeric, *req.categorical,
-                                        *(v for r in req.ratios for v in r),
+                                        *(v for r in req.ratios for v in r), *req.quantiles,
                                         *(v for v, _ in (req.rates.items if req.rates else ()))))
               if n != FILE_COLUMN and n not in indicators]
     own = [n for n in wanted if n in data.columns]  # the others: not_in_file here
@@ -126,14 +127,15 @@ def partition_sums(task: Task, req: Request) -> PartSums:
     w = _weights(data, req.weight, task.path)
     groups = _Groups(keys, names)
     groups.add({"rows": np.ones(data.n_rows), "zero_w": (w == 0).astype(float), "w_all": w})
-    for j, name in enumerate((*req.numeric, *req.categorical)):  # loop over variables
-        groups.add(_variable_columns(data, name, j, w, name in req.numeric))
+    valued = (*req.numeric, *req.categorical, *req.quantiles)
+    for j, name in enumerate(valued):  # loop over variables
+        groups.add(_variable_columns(data, name, j, w, j < len(req.numeric)))
     for k, (num, den) in enumerate(req.ratios):
         groups.add(_ratio_columns(data, num, den, ratio_key(k), w))
     if req.rates is not None:
         groups.add(reason_sums(data, req.rates, w))
-    levels = {j: _level_sums(data, name, groups, w)
-              for j, name in enumerate(req.categorical, start=len(req.numeric))}
+    levels = {j: _level_sums(data, name, groups, w)  # categories, and values of quantiles
+              for j, name in enumerate(valued) if j >= len(req.numeric)}
     reps = _replicate_sums(data, req, keys, names) if req.replicates else None
     labels = {n: dict(data.columns[n].value_labels) for n in own}
     kinds = {n: (data.columns[n].kind, not data.columns[n].numeric) for n in own}
