@@ -108,7 +108,7 @@ def estimate(
     standard : the standard population for *age_adjust*: a built-in name (``us2000-11``,
         ``us2000-adults18``, ``us2000-adults20``), a TOML standard file, or a ``Standard``.
     engine : ``memory`` (default) or ``dask``: the data files processed partition by
-        partition on a Dask cluster (means, totals, proportions and ratios; see
+        partition on a Dask cluster (means, totals, proportions, ratios, quantiles; see
         :mod:`wstats.estimation.dask_engine`); needs ``pip install 'wstats[dask]'``.
     codebook : the codebook for data given as files.
     scheduler : engine ``dask``: address of a running scheduler (None: a local cluster that
