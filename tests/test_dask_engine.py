@@ -273,3 +273,9 @@ def test_a_condition_on_the_file(periods: Path, cluster: str) -> None:
     cb = periods / "tbchs_codebook.toml"
     _both(str(periods / "period*.xpt"), DEMO, ["sl_hours"], cluster, cb, where="_file == 2",
           by=["dm_sex"])
+
+
+def test_margins_of_crossed_domains(periods: Path, cluster: str) -> None:
+    cb = periods / "tbchs_codebook.toml"
+    _both(periods / "period1.xpt", DEMO, ["sl_hours", "hs_rate"], cluster, cb,
+          by=["dm_sex", "dm_age5"], margins=True)

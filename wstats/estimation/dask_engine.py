@@ -12,7 +12,7 @@ Taylor linearization (strata, PSUs; singleton treatments) and replicate weights,
 Item nonresponse tables run here too (:mod:`wstats.reports.nonresponse_dask`).
 Refused with a message naming what is missing: quantiles of a replicate design, FPC,
 ``drop_incomplete``, domain df, jackknife-strata without given factors, a linearization design
-without PSUs, margins and age adjustment.
+without PSUs, age adjustment.
 """
 
 from __future__ import annotations

@@ -139,14 +139,24 @@ def estimate(
         if isinstance(data, Dataset):
             raise EstimationError("engine 'dask' reads the data files itself; give their paths "
                                   "(and codebook=...), not a Dataset")
-        if margins or age_adjust is not None:
-            raise EstimationError("margins and age adjustment are not available on the Dask "
-                                  "engine yet; run them with engine='memory'")
-        return estimate_dask(data, design, variables, codebook=codebook, ratios=ratios,
-                             quantiles=quantiles,
-                             statistics=statistics, by=by, where=where,
-                             categorical=categorical, level=level, proportion_ci=proportion_ci,
-                             reliability=reliability, scheduler=scheduler)
+        if age_adjust is not None:
+            raise EstimationError("age adjustment is not available on the Dask engine yet; "
+                                  "run it with engine='memory'")
+
+        files = data  # the workers read the files
+
+        def on_dask(domains: Sequence[str]) -> EstimateTable:
+            return estimate_dask(files, design, variables, codebook=codebook, ratios=ratios,
+                                 quantiles=quantiles, statistics=statistics, by=domains,
+                                 where=where, categorical=categorical, level=level,
+                                 proportion_ci=proportion_ci, reliability=reliability,
+                                 scheduler=scheduler)
+
+        if not margins or len(by) < 2:
+            return on_dask(by)
+        from wstats.estimation.margins import with_margins
+
+        return with_margins(on_dask(by), [on_dask([b]) for b in by])
     if not isinstance(data, Dataset):
         data = _read_files(data, design, [*variables, *by, *categorical,
                                           *(v for r in ratios for v in r),
