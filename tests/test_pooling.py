@@ -423,3 +423,17 @@ def test_satterthwaite_df_of_a_change_between_periods() -> None:
     with pytest.raises(EstimationError, match="Satterthwaite df of a change needs pooled files "
                        "compared by _file"):
         compare(Dataset.from_arrays(a), DESIGN, ["y"], by="S", period_df="satterthwaite")
+
+
+def test_a_partitioned_folder_names_its_periods_by_their_folders(tmp_path: Any) -> None:
+    import pandas as pd
+
+    from wstats import read
+
+    for year, seed in ((2020, 80), (2021, 81)):
+        (tmp_path / f"year={year}").mkdir()
+        pd.DataFrame(_period(seed)).to_parquet(tmp_path / f"year={year}" / "part-0.parquet")
+    data = read(tmp_path, ["y", "W", "S", "P", "_file"])
+    assert data.metadata["pool"].labels == ("year=2020/part-0", "year=2021/part-0")
+    t = estimate(data, DESIGN, ["y"], by=["_file"])
+    assert t.frame["_file"].tolist() == [None, "year=2020/part-0", "year=2021/part-0"]

@@ -29,7 +29,7 @@ if TYPE_CHECKING:
     CodebookArg = Codebook | str | Path | None
 
 __all__ = ["FILE_COLUMN", "NOT_IN_FILE", "PeriodFiles", "expand_paths", "is_several",
-           "stack_datasets"]
+           "period_stems", "stack_datasets"]
 
 #: the by-variable every pooled record carries: the file (period) it came from
 FILE_COLUMN = "_file"
@@ -114,7 +114,7 @@ def stack_datasets(parts: Sequence[Dataset], paths: Sequence[str],
     *wanted* are the variables asked for (None: every variable of any file); one that a
     file lacks gets the reason ``not_in_file`` on that file's rows.
     """
-    stems = _distinct([Path(p).stem for p in paths], paths)
+    stems = period_stems(paths)
     shown = _distinct([Path(p).name for p in paths], paths)  # messages name the files
     names = list(wanted) if wanted is not None else list(
         dict.fromkeys(n for d in parts for n in d.columns))
@@ -131,6 +131,26 @@ def stack_datasets(parts: Sequence[Dataset], paths: Sequence[str],
     files = PeriodFiles(tuple(paths), tuple(stems),
                         tuple(labels[float(k + 1)] for k in range(len(parts))), tuple(rows))
     return Dataset(cols, vocab, int(sum(rows)), " + ".join(paths), _metadata(parts, files))
+
+
+def period_stems(paths: Sequence[str]) -> list[str]:
+    """Return each file's period name: its stem, or, when two stems repeat (a partitioned
+    folder such as ``year=2021/part-0.parquet``), its path below the folders they share.
+
+    Examples
+    --------
+    >>> period_stems(["d/year=2020/part-0.parquet", "d/year=2021/part-0.parquet"])
+    ['year=2020/part-0', 'year=2021/part-0']
+    """
+    import os
+
+    stems = [Path(p).stem for p in paths]
+    if len(set(stems)) == len(stems):
+        return stems
+    common = os.path.commonpath([str(Path(p).parent) for p in paths]) if paths else ""
+    inner = [Path(p).with_suffix("").relative_to(common).as_posix() if common else
+             Path(p).with_suffix("").as_posix() for p in paths]
+    return inner if len(set(inner)) == len(inner) else list(paths)
 
 
 def _distinct(names: list[str], paths: Sequence[str]) -> list[str]:

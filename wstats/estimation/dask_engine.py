@@ -24,7 +24,13 @@ from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
-from wstats.decoding.stacking import FILE_COLUMN, PeriodFiles, expand_paths, is_several
+from wstats.decoding.stacking import (
+    FILE_COLUMN,
+    PeriodFiles,
+    expand_paths,
+    is_several,
+    period_stems,
+)
 from wstats.errors import EngineError
 
 if TYPE_CHECKING:
@@ -173,9 +179,7 @@ def _codebook(codebook: Codebook | str | Path | None) -> Codebook | None:
 
 def _period_files(paths: list[str], cb: Codebook | None) -> PeriodFiles:
     """Return the pooled files (rows are counted from the sums later)."""
-    stems = [Path(p).stem for p in paths]
-    if len(set(stems)) != len(stems):
-        stems = list(paths)
+    stems = period_stems(paths)
     labels = dict((cb.labels_for(FILE_COLUMN) or {}) if cb else {})
     shown = [labels.get(float(k + 1), s) for k, s in enumerate(stems)]
     return PeriodFiles(tuple(paths), tuple(stems), tuple(shown), tuple(0 for _ in paths))
