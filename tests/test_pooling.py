@@ -437,3 +437,15 @@ def test_a_partitioned_folder_names_its_periods_by_their_folders(tmp_path: Any) 
     assert data.metadata["pool"].labels == ("year=2020/part-0", "year=2021/part-0")
     t = estimate(data, DESIGN, ["y"], by=["_file"])
     assert t.frame["_file"].tolist() == [None, "year=2020/part-0", "year=2021/part-0"]
+
+
+def test_the_methods_paragraph_says_how_files_were_pooled() -> None:
+    from wstats.reports.methods import methods_paragraph
+
+    t = estimate(_pooled(_period(90), _period(91)), Design("W", strata="S", psu="P",
+                                                           pool="rows"), ["y"])
+    text = methods_paragraph(t.design, t.settings, {}, None, "period*.csv", None)
+    assert ("Records of 2 files were pooled; each file's weights were multiplied by a share "
+            "proportional to its rows (period1 0.5, period2 0.5), so totals describe an "
+            "average period, not the sum of the periods; strata and PSUs were kept distinct "
+            "per file, so the files count as independent samples.") in text
