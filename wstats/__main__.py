@@ -6,4 +6,5 @@ import sys
 
 from wstats.cli.main import main
 
-sys.exit(main())
+if __name__ == "__main__":  # not when a Dask worker process re-imports the main module
+    sys.exit(main())

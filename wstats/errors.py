@@ -17,6 +17,7 @@ Anything else escaping is a bug in wstats.
     │   └── SingletonStratumError            strata with one PSU under ``singleton = "fail"``
     ├── EstimationError                      an estimate was asked for that cannot be computed
     ├── AnalysisError                        an analysis or table spec file is wrong
+    ├── EngineError                          the Dask engine is missing or unreachable
     └── OutputError                  exit 3  an output cannot be written (exists, no folder, full)
 
 Messages name the thing (file, variable, line), what was found, and how to fix it.
@@ -32,6 +33,7 @@ __all__ = [
     "CodebookError",
     "ColumnError",
     "DesignError",
+    "EngineError",
     "EstimationError",
     "ExpressionError",
     "OutputError",
@@ -96,6 +98,10 @@ class EstimationError(WstatsError):
 
 class AnalysisError(WstatsError):
     """An analysis file or table spec is wrong (missing key, unknown format, bad path)."""
+
+
+class EngineError(WstatsError):
+    """The Dask engine cannot run: dask is not installed or the scheduler cannot be reached."""
 
 
 class OutputError(WstatsError):

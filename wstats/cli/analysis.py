@@ -67,7 +67,7 @@ def execute_analysis(path: str | Path, overwrite: bool = False, progress: bool =
     _check_plot_support(analysis)
     codebook = _codebook(analysis)
     design = _design(analysis, codebook)
-    data = _read(analysis, codebook, design, progress)
+    data = _read(analysis, codebook, design, progress) if analysis.engine == "memory" else None
     runner = _Runner(analysis, codebook, design, data)
     rendered = runner.render_all()
     _check_outputs(analysis, overwrite, [o for o, _ in rendered])
@@ -97,12 +97,20 @@ def _check_outputs(analysis: Analysis, overwrite: bool,
 
 def _inputs(analysis: Analysis) -> list[Path]:
     """Return every file the analysis reads: itself, data, codebook, table specs and theirs."""
-    files = [analysis.source, analysis.data, *([analysis.codebook] if analysis.codebook else [])]
+    files = [analysis.source, *analysis.data_files,
+             *([analysis.codebook] if analysis.codebook else [])]
     for job in analysis.jobs:
         spec = job.options.get("spec")
         if spec is not None:
-            files += [spec.source, spec.data, *([spec.codebook] if spec.codebook else [])]
+            files += [spec.source, *(spec.files or (spec.data,)),
+                      *([spec.codebook] if spec.codebook else [])]
     return files
+
+
+def _same_files(spec: Any, analysis: Analysis) -> bool:
+    """Tell whether a table spec reads the same data files as the analysis."""
+    mine = [Path(p).resolve() for p in analysis.data_files]
+    return [Path(p).resolve() for p in (spec.files or (spec.data,))] == mine
 
 
 def _check_plot_support(analysis: Analysis) -> None:
@@ -151,8 +159,7 @@ def _needed(analysis: Analysis, design: Design, known: Sequence[str]
         for num, den in opts.get("ratios", ()):
             wanted.setdefault(num, f"{job.key} ratios")
             wanted.setdefault(den, f"{job.key} ratios")
-        same_data = job.kind == "table" and \
-            Path(opts["spec"].data).resolve() == Path(analysis.data).resolve()
+        same_data = job.kind == "table" and _same_files(opts["spec"], analysis)
         if same_data:
             from wstats.reports.tables import table_variables
 
@@ -173,7 +180,8 @@ def _read(analysis: Analysis, codebook: Codebook | None, design: Design,
     from wstats.decoding.load import read
     from wstats.readers.dispatch import file_columns
 
-    known = [*file_columns(str(analysis.data)), *(codebook.derived if codebook else ())]
+    known = [*dict.fromkeys(c for f in analysis.data_files for c in file_columns(str(f))),
+             *(codebook.derived if codebook else ()), *(["_file"] if analysis.files else [])]
     names, asked_by = _needed(analysis, design, known)
     known_set = set(known)
     for name in names:
@@ -182,7 +190,8 @@ def _read(analysis: Analysis, codebook: Codebook | None, design: Design,
                 f"{analysis.source}: {asked_by[name]}: variable '{name}' is neither a column of "
                 f"{analysis.data.name} nor a derived variable of the codebook"
                 f"{did_you_mean(name, known)}")
-    return read(analysis.data, columns=names, codebook=codebook, progress=progress)
+    data = list(analysis.files) if analysis.files else analysis.data
+    return read(data, columns=names, codebook=codebook, progress=progress)
 
 
 # ------------------------------------------------------------------ computing and rendering
@@ -191,9 +200,21 @@ class _Runner:
     """Computes every job on the one dataset and renders its outputs to bytes."""
 
     def __init__(self, analysis: Analysis, codebook: Codebook | None, design: Design,
-                 data: Dataset) -> None:
-        self.a, self.codebook, self.design, self.data = analysis, codebook, design, data
+                 data: Dataset | None) -> None:
+        self.a, self.codebook, self.design, self._data = analysis, codebook, design, data
         self.results: dict[tuple[str, str], Any] = {}
+
+    def engine_data(self) -> Any:
+        """Return the data read once, or the files for the Dask engine (its workers read)."""
+        if self.a.engine != "dask":
+            return self.data
+        return list(self.a.data_files) if len(self.a.data_files) > 1 else self.a.data
+
+    @property
+    def data(self) -> Dataset:
+        """The data read once (engine ``memory``; engine ``dask`` runs estimates only)."""
+        assert self._data is not None, "the Dask engine reads no data here"
+        return self._data
 
     def render_all(self) -> list[tuple[Output, bytes]]:
         """Return (output, bytes) for every output of every job, in file order."""
@@ -217,7 +238,7 @@ class _Runner:
         """Return the provenance record of an output of this analysis."""
         from wstats.reports.provenance import provenance
 
-        return provenance([self.a.data, self.a.source], self.a.codebook, design_summary,
+        return provenance([*self.a.data_files, self.a.source], self.a.codebook, design_summary,
                           f"wstats run {self.a.source.name}")
 
     def registry_render(self, registry: Mapping[str, Callable[..., Any]], obj: Any,
@@ -234,8 +255,11 @@ class _Runner:
         from wstats.render import ESTIMATE_RENDERERS
 
         o = job.options
+        data = self.engine_data()
+        dask = self.a.engine == "dask"
         table = estimate(
-            self.data, self.design, o["variables"], statistics=o.get("statistics") or None,
+            data, self.design, o["variables"], engine=self.a.engine,
+            codebook=self.codebook if dask else None, statistics=o.get("statistics") or None,
             by=o["by"], where=o.get("where"), categorical=o.get("categorical", ()),
             ratios=[tuple(r) for r in o.get("ratios", ())],
             quantiles=o.get("quantiles", (0.5,)), level=o["level"],
@@ -250,10 +274,12 @@ class _Runner:
         from wstats.reports.nonresponse import nonresponse
 
         o = job.options
-        table = nonresponse(self.data, self.design, o["variables"], by=o["by"],
+        dask = self.a.engine == "dask"
+        table = nonresponse(self.engine_data(), self.design, o["variables"], by=o["by"],
                             where=o.get("where"), level=o["level"],
                             count_invalid=o["count_invalid"], sort_worst=o["sort_worst"],
-                            not_asked=o["not_asked"])
+                            not_asked=o["not_asked"], engine=self.a.engine,
+                            codebook=self.codebook if dask else None)
         self.results[("nonresponse", job.name)] = table
         return self.registry_render(NONRESPONSE_RENDERERS, table, job)
 
@@ -289,7 +315,7 @@ class _Runner:
 
         spec = job.options["spec"]
         kwargs: dict[str, Any] = {}
-        if Path(spec.data).resolve() == Path(self.a.data).resolve():
+        if _same_files(spec, self.a):
             kwargs["data"] = self.data  # the one read serves the table too
         built = build_table(spec, **kwargs)
         self.results[("table", job.name)] = built

@@ -15,12 +15,13 @@ from typing import Any
 
 from wstats.decoding.reasons import NOT_ASKED
 from wstats.errors import AnalysisError, did_you_mean
+from wstats.reports.spec_inputs import check_engine
 from wstats.reports.table_specs import _Spec
 
 __all__ = ["JOB_KEYS", "Analysis", "Job", "Output", "load_analysis"]
 
 _TOP = ("data", "codebook", "title", "design", "defaults", "estimates", "nonresponse",
-        "bounds", "compare", "table", "methods", "plot")
+        "bounds", "compare", "table", "methods", "plot", "engine")
 _OUT = ("output", "format")
 _DOMAIN = ("variables", "by", "where", "level")
 #: table name -> allowed keys of each entry
@@ -69,12 +70,13 @@ class Analysis:
     Attributes
     ----------
     source : the analysis file.
-    data : the survey data file.
+    data : the survey data file (the first of several).
     codebook : the codebook file, or None.
     design : design settings given in the file (``Design`` field -> value); the codebook's
         ``[design]`` lies underneath.
     jobs : every output-producing entry: estimates, nonresponse, bounds, table, methods,
         plot (the order they are computed and written in), each kind in file order.
+    files, engine : the pooled data files (``data`` names several; else ()); the engine.
     """
 
     source: Path
@@ -82,6 +84,12 @@ class Analysis:
     codebook: Path | None
     design: Mapping[str, Any]
     jobs: tuple[Job, ...] = field(default_factory=tuple)
+    files: tuple[Path, ...] = ()
+    engine: str = "memory"
+
+    @property
+    def data_files(self) -> tuple[Path, ...]:  # every data file: one, or the pooled files
+        return self.files or (self.data,)
 
     def outputs(self) -> list[Output]:
         """Return every output of every job, in order."""
@@ -128,6 +136,8 @@ class _Parser(_Spec):
     The generic checks (``fail``, ``keys``, ``text``, ``flag``, ``choice``) are the table-spec
     checker's, so both files report mistakes in the same words.
     """
+
+    RELATIVE_TO = "the analysis file's folder"
 
     def __init__(self, source: Path, doc: Mapping[str, Any]) -> None:
         self.source, self.doc, self.base = source, doc, source.parent
@@ -189,9 +199,10 @@ class _Parser(_Spec):
                                 "entries; give each its own name")
             seen.add((job.kind, job.name))
             self.check_source(job, jobs)
-        return Analysis(self.source, self.input_path("data"),
+        return Analysis(self.source, self.data_files()[0],
                         self.input_path("codebook") if "codebook" in self.doc else None,
-                        self.subtable(self.doc.get("design", {}), "design"), tuple(jobs))
+                        self.subtable(self.doc.get("design", {}), "design"), tuple(jobs),
+                        self.pooled_files(), check_engine(self, [(j.key, j.kind) for j in jobs]))
 
     def check_source(self, job: Job, jobs: Sequence[Job]) -> None:
         """Check that a [methods] or [[plot]] entry names an entry that exists."""

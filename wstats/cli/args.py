@@ -14,11 +14,9 @@ from typing import Any
 from wstats.errors import UsageError
 
 __all__ = [
-    "OUTPUT_FORMATS", "Parser", "add_bounds_args", "add_codebook_args", "add_columns_args",
-    "add_compare_args", "add_convert_args", "add_demo_args", "add_estimate_args",
-    "add_look_args",
-    "add_nonresponse_args", "add_run_args", "add_table_args", "design_from", "format_for",
-    "needed_columns", "one_line", "parse_rows", "ratio_pair", "split_list",
+    "OUTPUT_FORMATS", "Parser", "add_bounds_args", "add_compare_args", "add_estimate_args",
+    "add_nonresponse_args", "data_paths", "design_from", "format_for", "needed_columns",
+    "one_line", "parse_rows", "ratio_pair", "split_list",
 ]
 
 OUTPUT_FORMATS = ("table", "csv", "json", "markdown", "latex", "html")
@@ -53,11 +51,18 @@ def _add_design_options(p: argparse.ArgumentParser) -> None:
                    help="drop (and report) rows with a missing weight, stratum or PSU")
     g.add_argument("--domain-df", choices=("design", "domain"), default="design",
                    help="degrees of freedom: whole design (default) or domain strata/PSUs")
+    g.add_argument("--pool", default="equal", metavar="RULE",
+                   help="several files: rescale each file's weights by equal (1/K, default), "
+                        "rows (its share of the rows) or factors F1,F2,... summing to 1")
+    g.add_argument("--shared-psus", action="store_true",
+                   help="several files: they reuse the same strata and PSUs (same codes, same "
+                        "clusters); default: strata are distinct per file")
 
 
 def _add_data_options(p: argparse.ArgumentParser) -> None:
     p.add_argument("data", metavar="DATA", help="survey file (.xpt .sas7bdat .sav .zsav .por "
-                   ".dta .csv .tsv .parquet)")
+                   ".dta .csv .tsv .parquet); several files pool as one analysis: a quoted "
+                   "glob ('period*.xpt'), a folder, or more paths before the variables")
     p.add_argument("--codebook", metavar="FILE", help="codebook TOML applied before estimation")
     p.add_argument("--rows", metavar="START:STOP", help="read only this row range (first look)")
     p.add_argument("--encoding", default="utf-8", metavar="NAME",
@@ -110,6 +115,7 @@ def format_for(args: argparse.Namespace) -> str:
 
 def design_from(args: argparse.Namespace, codebook: Any) -> Any:
     from wstats.design.declared import Design
+    from wstats.design.pooling import parse_pool
 
     base: dict[str, Any] = dict(getattr(codebook, "design", None) or {})
     for key in ("weight", "strata", "psu", "fpc", "singleton", "replicates"):
@@ -133,7 +139,39 @@ def design_from(args: argparse.Namespace, codebook: Any) -> Any:
         replicate_factors=[float(f) for f in factors] if factors else None,
         replicate_center="mean" if args.center_on_replicate_mean else "full",
         drop_incomplete=args.drop_incomplete, domain_df=args.domain_df,
+        pool=parse_pool(args.pool), shared_psus=args.shared_psus,
     )
+
+
+def data_paths(args: argparse.Namespace) -> list[str]:
+    """Return the data files of a command: DATA plus any paths given before the variables.
+
+    A leading VAR that is a path with a data file's suffix, a glob or a folder is a data
+    file; a glob or folder is expanded. *args.data* is set to the list (one file: the path).
+    """
+    from wstats.decoding.stacking import expand_paths, is_several
+
+    extra: list[str] = []
+    names = list(getattr(args, "variables", []) or [])
+    while names and _is_data_path(names[0]):
+        extra.append(names.pop(0))
+    if extra and not names:
+        raise UsageError(f"no variable follows the data files {', '.join(extra)}; name the "
+                         "variables after the files")
+    if hasattr(args, "variables"):
+        args.variables = names
+    given = [args.data, *extra]
+    paths = expand_paths(given) if extra or is_several(args.data) else given
+    args.data = paths if len(given) > 1 or is_several(args.data) else paths[0]
+    return paths
+
+
+def _is_data_path(text: str) -> bool:
+    """Tell whether a positional argument names data (a file with a data suffix, a glob...)."""
+    from wstats.readers.dispatch import FORMATS
+
+    p = Path(text)
+    return p.suffix.lower() in FORMATS or any(c in text for c in "*?[") or p.is_dir()
 
 
 def add_estimate_args(p: argparse.ArgumentParser) -> None:
@@ -163,7 +201,18 @@ def add_estimate_args(p: argparse.ArgumentParser) -> None:
                    help="reliability standard: nchs-2017 (default), rse-30, none")
     _add_age_options(g)
     g.add_argument("--plot", metavar="FILE", help="also draw estimates across domains (.png/.svg)")
+    _add_engine_options(p)
     _add_output_options(p, OUTPUT_FORMATS)
+
+
+def _add_engine_options(p: argparse.ArgumentParser) -> None:
+    e = p.add_argument_group("engine")
+    e.add_argument("--engine", choices=("memory", "dask"), default="memory",
+                   help="memory (default), or dask: partitions summed on a Dask cluster "
+                        "(pip install 'wstats[dask]'; see docs/scale.md)")
+    e.add_argument("--scheduler", metavar="ADDRESS",
+                   help="with --engine dask: a running scheduler (e.g. tcp://10.0.0.5:8786); "
+                        "default: a local cluster for this command")
 
 
 def _add_subpopulation_options(g: Any) -> None:
@@ -197,6 +246,9 @@ def add_compare_args(p: argparse.ArgumentParser) -> None:
                    help="multiplicity adjustment of the differences' p-values (default none)")
     g.add_argument("--trend", action="store_true",
                    help="linear (and with 4+ levels quadratic) trend across the ordered levels")
+    g.add_argument("--period-df", choices=("sum", "satterthwaite"), default="sum",
+                   help="pooled files compared --by _file: df of a change, the files' df added "
+                        "up (default) or Satterthwaite's from each period's own df")
     g.add_argument("--reasons", action="store_true",
                    help="also compare item nonresponse and its reasons across the groups")
     _add_subpopulation_options(g)
@@ -243,8 +295,8 @@ def needed_columns(names: Sequence[str], design: Any, where: str | None, data: s
     if design.replicates is not None:
         from wstats.readers.dispatch import file_columns
 
-        available = file_columns(data)
-    cols.extend(design.columns(available, source=data))
+        available = file_columns(data if isinstance(data, str) else data[0])
+    cols.extend(design.columns(available, source=data if isinstance(data, str) else data[0]))
     return list(dict.fromkeys(cols))
 
 
@@ -288,6 +340,7 @@ def add_nonresponse_args(p: argparse.ArgumentParser) -> None:
                         "not_applicable as nonresponse)")
     p.add_argument("--level", type=float, default=0.95, help="confidence level (default 0.95)")
     p.add_argument("--plot", metavar="FILE", help="also draw reasons per variable (.png/.svg)")
+    _add_engine_options(p)
     _add_output_options(p, OUTPUT_FORMATS)
 
 
@@ -304,73 +357,6 @@ def add_bounds_args(p: argparse.ArgumentParser) -> None:
     p.add_argument("--standard", default="nchs-2017", metavar="NAME",
                    help="reliability standard: nchs-2017 (default), rse-30, none")
     _add_output_options(p, ("table", "csv", "json", "markdown"))
-
-
-def add_table_args(p: argparse.ArgumentParser) -> None:
-    p.add_argument("spec", metavar="SPEC.toml", help="publication table spec")
-    _add_output_options(p, (*OUTPUT_FORMATS, "xlsx", "docx"))
-
-
-def add_run_args(p: argparse.ArgumentParser) -> None:
-    p.add_argument("analysis", metavar="ANALYSIS.toml", help="analysis file naming every output")
-    p.add_argument("--overwrite", action="store_true", help="replace existing outputs")
-
-
-def add_codebook_args(p: argparse.ArgumentParser) -> None:
-    sub = p.add_subparsers(dest="action", metavar="ACTION", required=True,
-                           parser_class=Parser)
-    d = sub.add_parser("draft", help="write a starting codebook from a file's metadata",
-                       description="Write a starting codebook; suspected special codes are "
-                       "commented suggestions to confirm.\n\nexample:\n  wstats codebook draft "
-                       "survey.xpt -o survey_codebook.toml",
-                       formatter_class=argparse.RawDescriptionHelpFormatter)
-    d.add_argument("data", metavar="FILE")
-    d.add_argument("-o", "--output", metavar="OUT", help="write the TOML here (default: screen)")
-    d.add_argument("--overwrite", action="store_true", help="replace an existing output")
-    c = sub.add_parser("check", help="count rows by reason and code; list what is unexplained",
-                       description="Apply a codebook and report counts per reason and raw code,"
-                       " unexplained values and codebook variables absent from the file.\n\n"
-                       "example:\n  wstats codebook check survey.xpt survey_codebook.toml",
-                       formatter_class=argparse.RawDescriptionHelpFormatter)
-    c.add_argument("data", metavar="FILE")
-    c.add_argument("codebook", metavar="CODEBOOK")
-    c.add_argument("--rows", metavar="START:STOP", help="check only this row range")
-
-
-def add_convert_args(p: argparse.ArgumentParser) -> None:
-    p.add_argument("data", metavar="FILE", help="survey file to convert")
-    p.add_argument("output", metavar="OUT.parquet", help="Parquet file to write")
-    p.add_argument("--overwrite", action="store_true", help="replace an existing output")
-
-
-def add_columns_args(p: argparse.ArgumentParser) -> None:
-    p.add_argument("data", metavar="FILE", help="survey file")
-    p.add_argument("--search", nargs="+", metavar="WORD", default=[],
-                   help="show only columns whose name or label holds every WORD "
-                        "(case-insensitive)")
-    p.add_argument("--names-only", action="store_true",
-                   help="print the matching names, one a line, without reading the data")
-    p.add_argument("--encoding", default="utf-8", metavar="NAME",
-                   help="text encoding of a CSV file or of labels (e.g. latin-1)")
-    _add_output_options(p, ("table", "json", "csv"))
-
-
-def add_look_args(p: argparse.ArgumentParser) -> None:
-    _add_data_options(p)
-    p.add_argument("variables", metavar="VAR", nargs="+", help="columns to look at")
-    p.add_argument("--weight", metavar="COL",
-                   help="weights for the weighted mean, quartiles and chart (default: the "
-                        "codebook's [design] weight, else none)")
-    _add_output_options(p, ("table", "json"))
-
-
-def add_demo_args(p: argparse.ArgumentParser) -> None:
-    p.add_argument("folder", metavar="DIR", nargs="?", default="wstats-demo",
-                   help="folder for the demo files (default ./wstats-demo)")
-    p.add_argument("--overwrite", action="store_true",
-                   help="write into a folder that already has files")
-    p.add_argument("--rows", type=int, default=None, help="respondents (default about 60,000)")
-    p.add_argument("--columns", type=int, default=None, help="pad to this many columns")
 
 
 class Parser(argparse.ArgumentParser):

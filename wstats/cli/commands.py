@@ -13,22 +13,25 @@ from typing import Any
 
 from wstats.cli.args import (
     add_bounds_args,
-    add_codebook_args,
-    add_columns_args,
     add_compare_args,
-    add_convert_args,
-    add_demo_args,
     add_estimate_args,
-    add_look_args,
     add_nonresponse_args,
-    add_run_args,
-    add_table_args,
+    data_paths,
     design_from,
     format_for,
     needed_columns,
     parse_rows,
     ratio_pair,
     split_list,
+)
+from wstats.cli.args_files import (
+    add_codebook_args,
+    add_columns_args,
+    add_convert_args,
+    add_demo_args,
+    add_look_args,
+    add_run_args,
+    add_table_args,
 )
 from wstats.cli.common import (
     Command,
@@ -47,7 +50,8 @@ __all__ = ["COMMANDS"]
 
 def _run_estimate(args: argparse.Namespace) -> int:
     parse_rows(args.rows)  # usage mistakes first, before any file is touched
-    _check_outputs(args, [args.data, args.codebook])
+    paths = data_paths(args)
+    _check_outputs(args, [*paths, args.codebook])
     from wstats.estimation.estimate import estimate
 
     codebook = _load_codebook(args.codebook)
@@ -58,18 +62,18 @@ def _run_estimate(args: argparse.Namespace) -> int:
         raise UsageError("wstats estimate: name at least one VAR or give --ratio NUM/DEN "
                          "(see 'wstats estimate --help')")
     age = [args.age_adjust] if args.age_adjust else []
-    needed = needed_columns([*variables, *[x for r in ratios for x in r], *args.by, *age],
-                            design, args.where, args.data)
-    data = _read(args, codebook, needed)
+    data = _engine_data(args, codebook, design,
+                        [*variables, *[x for r in ratios for x in r], *args.by, *age])
     table = estimate(
-        data, design, variables, statistics=split_list([args.statistics]) or None, by=args.by,
+        data, design, variables, engine=args.engine, codebook=codebook,
+        scheduler=args.scheduler, statistics=split_list([args.statistics]) or None, by=args.by,
         where=args.where, categorical=args.categorical, ratios=ratios,
         quantiles=[float(q) for q in split_list([args.quantiles])], level=args.level,
         proportion_ci=args.proportion_ci, reliability=_standard(_reliability_name(args)),
         margins=args.margins, age_adjust=args.age_adjust,
         standard=args.standard if args.age_adjust else None,
     )
-    _emit(table, "estimate", args, [args.data], args.codebook)
+    _emit(table, "estimate", args, paths, args.codebook)
     if args.plot:
         from wstats.reports.plots import plot_domains
 
@@ -89,7 +93,8 @@ def _reliability_name(args: argparse.Namespace) -> str:
 
 def _run_compare(args: argparse.Namespace) -> int:
     parse_rows(args.rows)
-    _check_outputs(args, [args.data, args.codebook, args.standard])
+    paths = data_paths(args)  # several files: a glob, a folder or paths before VAR
+    _check_outputs(args, [*paths, args.codebook, args.standard])
     from wstats.reports.compare import compare
 
     codebook = _load_codebook(args.codebook)
@@ -100,9 +105,22 @@ def _run_compare(args: argparse.Namespace) -> int:
     result = compare(data, design, args.variables, by=args.by, reference=args.reference,
                      pairs=args.pairs, adjust_p=args.adjust_p, trend=args.trend,
                      reasons=args.reasons, where=args.where, categorical=args.categorical,
-                     level=args.level, age_adjust=args.age_adjust, standard=args.standard)
-    _emit(result, "compare", args, [args.data], args.codebook)
+                     level=args.level, age_adjust=args.age_adjust, standard=args.standard,
+                     period_df=args.period_df)
+    _emit(result, "compare", args, paths, args.codebook)
     return 0
+
+
+def _engine_data(args: argparse.Namespace, codebook: Any, design: Any, names: list[str]
+                 ) -> Any:
+    """Return the data read in memory, or the files themselves for the Dask engine."""
+    if args.scheduler and args.engine != "dask":
+        raise UsageError("--scheduler needs --engine dask")
+    if args.rows and args.engine == "dask":
+        raise UsageError("--rows reads a first look in memory; drop it or --engine dask")
+    if args.engine == "dask":
+        return args.data  # the workers read the files
+    return _read(args, codebook, needed_columns(names, design, args.where, args.data))
 
 
 def _standard(name: str) -> Any:
@@ -117,17 +135,18 @@ def _standard(name: str) -> Any:
 
 def _run_nonresponse(args: argparse.Namespace) -> int:
     parse_rows(args.rows)
-    _check_outputs(args, [args.data, args.codebook])
+    paths = data_paths(args)
+    _check_outputs(args, [*paths, args.codebook])
     from wstats.reports.nonresponse import nonresponse
 
     codebook = _load_codebook(args.codebook)
     design = design_from(args, codebook)
-    needed = needed_columns([*args.variables, *args.by], design, args.where, args.data)
-    data = _read(args, codebook, needed)
+    data = _engine_data(args, codebook, design, [*args.variables, *args.by])
     table = nonresponse(data, design, args.variables, by=args.by, where=args.where,
                         level=args.level, count_invalid=not args.exclude_invalid,
-                        sort_worst=args.worst_first, not_asked=tuple(split_list([args.not_asked])))
-    _emit(table.showing_shares() if args.shares else table, "nonresponse", args, [args.data],
+                        sort_worst=args.worst_first, not_asked=tuple(split_list([args.not_asked])),
+                        engine=args.engine, codebook=codebook, scheduler=args.scheduler)
+    _emit(table.showing_shares() if args.shares else table, "nonresponse", args, paths,
           args.codebook)
     if args.plot:
         from wstats.reports.plots import plot_reasons
@@ -139,7 +158,8 @@ def _run_nonresponse(args: argparse.Namespace) -> int:
 
 def _run_bounds(args: argparse.Namespace) -> int:
     parse_rows(args.rows)
-    _check_outputs(args, [args.data, args.codebook])
+    paths = data_paths(args)
+    _check_outputs(args, [*paths, args.codebook])
     from wstats.reports.bounds import bounds
 
     codebook = _load_codebook(args.codebook)
@@ -149,7 +169,7 @@ def _run_bounds(args: argparse.Namespace) -> int:
     frame = bounds(data, design, args.variables, by=args.by, where=args.where,
                    level=args.level, reasons=tuple(split_list([args.unknown])),
                    reliability=_standard(args.standard))
-    _emit(frame, "bounds", args, [args.data], args.codebook)
+    _emit(frame, "bounds", args, paths, args.codebook)
     return 0
 
 
@@ -232,7 +252,7 @@ def _run_demo(args: argparse.Namespace) -> int:
     from wstats.cli.demo import run_demo
 
     run_demo(Path(args.folder), overwrite=args.overwrite, rows=args.rows, columns=args.columns,
-             show=_print_rich)
+             show=_print_rich, periods=args.periods)
     return 0
 
 

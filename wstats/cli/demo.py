@@ -12,7 +12,8 @@ __all__ = ["run_demo"]
 
 
 def run_demo(folder: Path, *, overwrite: bool = False, rows: int | None = None,
-             columns: int | None = None, show: Callable[[Any], None] = print) -> list[Path]:
+             columns: int | None = None, show: Callable[[Any], None] = print,
+             periods: int = 0) -> list[Path]:
     """Write the demo files into *folder*, run ``tbchs_analysis.toml``, show what came out.
 
     Parameters
@@ -22,6 +23,8 @@ def run_demo(folder: Path, *, overwrite: bool = False, rows: int | None = None,
     overwrite : write into a non-empty folder, replacing earlier demo files.
     rows, columns : sample size and padded column count (default about 60,000 x 68).
     show : called with each renderable (rich objects or text) to display.
+    periods : also write this many independent periods of the survey (``period1.xpt``, ...)
+        for pooling (``wstats estimate 'period*.xpt' ... --by _file``).
 
     Returns
     -------
@@ -41,7 +44,14 @@ def run_demo(folder: Path, *, overwrite: bool = False, rows: int | None = None,
          "and analysis file, then analysed. A first look:\n")
     _tour(results, show)
     show(_where(folder, survey, outputs))
-    return sorted({*survey, *outputs})
+    pooled: list[Path] = []
+    if periods > 0:
+        from demo.periods import write_periods
+
+        pooled = write_periods(folder, periods=periods, rows=rows)
+        show(f"\nPooled periods: wstats estimate '{folder / 'period*.xpt'}' sl_hours --by _file "
+             f"--codebook {folder / 'tbchs_codebook.toml'}")
+    return sorted({*survey, *outputs, *pooled})
 
 
 def _check_folder(folder: Path, overwrite: bool) -> None:

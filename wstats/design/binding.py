@@ -9,7 +9,6 @@ only when rows are missing.
 
 from __future__ import annotations
 
-from collections.abc import Sequence
 from typing import TYPE_CHECKING, Any
 
 import numpy as np
@@ -17,6 +16,8 @@ import numpy as np
 from wstats.decoding.columns import code_type, row_tiles
 from wstats.decoding.text_numbers import why_text
 from wstats.design.bound import BoundDesign
+from wstats.design.pooled_binding import Pool, pool_of
+from wstats.design.pooling import file_strata, stratum_breaks
 from wstats.design.replicates import (
     check_replicate_columns,
     jackknife_strata_factors,
@@ -24,10 +25,10 @@ from wstats.design.replicates import (
     replicate_scale,
     resolve_replicate_columns,
 )
+from wstats.design.singletons import treat_singletons
 from wstats.design.values import check_weights, complete_rows, count_where, row_no, take
 from wstats.errors import (
     DesignError,
-    SingletonStratumError,
     WeightError,
     did_you_mean,
 )
@@ -43,30 +44,21 @@ if TYPE_CHECKING:
     #: per-row codes (strata, PSUs): int32 unless there are 2**31 or more distinct values
     Codes = npt.NDArray[np.signedinteger[Any]]
 
-__all__ = ["bind", "singleton_error"]
-
-_SHOW = 5  # how many offending strata a message lists
-
-
-def singleton_error(labels: Sequence[str]) -> SingletonStratumError:
-    """Return the error listing strata with one PSU and the alternatives."""
-    shown = ", ".join(f"'{s}'" for s in labels[:_SHOW])
-    more = f" and {len(labels) - _SHOW} more" if len(labels) > _SHOW else ""
-    return SingletonStratumError(
-        f"{len(labels)} strata have a single PSU ({shown}{more}); the variance cannot be "
-        "estimated there: choose a treatment with --singleton certainty, center or collapse "
-        "(in Python: Design(..., singleton='certainty'))"
-    )
-
+__all__ = ["bind"]
 
 def bind(design: Design, data: Dataset) -> BoundDesign:
     """Validate *design* against *data* and build the BoundDesign (see ``Design.bind``)."""
     src = data.source or "the data"
+    pool = pool_of(design, data)
     cols = _design_columns(design, data, src)
     keep = complete_rows(design, cols, data.n_rows)
     rows = None if keep is None else np.flatnonzero(keep)
     w = check_weights(take(cols["weight"].values, rows), design.weight, rows)
+    if pool is not None:
+        w = pool.rescale(w, rows)
     stratum, labels = _codes(cols.get("strata"), rows, len(w))
+    if pool is not None and not design.shared_psus:
+        stratum, labels = file_strata(stratum, labels, pool.rows(rows), pool.files.stems)
     psu_codes = _codes(cols["psu"], rows, len(w))[0] if design.psu else None
     psu, psu_stratum = _psu_index(stratum, psu_codes)
     n_h = np.bincount(psu_stratum, minlength=len(labels)).astype(np.int64)
@@ -78,13 +70,18 @@ def bind(design: Design, data: Dataset) -> BoundDesign:
                 f"the design has {len(psu_stratum)} PSU in {src}; a variance needs at least 2 "
                 "PSUs (check the psu column or use replicate weights)"
             )
-        psu_stratum, n_h, f_h, labels = _singletons(design.singleton, psu_stratum, n_h, f_h,
-                                                     labels)
-    reps = _replicates(design, data, rows, w, stratum, n_h, src)
+        breaks = None  # pooled files: no collapsed stratum crosses from one file to the next
+        if pool is not None and not design.shared_psus:
+            breaks = stratum_breaks(psu, psu_stratum, pool.rows(rows))
+        psu_stratum, n_h, f_h, labels = treat_singletons(design.singleton, psu_stratum, n_h,
+                                                         f_h, labels, breaks)
+    reps = _replicates(design, data, rows, w, stratum, n_h, src, pool)
     df = float(len(psu_stratum) - len(n_h))
     if reps is not None:
         named = design.strata is not None or design.psu is not None
-        df = replicate_df(design.replicate_method or "", reps[0].shape[1], df if named else None)
+        k = 1 if pool is None or named else pool.files.n_files  # blocks' df add up
+        df = k * replicate_df(design.replicate_method or "", len(reps[1]),
+                              df if named else None)
     return BoundDesign(
         design=design, rows=rows, weights=w, psu=psu, psu_stratum=psu_stratum, n_h=n_h,
         f_h=f_h, stratum_labels=tuple(labels), singleton_strata=singles,
@@ -93,6 +90,7 @@ def bind(design: Design, data: Dataset) -> BoundDesign:
         scale=1.0 if reps is None else reps[2], factors=None if reps is None else reps[3],
         df=df, dropped_rows=0 if rows is None else data.n_rows - len(rows),
         zero_weights=count_where(w, lambda part: part == 0),
+        pool=None if pool is None else pool.summary(rows, psu, psu_stratum, reps is not None),
     )
 
 
@@ -245,36 +243,14 @@ def _fpc(col: DecodedColumn | None, name: str | None, rows: Index | None, stratu
     return np.asarray(np.where(low > 1, n_h / low, low), dtype=np.float64)
 
 
-def _singletons(treatment: str, psu_stratum: Index, n_h: Index, f_h: Array,
-                labels: list[str]) -> tuple[Index, Index, Array, list[str]]:
-    """Apply the singleton treatment: fail, or collapse strata; others act in the variance."""
-    single = n_h == 1
-    if not single.any() or treatment in ("certainty", "center"):
-        return psu_stratum, n_h, f_h, labels
-    if treatment == "fail":
-        raise singleton_error([labels[h] for h in np.flatnonzero(single)])
-    group = _collapse_groups(single)
-    n_g = np.bincount(group, weights=n_h).astype(np.int64)
-    with np.errstate(divide="ignore"):
-        pop = np.where(f_h > 0, n_h / np.where(f_h > 0, f_h, 1.0), np.inf)
-    pop_g = np.bincount(group, weights=pop)
-    f_g = np.where(np.isinf(pop_g), 0.0, n_g / np.where(np.isinf(pop_g), 1.0, pop_g))
-    names = ["+".join(labels[h] for h in np.flatnonzero(group == g)) for g in range(len(n_g))]
-    return group[psu_stratum], n_g, np.asarray(f_g, dtype=np.float64), names
-
-
-def _collapse_groups(single: npt.NDArray[np.bool_]) -> Index:
-    """Return the pool of each stratum: a singleton joins the next stratum (last: previous)."""
-    starts = np.r_[True, ~single[:-1]]
-    group = np.cumsum(starts) - 1
-    if single[-1] and starts[-1] and group[-1] > 0:
-        group[-1] -= 1
-    return group.astype(np.int64)
-
-
 def _replicates(design: Design, data: Dataset, rows: Index | None, w: Array, stratum: Codes,
-                n_h: Index, src: str) -> tuple[Array, tuple[str, ...], float, Array] | None:
-    """Return (matrix, columns, scale, factors) of a replicate design, or None."""
+                n_h: Index, src: str, pool: Pool | None
+                ) -> tuple[Array, tuple[str, ...], float, Array] | None:
+    """Return (matrix, columns, scale, factors) of a replicate design, or None.
+
+    Pooled files give one block of replicates per file, each with its own coefficients
+    (folded into the factors; the scale is then 1).
+    """
     if design.replicates is None:
         return None
     names = resolve_replicate_columns(design.replicates, list(data.columns), src)
@@ -293,6 +269,14 @@ def _replicates(design: Design, data: Dataset, rows: Index | None, w: Array, str
             f"(row {row_no(rows, int(r))}); replicate weights must be finite and >= 0"
         )
     check_replicate_columns(rep, names, src)
+    if pool is not None:
+        rep *= pool.factors(rows)[pool.rows(rows)][:, None]  # each file's weight factor
+
+        def factors_of(part: Array, wk: Array, hk: Codes) -> Array:
+            return _replicate_factors(design, part, wk, hk, n_h)
+
+        blocks, coef = pool.replicates(rep, w, rows, stratum, factors_of)
+        return blocks, tuple(names), 1.0, coef
     factors = _replicate_factors(design, rep, w, stratum, n_h)
     method = design.replicate_method or ""
     scale = replicate_scale(method, len(names), design.fay_rho, design.replicate_scale)

@@ -56,6 +56,10 @@ class DeclaredDesign(Protocol):
     def domain_df(self) -> str: ...
     @property
     def extra(self) -> dict[str, str]: ...
+    @property
+    def pool(self) -> str | Sequence[float]: ...
+    @property
+    def shared_psus(self) -> bool: ...
 
 
 @dataclass(frozen=True, eq=False)
@@ -80,6 +84,8 @@ class BoundDesign:
     df : design degrees of freedom.
     dropped_rows : rows dropped for a missing weight/stratum/PSU/FPC (``drop_incomplete``).
     zero_weights : rows with weight exactly 0 (kept; they count in n_h but add nothing).
+    pool : how several files were pooled (:func:`wstats.design.pooling.pool_summary`), or
+        None for one file.
     """
 
     design: DeclaredDesign
@@ -98,6 +104,7 @@ class BoundDesign:
     df: float
     dropped_rows: int
     zero_weights: int
+    pool: dict[str, Any] | None = None
 
     @property
     def n_rows(self) -> int:
@@ -148,4 +155,5 @@ class BoundDesign:
             "dropped_rows": self.dropped_rows,
             "zero_weights": self.zero_weights,
             "domain_df": d.domain_df,
+            **({"pool": self.pool} if self.pool is not None else {}),
         }

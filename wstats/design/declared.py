@@ -27,6 +27,7 @@ import numpy as np
 from wstats.decoding.columns import require_dataset
 from wstats.design.binding import bind
 from wstats.design.bound import BoundDesign
+from wstats.design.pooling import check_pool_rule
 from wstats.design.replicates import resolve_replicate_columns
 from wstats.errors import DesignError, did_you_mean
 
@@ -82,6 +83,12 @@ class Design:
     drop_incomplete : drop rows with a missing weight/stratum/PSU (reported) instead of failing.
     domain_df : ``design`` (PSUs - strata of the whole design, default) or ``domain`` (only
         strata and PSUs holding domain members).
+    pool : for data pooled from several files: how each file's weights are rescaled,
+        ``equal`` (1/K, default), ``rows`` (n_k/n) or factors summing to 1, one per file
+        (see :mod:`wstats.design.pooling`). Ignored for one file.
+    shared_psus : for pooled files: the files reuse the same strata and PSUs (same codes,
+        same clusters), so the covariance between periods is estimated; by default strata
+        are keyed by (file, stratum) and the periods are independent.
 
     Examples
     --------
@@ -103,6 +110,8 @@ class Design:
     drop_incomplete: bool = False
     domain_df: str = "design"
     extra: dict[str, str] = field(default_factory=dict)
+    pool: str | Sequence[float] = "equal"
+    shared_psus: bool = False
 
     def __post_init__(self) -> None:
         """Check the options that do not need data."""
@@ -111,6 +120,7 @@ class Design:
         _one_of("singleton", self.singleton, SINGLETON_TREATMENTS)
         _one_of("replicate_center", self.replicate_center, ("full", "mean"))
         _one_of("domain_df", self.domain_df, ("design", "domain"))
+        check_pool_rule(self.pool)
         if self.replicates is None:
             if self.replicate_method is not None:
                 raise DesignError(

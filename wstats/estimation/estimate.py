@@ -11,15 +11,20 @@ from __future__ import annotations
 
 import itertools
 import warnings
-from collections.abc import Callable, Mapping, Sequence
+from collections.abc import Mapping, Sequence
+from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
-from wstats.decoding.columns import require_dataset
-from wstats.decoding.reasons import VALID
+from wstats.decoding.columns import Dataset, require_dataset
 from wstats.decoding.text_numbers import why_text
 from wstats.errors import EstimationError, WstatsWarning, did_you_mean
+from wstats.estimation.assemble import Statistics
+from wstats.estimation.assemble import check_options as _check_options
+from wstats.estimation.assemble import columns_of as _columns
+from wstats.estimation.assemble import scope as _scope
+from wstats.estimation.dask_engine import ENGINES, estimate_dask
 from wstats.estimation.domain_setup import build_domains as _domains
 from wstats.estimation.domain_setup import check_names as _check_names
 from wstats.estimation.scaling import as_numbers, scale_dataset, scales_for, unscale
@@ -31,7 +36,6 @@ from wstats.estimation.statistics import (
     Quantile,
     Ratio,
     Total,
-    add_intervals,
     check_statistic,
     is_categorical,
 )
@@ -40,7 +44,7 @@ from wstats.estimation.sums import WeightedSums
 if TYPE_CHECKING:
     import numpy.typing as npt
 
-    from wstats.decoding.columns import Dataset
+    from wstats.decoding.codebook import Codebook
     from wstats.design.bound import BoundDesign
     from wstats.design.declared import Design
     from wstats.estimation.domains import Domains
@@ -53,11 +57,9 @@ if TYPE_CHECKING:
 
 __all__ = ["estimate"]
 
-_NAMES = ("mean", "total", "proportion", "ratio", "quantile")
-
 
 def estimate(
-    data: Dataset,
+    data: Dataset | str | Path | Sequence[str | Path],
     design: Design,
     variables: Sequence[str],
     *,
@@ -73,12 +75,17 @@ def estimate(
     margins: bool = False,
     age_adjust: str | None = None,
     standard: str | Standard | None = None,
+    engine: str = "memory",
+    codebook: Codebook | str | Path | None = None,
+    scheduler: str | None = None,
 ) -> EstimateTable:
     """Estimate design-based statistics of survey variables, overall and by domain.
 
     Parameters
     ----------
-    data : decoded dataset (values and reasons).
+    data : decoded dataset (values and reasons); or the data files (a path, a glob, a
+        folder or a list; several files are pooled, see :func:`wstats.read`), read with
+        *codebook*.
     design : the sample design; bound and checked against *data*.
     variables : variables to analyse.
     statistics : None (mean for continuous/count, proportion for categorical/binary), one
@@ -103,6 +110,12 @@ def estimate(
         the margins stay crude).
     standard : the standard population for *age_adjust*: a built-in name (``us2000-11``,
         ``us2000-adults18``, ``us2000-adults20``), a TOML standard file, or a ``Standard``.
+    engine : ``memory`` (default) or ``dask``: the data files processed partition by
+        partition on a Dask cluster (means, totals, proportions, ratios, quantiles; see
+        :mod:`wstats.estimation.dask_engine`); needs ``pip install 'wstats[dask]'``.
+    codebook : the codebook for data given as files.
+    scheduler : engine ``dask``: address of a running scheduler (None: a local cluster that
+        starts and stops with the call).
 
     Returns
     -------
@@ -119,10 +132,41 @@ def estimate(
     >>> round(float(t.frame["estimate"][0]), 4)
     2.8333
     """
-    require_dataset(data, "estimate")
     from wstats.estimation.reliability import DEFAULT_STANDARD, assess
     from wstats.estimation.results import EstimateTable, object_column
 
+    if not isinstance(data, Dataset | str | Path | list | tuple):
+        require_dataset(data, "estimate")  # e.g. a pandas frame: say how to wrap it
+    if engine not in ENGINES:
+        raise EstimationError(f"engine '{engine}' is not one of {', '.join(ENGINES)}"
+                              f"{did_you_mean(engine, ENGINES)}")
+    if engine == "dask":
+        if isinstance(data, Dataset):
+            raise EstimationError("engine 'dask' reads the data files itself; give their paths "
+                                  "(and codebook=...), not a Dataset")
+        if age_adjust is not None:
+            raise EstimationError("age adjustment is not available on the Dask engine yet; "
+                                  "run it with engine='memory'")
+
+        files = data  # the workers read the files
+
+        def on_dask(domains: Sequence[str]) -> EstimateTable:
+            return estimate_dask(files, design, variables, codebook=codebook, ratios=ratios,
+                                 quantiles=quantiles, statistics=statistics, by=domains,
+                                 where=where, categorical=categorical, level=level,
+                                 proportion_ci=proportion_ci, reliability=reliability,
+                                 scheduler=scheduler)
+
+        if not margins or len(by) < 2:
+            return on_dask(by)
+        from wstats.estimation.margins import with_margins
+
+        return with_margins(on_dask(by), [on_dask([b]) for b in by])
+    if not isinstance(data, Dataset):
+        data = _read_files(data, design, [*variables, *by, *categorical,
+                                          *(v for r in ratios for v in r),
+                                          *([age_adjust] if age_adjust else [])],
+                           where, codebook)
     stats = _check_options(statistics, level, proportion_ci, quantiles)
     _check_names(data, [*variables, *by, *categorical, *(v for r in ratios for v in r),
                         *([age_adjust] if age_adjust else [])])
@@ -176,6 +220,23 @@ def estimate(
         proportion_ci=proportion_ci, reliability=reliability) for b in by])
 
 
+def _read_files(data: str | Path | Sequence[str | Path], design: Design, names: list[str],
+                where: str | None, codebook: Codebook | str | Path | None) -> Dataset:
+    """Read the variables, the condition's inputs and the design columns from files."""
+    from wstats.decoding.load import read
+    from wstats.decoding.stacking import expand_paths, is_several
+    from wstats.readers.dispatch import file_columns
+
+    first = expand_paths(data)[0] if is_several(data) else str(data)
+    cols = list(names)
+    if where:
+        from wstats.decoding.expressions import expression_names
+
+        cols.extend(expression_names(where))
+    cols.extend(design.columns(file_columns(first), first))
+    return read(data, list(dict.fromkeys(cols)), codebook)
+
+
 #: statistics that can be age-adjusted
 BY_AGE = ("mean", "proportion")
 
@@ -190,15 +251,6 @@ def _age_standard(age_adjust: str | None, standard: str | Standard | None) -> St
     from wstats.estimation.standards import load_standard
 
     return load_standard(standard) if isinstance(standard, str) else standard
-
-
-def _scope(rows: dict[str, npt.NDArray[Any]], by: Sequence[str], where: str | None
-           ) -> dict[str, Any]:
-    """Return what the table covers: subpopulation, domains, statistics, range of df."""
-    df = rows["df"][np.isfinite(rows["df"])]
-    return {"where": where, "domains": list(by),
-            "statistics": list(dict.fromkeys(str(s) for s in rows["statistic"])),
-            "df_range": [float(df.min()), float(df.max())] if len(df) else None}
 
 
 def _scales(data: Dataset, design: Design, variables: Sequence[str], forced: set[str],
@@ -234,35 +286,6 @@ def _warn(data: Dataset, bound: BoundDesign, variables: Sequence[str], domains: 
     weights = bound.weights if weight_scale == 1.0 else bound.weights * weight_scale
     facts = DesignFacts(np.asarray(bound.n_h), weights, bound.design.weight)
     warn_all(estimation_warnings(data, facts, variables, groups))
-
-
-Statistics = dict[str, list[str]] | list[str] | None
-
-
-def _check_options(statistics: str | Sequence[str] | Mapping[str, str | Sequence[str]] | None,
-                   level: float, proportion_ci: str, quantiles: Sequence[float]) -> Statistics:
-    """Check the options that need no data; return the statistics as a list, dict or None."""
-    if not (isinstance(level, int | float) and 0.0 < float(level) < 1.0):
-        raise EstimationError(f"confidence level {level!r} is outside (0, 1); use e.g. 0.95")
-    Proportion(proportion_ci)  # checks the name
-    for p in quantiles:
-        Quantile(p)
-    if statistics is None:
-        return None
-    if isinstance(statistics, Mapping):
-        return {str(v): _stat_names(s) for v, s in statistics.items()}
-    return _stat_names(statistics)
-
-
-def _stat_names(statistics: str | Sequence[str]) -> list[str]:
-    """Return one variable's statistics as a list of checked names."""
-    names = [statistics] if isinstance(statistics, str) else list(statistics)
-    for name in names:
-        if name not in _NAMES:
-            raise EstimationError(
-                f"statistic '{name}' is not one of {', '.join(_NAMES)}{did_you_mean(name, _NAMES)}"
-            )
-    return names
 
 
 def _run(ctx: Context, variables: Sequence[str], stats: Statistics, forced: set[str],
@@ -311,59 +334,3 @@ def _one(ctx: Context, name: str, stat: str, ci: str) -> Piece:
     if stat == "total":
         return Total()(ctx, name)
     return Proportion(ci)(ctx, name)
-
-
-def _columns(pieces: list[Piece], by: list[str],
-             by_levels: list[tuple[list[Any], list[Any]]], reason_names: Sequence[str],
-             level: float) -> dict[str, npt.NDArray[Any]]:
-    """Return the tidy columns of all pieces (per ESTIMATE_COLUMNS, by-columns after ``p``)."""
-    from wstats.estimation.results import ESTIMATE_COLUMNS, object_column
-
-    cols: dict[str, npt.NDArray[Any]] = {}
-    numeric = ("estimate", "se", "ci_low", "ci_high", "df", "deff", "deff_weight", "n_eff",
-               "weighted_n")
-    cols["variable"] = object_column([p.variable for p in pieces for _ in p.domain])
-    cols["statistic"] = object_column([p.statistic for p in pieces for _ in p.domain])
-    cols["level"] = object_column([lv for p in pieces for lv in p.level])
-    cols["p"] = _stack(pieces, lambda p: np.full(len(p.domain), p.p))
-    domain = _stack(pieces, lambda p: p.domain).astype(np.int64)
-    cols.update(_by_columns(domain, by, by_levels))
-    for name in numeric:
-        cols[name] = np.concatenate([getattr(p, name) for p in pieces]) if pieces else np.zeros(0)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        cols["cv"] = np.where(cols["estimate"] != 0, cols["se"] / np.abs(cols["estimate"]),
-                              np.nan)
-    cols["n"] = _stack(pieces, lambda p: p.n).astype(np.int64)
-    add_intervals(cols["estimate"], cols["se"], cols["n"].astype(np.float64), cols["df"],
-                  [p.interval for p in pieces for _ in p.domain], cols["ci_low"],
-                  cols["ci_high"], level)
-    counts = np.vstack([p.reasons for p in pieces]) if pieces else np.zeros((0, 1), np.int64)
-    cols["reasons"] = object_column(
-        [{reason_names[int(j)]: int(c[j]) for j in np.flatnonzero(c) if j != VALID}
-         for c in counts])
-    cols["flags"] = object_column([()] * len(domain))
-    cols["suppress"] = np.zeros(len(domain), dtype=bool)
-    order = [*ESTIMATE_COLUMNS[:4], *by, *ESTIMATE_COLUMNS[4:]]
-    return {c: cols[c] for c in order}
-
-
-def _stack(pieces: list[Piece], get: Callable[[Piece], Any]) -> npt.NDArray[Any]:
-    """Return the per-piece arrays *get* returns, end to end."""
-    return np.concatenate([get(p) for p in pieces]) if pieces else np.zeros(0)
-
-
-def _by_columns(domain: Index, by: list[str], by_levels: list[tuple[list[Any], list[Any]]]
-                ) -> dict[str, npt.NDArray[Any]]:
-    """Return one column per by-variable: the level shown for each row (None: population)."""
-    from wstats.estimation.results import object_column
-
-    if not by:
-        return {}
-    sizes = [max(len(v), 1) for v, _ in by_levels]
-    cell = np.where(domain > 0, domain - 1, 0)
-    idx = np.unravel_index(cell, sizes)
-    out: dict[str, npt.NDArray[Any]] = {}
-    for k, name in enumerate(by):
-        display = object_column([*by_levels[k][1], None])
-        out[name] = display[np.where(domain > 0, np.minimum(idx[k], len(display) - 1), -1)]
-    return out

@@ -36,7 +36,7 @@ if TYPE_CHECKING:
     Array = npt.NDArray[np.float64]
     Bool = npt.NDArray[np.bool_]
 
-__all__ = ["BATCHED", "batch_pieces"]
+__all__ = ["BATCHED", "batch_pieces", "proportion_piece"]
 
 _Job = tuple["Array", Callable[["Array"], Piece]]
 
@@ -323,18 +323,28 @@ def _proportion(ctx: Context, name: str, ci: str) -> _Job:
     z = np.where(np.isfinite(z), z, 0.0)
 
     def finish(var: Array) -> Piece:
-        var = np.where(np.isfinite(est), var, np.nan)
-        p, n = est.ravel(), np.repeat(m.n, nl)
-        empty = n == 0
-        p = np.where(empty, np.nan, p)
-        se = np.where(empty, np.nan, np.sqrt(np.maximum(var.ravel(), 0.0)))
-        nan = np.full(len(p), np.nan)
-        with np.errstate(divide="ignore", invalid="ignore"):
-            deff = np.where(p * (1 - p) > 0, var.ravel() / (p * (1 - p) / n), np.nan)
-        shown: list[str | None] = [*labels] * nd
-        return Piece(name, "proportion", shown, np.nan, np.repeat(np.arange(nd), nl),
-                     p, se, nan, nan.copy(), np.repeat(m.df, nl), deff,
-                     np.repeat(m.deff_weight, nl), effective_n(p, se, n), n,
-                     np.repeat(m.weighted_n, nl), np.repeat(m.reasons, nl, axis=0), ci)
+        return proportion_piece(name, labels, est, var, m, ci)
 
     return z.reshape(len(z), nl), finish  # no level: zero columns, the Piece is still made
+
+
+def proportion_piece(name: str, labels: Sequence[str], est: Array, var: Array, m: _Moments,
+                     ci: str) -> Piece:
+    """Return the Piece of a categorical variable's level proportions (D x L) and variances.
+
+    Shared with the engine that works from summed partitions.
+    """
+    nd, nl = est.shape
+    var = np.where(np.isfinite(est), var, np.nan)
+    p, n = est.ravel(), np.repeat(m.n, nl)
+    empty = n == 0
+    p = np.where(empty, np.nan, p)
+    se = np.where(empty, np.nan, np.sqrt(np.maximum(var.ravel(), 0.0)))
+    nan = np.full(len(p), np.nan)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        deff = np.where(p * (1 - p) > 0, var.ravel() / (p * (1 - p) / n), np.nan)
+    shown: list[str | None] = [*labels] * nd
+    return Piece(name, "proportion", shown, np.nan, np.repeat(np.arange(nd), nl),
+                 p, se, nan, nan.copy(), np.repeat(m.df, nl), deff,
+                 np.repeat(m.deff_weight, nl), effective_n(p, se, n), n,
+                 np.repeat(m.weighted_n, nl), np.repeat(m.reasons, nl, axis=0), ci)

@@ -54,10 +54,11 @@ def read_parquet(
     every = [n for n in schema.names if not n.startswith(TAGS_PREFIX)]
     names = select_columns(path, every, columns)
     tagged = [TAGS_PREFIX + n for n in names if TAGS_PREFIX + n in schema.names]
-    table = _read_table(path, names + tagged, progress)
+    table, first = _read_table(path, names + tagged, progress, rows)
     if rows is not None:
         start, stop = rows
-        table = table.slice(start, None if stop is None else max(stop - start, 0))
+        start -= first  # the row groups read begin at row *first*
+        table = table.slice(start, None if stop is None else max(stop - first - start, 0))
     info = _cache_info(path, schema)
     described = info.get("columns", {})
     cols = {n: _raw_column(path, table, n, described.get(n, {})) for n in names}
@@ -111,24 +112,45 @@ def _schema(path: Path) -> pa.Schema:
         raise _damaged(path, exc) from exc
 
 
-def _read_table(path: Path, names: list[str], progress: bool) -> pa.Table:
-    """Read the named columns, row group by row group behind a progress bar when asked."""
+def _read_table(path: Path, names: list[str], progress: bool, rows: Rows | None = None
+                ) -> tuple[pa.Table, int]:
+    """Read the named columns, row group by row group behind a progress bar when asked.
+
+    With *rows*, only the row groups that hold them are read (a partition of a large file
+    costs its own rows, not the file's); returns the table and the row its first group
+    begins at.
+    """
     import pyarrow as pa
     import pyarrow.parquet as pq
 
     try:
         handle = pq.ParquetFile(path)
-        groups = handle.num_row_groups
-        if not progress or groups < 2:
-            return handle.read(columns=names)
+        groups, first = _groups(handle.metadata, rows)
+        if rows is None and (not progress or len(groups) < 2):
+            return handle.read(columns=names), 0
         parts = []
-        with progress_bar(progress, f"reading {path.name}", groups) as advance:
-            for i in range(groups):
+        with progress_bar(progress, f"reading {path.name}", len(groups)) as advance:
+            for k, i in enumerate(groups):
                 parts.append(handle.read_row_group(i, columns=names))
-                advance(i + 1)
-        return pa.concat_tables(parts)
+                advance(k + 1)
+        if not parts:
+            return handle.schema_arrow.empty_table().select(names), first
+        return pa.concat_tables(parts), first
     except (pa.ArrowException, OSError, ValueError) as exc:
         raise _damaged(path, exc) from exc
+
+
+def _groups(meta: Any, rows: Rows | None) -> tuple[list[int], int]:
+    """Return the row groups holding *rows* (all without) and the first one's first row."""
+    sizes = [meta.row_group(i).num_rows for i in range(meta.num_row_groups)]
+    if rows is None:
+        return list(range(len(sizes))), 0
+    start, stop = rows
+    ends = np.cumsum(sizes)
+    begins = ends - np.asarray(sizes, dtype=ends.dtype)
+    keep = (ends > start) & (True if stop is None else begins < stop)
+    chosen = np.flatnonzero(keep).tolist()
+    return chosen, int(begins[chosen[0]]) if chosen else int(ends[-1]) if len(ends) else 0
 
 
 def _damaged(path: Path, exc: Exception) -> ReadError:

@@ -318,6 +318,13 @@ def design_line(design: Mapping[str, Any], settings: Mapping[str, Any], level: f
     df = _df_text(design, settings)
     if df:
         parts.append(df)
+    pool = design.get("pool")
+    if pool:  # several files: which factors, and that totals are per period
+        rule, k = pool.get("rule"), len(pool.get("factors") or {})
+        parts.append(f"{k} file{'' if k == 1 else 's'} pooled ({rule} weights; totals per "
+                     "period)")
+    if settings.get("engine") == "dask":
+        parts.append("Dask engine")
     method = settings.get("proportion_ci")
     level_text = fmt_number(level * 100, 1).rstrip("0").rstrip(".")
     ci = f"{level_text}% intervals" + (f" ({method} for proportions)" if method else "")

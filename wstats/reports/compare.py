@@ -11,7 +11,7 @@ each variable is compared too (:mod:`wstats.reports.compare_reasons`).
 from __future__ import annotations
 
 from collections.abc import Mapping, Sequence
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from typing import TYPE_CHECKING, Any
 
 import numpy as np
@@ -27,9 +27,11 @@ from wstats.estimation.influence import (
     mean_influence,
     proportion_influence,
 )
+from wstats.reports.compare_periods import period_pair_df
 from wstats.reports.compare_rows import (
     DIFFERENCE_COLUMNS,
     TEST_COLUMNS,
+    PairDf,
     difference_rows,
     rao_scott_table,
     trend_rows,
@@ -124,6 +126,7 @@ class _Plan:
     age: tuple[str, Any, list[str]] | None  # (variable, weights per level, labels)
     standard: str | None
     groups: DomainSums  # the sums over the groups alone (the same as eng without ages)
+    pair_df: PairDf | None = None  # pooled periods: the df of each change (else design df)
 
     @property
     def n_groups(self) -> int:
@@ -153,6 +156,7 @@ def compare(
     age_adjust: str | None = None,
     standard: str | Standard | None = None,
     not_asked: Sequence[str] = ("skipped",),
+    period_df: str = "sum",
 ) -> Comparison:
     """Compare groups: differences with design-based SEs, global tests, trends, reasons.
 
@@ -192,6 +196,8 @@ def compare(
     """
     plan = _plan(data, design, variables, by, reference, pairs, adjust_p, level, trend,
                  age_adjust, standard, categorical, where, reasons)
+    plan = replace(plan, pair_df=period_pair_df(plan.by, plan.labels,
+                                                plan.eng.bound.summary(), period_df))
     diff_rows: list[dict[str, Any]] = []
     test_rows: list[dict[str, Any]] = []
     for name in variables:  # loop over variables only
@@ -206,7 +212,9 @@ def compare(
             test_rows += t
     _adjust(diff_rows, adjust_p)
     settings = {"pairs": pairs, "reference": plan.labels[plan.pairs[0][0]],
-                "adjust_p": adjust_p, "df_rule": "design", "level": level,
+                "adjust_p": adjust_p,
+                "df_rule": "design" if plan.pair_df is None else "satterthwaite (periods)",
+                "level": level,
                 "standard": plan.standard, "age_adjust": age_adjust,
                 "deff_at": "independence fit", "wald_df2": "d - k + 2"}
     return Comparison(RowTable(tuple(diff_rows), DIFFERENCE_COLUMNS),
@@ -321,7 +329,8 @@ def _variable(data: Dataset, plan: _Plan, name: str, forced: bool
         flags = _age_flags(cov, j, g)
         sub = cov.covariance.subset(np.arange(j * g, (j + 1) * g))
         level_head = {**head, "level": lab if stat == "proportion" else None}
-        diffs += difference_rows(sub, plan.pairs, plan.labels, level_head, plan.level, flags)
+        diffs += difference_rows(sub, plan.pairs, plan.labels, level_head, plan.level, flags,
+                                 plan.pair_df)
         test_head = {"variable": name, "by": plan.by, "quantity": stat,
                      "level": level_head["level"], "standard": plan.standard}
         if plan.trend:

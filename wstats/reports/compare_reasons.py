@@ -42,7 +42,8 @@ def reason_rows(data: Dataset, plan: Any, name: str, not_asked: Sequence[str]
     cov = joint_covariance(eng.sums, [(inf, np.arange(1, g + 1), np.ones(g, np.int64))])
     head = {"variable": name, "statistic": "nonresponse-rate", "level": None, "by": plan.by,
             "standard": None}
-    diffs = difference_rows(cov, plan.pairs, plan.labels, head, plan.level)
+    diffs = difference_rows(cov, plan.pairs, plan.labels, head, plan.level,
+                            pair_df=plan.pair_df)
     kind = np.select([reasons == VALID, reasons == DONT_KNOW, reasons == REFUSED],
                      [0, 1, 2], 3)
     cell = eng.sums.domains.cell

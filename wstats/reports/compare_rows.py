@@ -6,12 +6,19 @@ tables. Column meanings are listed in :data:`DIFFERENCE_COLUMNS` and :data:`TEST
 
 from __future__ import annotations
 
-from collections.abc import Sequence
+from collections.abc import Callable, Sequence
+from dataclasses import replace
 from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
-from wstats.estimation.contrasts import contrast, differences, trend_coefficients, wald_equal
+from wstats.estimation.contrasts import (
+    contrast,
+    differences,
+    t_two_sided,
+    trend_coefficients,
+    wald_equal,
+)
 from wstats.estimation.covariance import joint_covariance
 from wstats.estimation.influence import indicator_influence
 from wstats.estimation.intervals import wald_t
@@ -21,8 +28,11 @@ if TYPE_CHECKING:
     from wstats.estimation.covariance import Covariance
     from wstats.estimation.sums import WeightedSums
 
-__all__ = ["DIFFERENCE_COLUMNS", "FLAGS", "TEST_COLUMNS", "difference_rows", "rao_scott_table",
-           "trend_rows", "wald_row"]
+#: (group a, group b, variance of a, variance of b) -> degrees of freedom of b - a
+PairDf = Callable[[int, int, float, float], float]
+
+__all__ = ["DIFFERENCE_COLUMNS", "FLAGS", "TEST_COLUMNS", "PairDf", "difference_rows",
+           "rao_scott_table", "trend_rows", "wald_row"]
 
 #: variable, statistic (mean / proportion / nonresponse-rate), level (None for a mean), by,
 #: group_a, group_b (level labels; the difference is b - a), estimate_a, estimate_b,
@@ -66,25 +76,34 @@ def _flags(se: float, df: float, extra: Sequence[str] = ()) -> list[str]:
 
 
 def difference_rows(cov: Covariance, pairs: Sequence[tuple[int, int]], labels: Sequence[str],
-                    head: dict[str, Any], level: float, flags: Sequence[str] = ()
-                    ) -> list[dict[str, Any]]:
+                    head: dict[str, Any], level: float, flags: Sequence[str] = (),
+                    pair_df: PairDf | None = None) -> list[dict[str, Any]]:
     """Return one row per pair (a, b) of estimates of *cov*: b - a with SE, CI, t and p.
 
     *head* holds the row's variable, statistic, level, by and standard; *labels* the groups'.
+    *pair_df* (a, b, v_a, v_b) -> df replaces the design df of a pair (pooled periods:
+    Satterthwaite's, :func:`wstats.design.pooling.change_df`).
     """
     a = np.array([p[0] for p in pairs], dtype=np.int64)
     b = np.array([p[1] for p in pairs], dtype=np.int64)
     d = differences(cov, a, b)
-    low, high = wald_t(d.estimate, d.se, np.full(len(a), cov.df), level)
+    row_df = np.full(len(a), cov.df)
+    if pair_df is not None:
+        v = np.diag(cov.matrix)
+        row_df = np.array([pair_df(int(i), int(j), float(v[i]), float(v[j]))
+                           for i, j in zip(a, b, strict=True)])  # loop over pairs only
+        d = replace(d, p=t_two_sided(d.t, row_df))
+    low, high = wald_t(d.estimate, d.se, row_df, level)
     rows = []
     for k in range(len(a)):  # loop over group pairs only
         rows.append({**head, "group_a": labels[a[k]], "group_b": labels[b[k]],
                      "estimate_a": float(cov.estimate[a[k]]),
                      "estimate_b": float(cov.estimate[b[k]]),
                      "difference": float(d.estimate[k]), "se": float(d.se[k]),
-                     "ci_low": float(low[k]), "ci_high": float(high[k]), "df": cov.df,
-                     "t": float(d.t[k]), "p": float(d.p[k]), "p_adjusted": float(d.p[k]),
-                     "flags": _flags(float(d.se[k]), cov.df, flags)})
+                     "ci_low": float(low[k]), "ci_high": float(high[k]),
+                     "df": float(row_df[k]), "t": float(d.t[k]), "p": float(d.p[k]),
+                     "p_adjusted": float(d.p[k]),
+                     "flags": _flags(float(d.se[k]), float(row_df[k]), flags)})
     return rows
 
 

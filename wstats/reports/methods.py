@@ -110,6 +110,7 @@ def methods_paragraph(
     sentences = [
         f"Estimates were made from {data_name} with every record weighted by "
         f"{design_summary.get('weight', 'the design weight')}.",
+        _pool_sentence(design_summary.get("pool")),
         _variance_sentence(design_summary),
         *_scope_sentences(design_summary, settings),
         _interval_sentence(settings),
@@ -170,6 +171,23 @@ def _variance_sentence(d: Mapping[str, Any]) -> str:
         return parts + " No stratum had a single PSU."
     strata = "One stratum" if count == 1 else f"{count} strata"
     return f"{parts} {strata} with a single PSU {_SINGLETON.get(singleton, singleton)}"
+
+
+def _pool_sentence(pool: Mapping[str, Any] | None) -> str:
+    """Describe how several files were pooled (empty for one file)."""
+    if not pool:
+        return ""
+    factors = dict(pool.get("factors") or {})
+    rule = {"equal": "an equal share, 1/K", "rows": "a share proportional to its rows"}.get(
+        str(pool.get("rule")), "the factor given")
+    shares = ", ".join(f"{k} {_number(round(float(v), 4))}" for k, v in factors.items())
+    strata = ("strata and PSUs were kept distinct per file, so the files count as independent "
+              "samples" if pool.get("strata") == "distinct per file" else
+              "the files share their strata and PSUs, so the covariance between periods is "
+              "estimated")
+    return (f"Records of {len(factors)} files were pooled; each file's weights were multiplied "
+            f"by {rule} ({shares}), so totals describe an average period, not the sum of the "
+            f"periods; {strata}.")
 
 
 def _interval_sentence(settings: Mapping[str, Any]) -> str:

@@ -33,6 +33,7 @@ from __future__ import annotations
 
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, field, replace
+from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
 import numpy as np
@@ -48,6 +49,7 @@ if TYPE_CHECKING:
     import numpy.typing as npt
     import pandas as pd
 
+    from wstats.decoding.codebook import Codebook
     from wstats.design.declared import Design
     from wstats.estimation.results import EstimateTable
 
@@ -170,7 +172,7 @@ def nonresponse_reasons(data: Dataset, count_invalid: bool = True,
 
 
 def nonresponse(
-    data: Dataset,
+    data: Dataset | str | Path | Sequence[str | Path],
     design: Design,
     variables: Sequence[str],
     *,
@@ -180,12 +182,15 @@ def nonresponse(
     count_invalid: bool = True,
     sort_worst: bool = False,
     not_asked: Sequence[str] = NOT_ASKED,
+    engine: str = "memory",
+    codebook: Codebook | str | Path | None = None,
+    scheduler: str | None = None,
 ) -> NonresponseTable:
     """Count missing values by reason and estimate item nonresponse rates.
 
     Parameters
     ----------
-    data : decoded dataset.
+    data : decoded dataset, or the data files (several are pooled; read with *codebook*).
     design : the sample design (weights, strata, PSUs or replicates).
     variables : items to break down.
     by : variables whose crossed levels form domains (the population row comes first).
@@ -198,6 +203,9 @@ def nonresponse(
         the denominator like ``skipped``, which is always among them. Default: ``skipped``
         and ``not_applicable``; a list given replaces it (``("skipped",)`` counts
         ``not_applicable`` as nonresponse).
+    engine : ``memory`` (default), or ``dask``: *data* are then the data files (a path, a
+        glob, a folder or a list), read with *codebook* partition by partition on a Dask
+        cluster (*scheduler*: a running one; None: a local cluster for the call).
 
     Returns
     -------
@@ -216,10 +224,21 @@ def nonresponse(
     >>> float(t.frame["nonresponse_rate"][0])
     0.25
     """
-    require_dataset(data, "nonresponse")
+    if not isinstance(data, Dataset | str | Path | list | tuple):
+        require_dataset(data, "nonresponse")  # e.g. a pandas frame: say how to wrap it
     from wstats.estimation.estimate import estimate
     from wstats.estimation.reliability import STANDARDS
 
+    if engine == "dask":
+        return _on_dask(data, design, variables, by=by, where=where, level=level,
+                        count_invalid=count_invalid, sort_worst=sort_worst,
+                        not_asked=not_asked, codebook=codebook, scheduler=scheduler)
+    if engine != "memory":
+        raise EstimationError(f"engine '{engine}' is not one of memory, dask")
+    if not isinstance(data, Dataset):
+        from wstats.estimation.estimate import _read_files
+
+        data = _read_files(data, design, [*variables, *by], where, codebook)
     names = _check_variables(data, variables)
     # a default reason the data never met is left out; a name the caller gave must exist
     skip = tuple(r for r in dict.fromkeys(("skipped", *not_asked))
@@ -238,6 +257,31 @@ def nonresponse(
     settings = _settings(counted, skip, count_invalid, est, design)
     return NonresponseTable(frame, tuple(by), data.vocabulary.names, est.level, est.design,
                             settings)
+
+
+def _on_dask(data: Dataset | str | Path | Sequence[str | Path], design: Design,
+             variables: Sequence[str], *, by: Sequence[str], where: str | None, level: float,
+             count_invalid: bool, sort_worst: bool, not_asked: Sequence[str],
+             codebook: Codebook | str | Path | None, scheduler: str | None
+             ) -> NonresponseTable:
+    """Return the table from parts summed on the Dask engine (the same assembly)."""
+    from wstats.reports.nonresponse_dask import dask_parts
+
+    if isinstance(data, Dataset):
+        raise EstimationError("engine 'dask' reads the data files itself; give their paths "
+                              "(and codebook=...), not a Dataset")
+    names = list(dict.fromkeys(variables))
+    skip = tuple(dict.fromkeys(("skipped", *not_asked)))
+    parts = dask_parts(data, design, names, _RATE, by=by, where=where, level=level,
+                       count_invalid=count_invalid, skip=skip, codebook=codebook,
+                       scheduler=scheduler)
+    frame = _assemble(parts.est, parts.sums, parts.reasons, by, parts.skip_codes)
+    if sort_worst:
+        frame = _worst_first(frame, names)
+    settings = {**_settings(parts.counted, parts.skip, count_invalid, parts.est, design),
+                "engine": "dask"}
+    return NonresponseTable(frame, tuple(by), parts.reasons, parts.est.level,
+                            parts.est.design, settings)
 
 
 def _check_variables(data: Dataset, variables: Sequence[str]) -> list[str]:

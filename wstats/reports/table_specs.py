@@ -85,6 +85,8 @@ class TableSpec:
     outputs : ``(path, format)`` pairs to write.
     p_value : add a p-value column after each grouping variable's columns (Rao-Scott for a
         categorical row, the adjusted Wald F for a mean).
+    files : every data file when ``data`` names several (a list or a glob: pooled, each file
+        one period), else empty; ``data`` is then the first.
     """
 
     source: Path
@@ -105,6 +107,7 @@ class TableSpec:
     proportion_ci: str = "korn-graubard"
     reliability: str = "nchs-2017"
     notes: tuple[str, ...] = ()
+    files: tuple[Path, ...] = ()
     outputs: tuple[tuple[Path, str], ...] = ()
     p_value: bool = False
 
@@ -146,6 +149,9 @@ def load_table_spec(path: str | Path) -> TableSpec:
 
 class _Spec:
     """Checks one parsed spec document key by key, failing with the key's name."""
+
+    #: where relative paths start, in messages
+    RELATIVE_TO = "the spec"
 
     def __init__(self, source: Path, doc: Mapping[str, Any]) -> None:
         self.source, self.doc, self.base = source, doc, source.parent
@@ -193,6 +199,17 @@ class _Spec:
             raise self.fail(key, f"file {p} does not exist; paths are relative to the spec")
         return p
 
+    def data_files(self) -> list[Path]:
+        """Return the data files: one path, a glob or a list of paths (relative to the file)."""
+        from wstats.reports.spec_inputs import data_files
+
+        return data_files(self)
+
+    def pooled_files(self) -> tuple[Path, ...]:
+        """Return the data files when ``data`` names several, else an empty tuple."""
+        files = self.data_files()
+        return tuple(files) if len(files) > 1 else ()
+
     def build(self) -> TableSpec:
         """Check every part and assemble the TableSpec."""
         cells, intervals = self.table("cells"), self.table("intervals")
@@ -201,7 +218,8 @@ class _Spec:
         decimals = int(self.number(cells.get("decimals", 1), "cells.decimals", 0, 10))
         return TableSpec(
             source=self.source, title=self.text(self.doc.get("title", "Table"), "title"),
-            data=self.path("data", True) or self.base, codebook=self.path("codebook", False),
+            data=self.data_files()[0], files=self.pooled_files(),
+            codebook=self.path("codebook", False),
             design=self.design(), rows=self.rows(),
             where=self.text(self.doc["where"], "where") if "where" in self.doc else None,
             **self.columns(), styles=self.styles(cells), decimals=decimals,

@@ -120,7 +120,8 @@ def build_table(
     design = _design(spec, codebook)
     _check_variables(spec, codebook)
     if data is None:
-        data = read(spec.data, columns=_needed(spec, design), codebook=codebook,
+        data = read(list(spec.files) or spec.data, columns=_needed(spec, design),
+                    codebook=codebook,
                     progress=progress)
     estimates = _estimate_all(spec, data, design)
     columns = _columns(spec, estimates, data)
@@ -131,7 +132,8 @@ def build_table(
     return PublicationTable(
         title=spec.title, cells=cells, numbers=numbers, columns=columns, estimates=estimates,
         footnotes=tuple(layout.footnotes()), methods=_methods(spec, estimates, codebook),
-        provenance=provenance([spec.data, spec.source], spec.codebook, estimates.design,
+        provenance=provenance([*(spec.files or (spec.data,)), spec.source], spec.codebook,
+                              estimates.design,
                               f"wstats table {spec.source.name}", time=time),
         outputs=spec.outputs, spec=spec,
     )
@@ -157,7 +159,8 @@ def _check_variables(spec: TableSpec, codebook: Codebook | None) -> None:
     """Fail with the spec key when a row or grouping variable is nowhere to be found."""
     from wstats.readers.dispatch import file_columns
 
-    known = set(file_columns(spec.data)) | set(codebook.derived if codebook else ())
+    known = {c for f in (spec.files or (spec.data,)) for c in file_columns(f)} | set(
+        codebook.derived if codebook else ()) | ({"_file"} if spec.files else set())
     named = [(f"rows[{i}].variable", r.variable) for i, r in enumerate(spec.rows)]
     named += [(f"columns.by[{i}]", b) for i, b in enumerate(spec.by)]
     for key, name in named:
