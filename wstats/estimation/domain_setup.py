@@ -53,6 +53,9 @@ def build_domains(data: Dataset, bound: BoundDesign, by: list[str], where: str |
         values, reasons = expr.evaluate(data.columns, data.vocabulary, data.n_rows)
         ok = (reasons == VALID) & (np.nan_to_num(values, nan=0.0) != 0)
         inside = ok if bound.rows is None else ok[bound.rows]
+        if not inside.any():  # the sums engine needs at least one row in the population
+            raise EstimationError(f"the condition '{where}' selects no row; check it against "
+                                  "the variables' values and codes")
     codes: list[Index] = []
     levels: list[tuple[list[Any], list[Any]]] = []
     for name in by:
