@@ -32,3 +32,13 @@ def test_where_selecting_no_row_is_a_one_line_error() -> None:
         compare(ds, DESIGN, ["y"], by="g", where="y > 1000")
     with pytest.raises(EstimationError, match=r"'y > 1000' selects no row"):
         estimate(ds, DESIGN, ["y"], by=["g"], where="y > 1000")
+
+
+def test_standard_file_with_an_unknown_key_is_refused(tmp_path: Path) -> None:
+    # common practice, no source: a misspelt key must not be dropped in silence
+    from wstats.estimation.standards import load_standard
+
+    f = tmp_path / "std.toml"
+    f.write_text('name = "s"\nsorce = "typo"\nsource = "t"\n[population]\n"1" = 1\n"2" = 3\n')
+    with pytest.raises(UsageError, match=r"std.toml: unknown key 'sorce'.*name, source"):
+        load_standard(str(f))

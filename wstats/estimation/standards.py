@@ -120,11 +120,19 @@ def _read_file(path: Path) -> Standard:
     return standard_from_mapping(doc, f"standard file {path}")
 
 
+#: the keys of a standard file (or of an inline standard in a table spec)
+_KEYS = ("name", "source", "population")
+
+
 def standard_from_mapping(doc: Mapping[str, Any], origin: str) -> Standard:
     """Return the standard a parsed TOML table describes (a file, or inline in a spec).
 
     *origin* starts the one-line message of a mistake (e.g. ``standard file x.toml``).
     """
+    unknown = [k for k in doc if k not in _KEYS]
+    if unknown:
+        raise UsageError(f"{origin}: unknown key '{unknown[0]}'; the keys are "
+                         f"{', '.join(_KEYS)}{did_you_mean(unknown[0], _KEYS)}")
     pop = doc.get("population")
     name, source = doc.get("name"), doc.get("source")
     if not isinstance(name, str) or not isinstance(source, str) or not name:
