@@ -42,3 +42,41 @@ def test_standard_file_with_an_unknown_key_is_refused(tmp_path: Path) -> None:
     f.write_text('name = "s"\nsorce = "typo"\nsource = "t"\n[population]\n"1" = 1\n"2" = 3\n')
     with pytest.raises(UsageError, match=r"std.toml: unknown key 'sorce'.*name, source"):
         load_standard(str(f))
+
+
+def test_all_missing_variable_gives_empty_rows_without_a_df_flag() -> None:
+    # Korn & Graubard (1990): 'wald-unstable' means d - k + 2 <= 0; with no group estimated
+    # there is no F at all, which is not a matter of degrees of freedom
+    ds = _data()
+    cols = {k: ds[k].values for k in ds.columns}
+    cols["y"] = np.full(len(cols["y"]), np.nan)
+    r = compare(Dataset.from_arrays(cols), DESIGN, ["y"], by="g")
+    assert all(np.isnan(x["difference"]) and "se-zero" in x["flags"]
+               for x in r.differences.rows)
+    wald = r.tests.rows[0]
+    assert np.isnan(wald["statistic"]) and "wald-unstable" not in wald["flags"]
+    assert "se-zero" in wald["flags"]
+
+
+def test_trend_leaves_out_a_group_without_respondents() -> None:
+    # REFERENCES §13: L = c'theta over the levels that have an estimate (as the Wald F
+    # leaves an empty group out); the contrast equals the one of the data without the level
+    ds = _data()
+    labelled = Dataset.from_arrays({k: ds[k].values for k in ds.columns})
+    labelled["g"].value_labels.update({1.0: "a", 2.0: "b", 3.0: "c", 4.0: "d"})
+    with_empty = compare(labelled, DESIGN, ["y"], by="g", trend=True)
+    plain = compare(ds, DESIGN, ["y"], by="g", trend=True)
+    got = [t for t in with_empty.tests.rows if t["test"] == "trend-linear"][0]
+    want = [t for t in plain.tests.rows if t["test"] == "trend-linear"][0]
+    assert got["estimate"] == pytest.approx(want["estimate"], rel=1e-12)
+    assert got["se"] == pytest.approx(want["se"], rel=1e-12)
+    assert not any(t["test"] == "trend-quadratic" for t in with_empty.tests.rows)
+
+
+def test_trend_across_text_groups_is_refused() -> None:
+    # common practice, no source: text levels have no order or spacing to score
+    ds = _data()
+    cols = {k: ds[k].values for k in ds.columns}
+    cols["g"] = np.array(["north", "south", "east"])[cols["g"].astype(int) - 1]
+    with pytest.raises(UsageError, match="trend across the levels of g.*text"):
+        compare(Dataset.from_arrays(cols), DESIGN, ["y"], by="g", trend=True)

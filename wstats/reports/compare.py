@@ -226,6 +226,10 @@ def _plan(data: Dataset, design: Design, variables: Sequence[str], by: str,
     ref = _reference(reference, labels, values, by)
     chosen = ([(a, b) for a in range(len(labels)) for b in range(a + 1, len(labels))]
               if pairs == "all" else [(ref, b) for b in range(len(labels)) if b != ref])
+    if trend and not all(isinstance(v, int | float) for v in values):
+        raise UsageError(f"a trend across the levels of {by} needs numeric codes to order and "
+                         f"space them, but {by} holds text; recode it to numbers in the "
+                         "codebook or leave out --trend")
     scores = [float(v) if isinstance(v, int | float) else float(i)
               for i, v in enumerate(values)]
     if age_adjust is None or standard is None:

@@ -99,7 +99,8 @@ def _test_row(head: dict[str, Any], **values: Any) -> dict[str, Any]:
 def wald_row(cov: Covariance, head: dict[str, Any], flags: Sequence[str] = ()) -> dict[str, Any]:
     """Return the adjusted Wald F row that every estimate of *cov* is equal."""
     w = wald_equal(cov)
-    extra = list(flags) + ([] if w.df2 > 0 else ["wald-unstable"])
+    # with fewer than 2 groups estimated there is no F whatever the df (flag se-zero only)
+    extra = list(flags) + (["wald-unstable"] if w.df1 >= 1 and not w.df2 > 0 else [])
     return _test_row(head, test="wald", statistic=w.f, df1=w.df1, df2=w.df2, p=w.p,
                      flags=_flags(1.0 if np.isfinite(w.f) else np.nan, cov.df, extra))
 
@@ -124,8 +125,18 @@ def rao_scott_table(sums: WeightedSums, cell: Any, shape: tuple[int, int], n: in
 
 def trend_rows(cov: Covariance, scores: Sequence[float], head: dict[str, Any],
                flags: Sequence[str] = ()) -> list[dict[str, Any]]:
-    """Return the linear (and, with 4 or more groups, quadratic) trend contrast rows."""
-    linear, quadratic = trend_coefficients(scores)
+    """Return the linear (and, with 4 or more groups, quadratic) trend contrast rows.
+
+    Groups without an estimate (no respondent) are left out, as in the Wald F: the
+    contrasts are those of the remaining levels' scores.
+    """
+    made = np.flatnonzero(np.isfinite(cov.estimate))
+    if len(made) < 2:
+        return [_test_row(head, test="trend-linear", statistic=np.nan, df1=1.0, df2=cov.df,
+                          p=np.nan, estimate=np.nan, se=np.nan,
+                          flags=_flags(np.nan, cov.df, flags))]
+    cov = cov.subset(made)
+    linear, quadratic = trend_coefficients(np.asarray(scores, dtype=np.float64)[made])
     rows = []
     for name, coef in (("trend-linear", linear), ("trend-quadratic", quadratic)):
         if coef is None:
