@@ -80,3 +80,17 @@ def test_trend_across_text_groups_is_refused() -> None:
     cols["g"] = np.array(["north", "south", "east"])[cols["g"].astype(int) - 1]
     with pytest.raises(UsageError, match="trend across the levels of g.*text"):
         compare(Dataset.from_arrays(cols), DESIGN, ["y"], by="g", trend=True)
+
+
+def test_age_variable_that_is_also_the_group_or_a_variable_is_refused() -> None:
+    # REFERENCES §15: adjusting over the levels of the variable that forms the groups (or
+    # that is estimated) has no meaning; the message says which role to drop
+    ds = _data()
+    with pytest.raises(UsageError, match="'age' is both the grouping variable and the age"):
+        compare(ds, DESIGN, ["y"], by="age", age_adjust="age", standard="us2000-adults20")
+    with pytest.raises(UsageError, match="'age' is both compared and the age variable"):
+        compare(ds, DESIGN, ["age"], by="g", age_adjust="age", standard="us2000-adults20")
+    with pytest.raises(UsageError, match="'age' is both a by-variable and the age variable"):
+        estimate(ds, DESIGN, ["y"], by=["age"], age_adjust="age", standard="us2000-adults20")
+    with pytest.raises(UsageError, match="'age' is both estimated and the age variable"):
+        estimate(ds, DESIGN, ["age"], age_adjust="age", standard="us2000-adults20")

@@ -17,7 +17,7 @@ from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
-from wstats.errors import EstimationError
+from wstats.errors import EstimationError, UsageError
 from wstats.estimation.covariance import Covariance
 
 if TYPE_CHECKING:
@@ -25,7 +25,8 @@ if TYPE_CHECKING:
 
     Array = npt.NDArray[np.float64]
 
-__all__ = ["AGE_FLAG", "AGE_FLAGS", "Adjusted", "adjust_cells", "unit_label"]
+__all__ = ["AGE_FLAG", "AGE_FLAGS", "Adjusted", "adjust_cells", "check_age_roles",
+           "unit_label"]
 
 #: flag of an adjusted value with a 0 % / 100 % (SE 0) age cell
 AGE_FLAG = "age-cell-0-or-100"
@@ -50,6 +51,21 @@ class Adjusted:
     covariance: Covariance
     degenerate: npt.NDArray[np.bool_]
     empty: npt.NDArray[np.bool_]
+
+
+def check_age_roles(age: str, by: Sequence[str], variables: Sequence[str],
+                    by_role: str = "a by-variable", var_role: str = "estimated") -> None:
+    """Refuse an age variable that also forms the groups or is itself analysed.
+
+    Adjusting over the levels of the variable that defines a domain leaves one age group per
+    domain (the other cells empty); standardising a variable over itself has no meaning.
+    """
+    if age in by:
+        raise UsageError(f"variable '{age}' is both {by_role} and the age variable; "
+                         "adjust over another variable or drop it from the groups")
+    if age in variables:
+        raise UsageError(f"variable '{age}' is both {var_role} and the age variable; "
+                         "drop it from the variables")
 
 
 def adjust_cells(cov: Covariance, weights: Array, unit_name: Callable[[int], str],

@@ -214,9 +214,13 @@ def _plan(data: Dataset, design: Design, variables: Sequence[str], by: str,
     from wstats.estimation.domain_setup import check_names
 
     check_names(data, [*variables, by, *categorical, *([age_adjust] if age_adjust else [])])
-    if by in variables or (age_adjust is not None and age_adjust in (by, *variables)):
-        raise UsageError(f"variable '{by if by in variables else age_adjust}' is both compared "
-                         "and used to form groups; drop it from one of them")
+    if by in variables:
+        raise UsageError(f"variable '{by}' is both compared and used to form groups; drop it "
+                         "from one of them")
+    if age_adjust is not None:
+        from wstats.estimation.age_adjust import check_age_roles
+
+        check_age_roles(age_adjust, [by], variables, "the grouping variable", "compared")
     eng = domain_sums(data, design, [by] if age_adjust is None else [by, age_adjust], where)
     values, shown = eng.levels[0]
     labels = [str(s) for s in shown]
