@@ -94,3 +94,21 @@ def test_age_variable_that_is_also_the_group_or_a_variable_is_refused() -> None:
         estimate(ds, DESIGN, ["y"], by=["age"], age_adjust="age", standard="us2000-adults20")
     with pytest.raises(UsageError, match="'age' is both estimated and the age variable"):
         estimate(ds, DESIGN, ["age"], age_adjust="age", standard="us2000-adults20")
+
+
+def test_continuous_age_with_a_built_in_standard_gets_a_short_message(tmp_path: Path) -> None:
+    # common practice, no source: single years of age are allowed with a standard file
+    # keyed by year, but a built-in standard cannot match them; the message stays one
+    # readable line (no list of 70 levels) and says how to group the ages
+    ds = _data()
+    cols = {k: ds[k].values for k in ds.columns}
+    cols["years"] = 18.0 + np.arange(len(cols["y"])) % 70
+    data = Dataset.from_arrays(cols)
+    with pytest.raises(EstimationError, match=r"70 levels \(18, 19, .*, 87\); group") as err:
+        compare(data, DESIGN, ["y"], by="g", age_adjust="years", standard="us2000-adults20")
+    assert len(str(err.value)) < 300
+    f = tmp_path / "s.toml"
+    f.write_text('name = "s"\nsource = "t"\n[population]\n"1" = 1\n"2" = 3\n')
+    with pytest.raises(EstimationError, match=r"codes: 18, 19, .*, 87\)") as err:
+        compare(data, DESIGN, ["y"], by="g", age_adjust="years", standard=str(f))
+    assert len(str(err.value)) < 300

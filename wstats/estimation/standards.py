@@ -161,7 +161,7 @@ def adjustment_weights(standard: Standard, codes: Sequence[Any], labels: Sequenc
         if missing:
             raise EstimationError(
                 f"standard '{standard.name}' has group '{missing[0]}', which is not a code of "
-                f"{age_name} (codes: {', '.join(keys)}); fix the [population] keys")
+                f"{age_name} (codes: {_listed(keys)}); fix the [population] keys")
         share = dict(zip(standard.groups, standard.shares.tolist(), strict=True))
         c = np.array([share.get(k, 0.0) for k in keys])
     else:
@@ -169,9 +169,17 @@ def adjustment_weights(standard: Standard, codes: Sequence[Any], labels: Sequenc
             raise EstimationError(
                 f"standard '{standard.name}' has {len(standard.groups)} age groups "
                 f"({', '.join(standard.groups)}) but {age_name} has {len(codes)} levels "
-                f"({', '.join(map(str, labels))}); give a standard file for {age_name}'s codes")
+                f"({_listed(list(map(str, labels)))}); group the ages into these classes (a "
+                f"categorical [derived] variable) or give a standard file for {age_name}'s codes")
         c = standard.shares.copy()
     return np.asarray(c / c.sum())
+
+
+def _listed(items: Sequence[str], most: int = 12) -> str:
+    """Return *items* joined by commas, the middle elided when there are more than *most*."""
+    if len(items) <= most:
+        return ", ".join(items)
+    return ", ".join([*items[: most - 2], "...", *items[-1:]])
 
 
 def _code_text(code: Any) -> str:
