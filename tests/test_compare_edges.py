@@ -112,3 +112,22 @@ def test_continuous_age_with_a_built_in_standard_gets_a_short_message(tmp_path: 
     with pytest.raises(EstimationError, match=r"codes: 18, 19, .*, 87\)") as err:
         compare(data, DESIGN, ["y"], by="g", age_adjust="years", standard=str(f))
     assert len(str(err.value)) < 300
+
+
+def test_rows_with_zero_weight_do_not_count_in_the_rao_scott_n() -> None:
+    # REFERENCES §14: n is the records in the (weighted) table; a record of weight 0 is
+    # not in it. X2 and delta-bar scale with n, the corrected F does not (Rao & Scott 1981)
+    ds = _data(3)
+    cols = {k: ds[k].values.copy() for k in ds.columns}
+    cols["b"][::7] = np.nan  # some item nonresponse, so that reasons are tested too
+    ds = Dataset.from_arrays(cols)
+    more = {k: np.concatenate([v, v[:100]]) for k, v in cols.items()}
+    more["w"][len(cols["w"]):] = 0.0
+    one = compare(ds, DESIGN, ["b"], by="g", categorical=["b"], reasons=True).tests.rows
+    two = compare(Dataset.from_arrays(more), DESIGN, ["b"], by="g", categorical=["b"],
+                  reasons=True).tests.rows
+    assert [t["quantity"] for t in one] == ["proportion", "reasons"]
+    for a, b in zip(one, two, strict=True):
+        for key in ("pearson_chisq", "mean_deff", "statistic", "p"):
+            if a[key] is not None:
+                assert b[key] == pytest.approx(a[key], rel=1e-9), key

@@ -374,7 +374,7 @@ def _independence(data: Dataset, plan: _Plan, col: DecodedColumn, name: str
     group = group_codes(plan)
     both = (code >= 0) & (group >= 0)
     cell = np.where(both, code * plan.n_groups + group, -1)
-    return rao_scott_table(plan.eng.sums, cell, (len(labels), plan.n_groups), int(both.sum()),
+    return rao_scott_table(plan.eng.sums, cell, (len(labels), plan.n_groups),
                            {"variable": name, "by": plan.by, "quantity": "proportion",
                             "level": None, "standard": None})
 

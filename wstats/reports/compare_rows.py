@@ -105,14 +105,16 @@ def wald_row(cov: Covariance, head: dict[str, Any], flags: Sequence[str] = ()) -
                      flags=_flags(1.0 if np.isfinite(w.f) else np.nan, cov.df, extra))
 
 
-def rao_scott_table(sums: WeightedSums, cell: Any, shape: tuple[int, int], n: int,
+def rao_scott_table(sums: WeightedSums, cell: Any, shape: tuple[int, int],
                     head: dict[str, Any]) -> dict[str, Any]:
     """Return the Rao-Scott row of an r x c table whose cells (row-major) each row codes.
 
     *cell*: per row its cell number, -1 outside the table; the shares and their covariance
-    are taken over the population domain.
+    are taken over the population domain. n counts the rows in the table with a positive
+    weight (a row of weight 0 adds nothing to the shares, so it is not in the table).
     """
     k = shape[0] * shape[1]
+    n = int(np.count_nonzero((np.asarray(cell) >= 0) & (sums.design.weights > 0)))
     inf = indicator_influence(sums, cell, k)
     cov = joint_covariance(sums, [(inf, np.zeros(k, np.int64), np.arange(k))])
     shares = np.nan_to_num(cov.estimate).reshape(shape)
