@@ -131,3 +131,24 @@ def test_rows_with_zero_weight_do_not_count_in_the_rao_scott_n() -> None:
         for key in ("pearson_chisq", "mean_deff", "statistic", "p"):
             if a[key] is not None:
                 assert b[key] == pytest.approx(a[key], rel=1e-9), key
+
+
+def test_age_group_with_respondents_missing_from_the_standard_is_an_error(
+        tmp_path: Path) -> None:
+    # REFERENCES §15: the adjusted value standardises every age group analysed; an age group
+    # with respondents that the standard leaves out would drop them in silence (the crude and
+    # adjusted values would describe different populations)
+    f = tmp_path / "two.toml"
+    f.write_text('name = "two"\nsource = "t"\n[population]\n"1" = 300\n"2" = 100\n')
+    ds = _data()
+    with pytest.raises(EstimationError, match=r"age group '3' of age has respondents but no "
+                       r"share in standard 'two'.*where"):
+        compare(ds, DESIGN, ["y"], by="g", age_adjust="age", standard=str(f))
+    with pytest.raises(EstimationError, match=r"age group '3' of age .* standard 'two'"):
+        estimate(ds, DESIGN, ["y"], age_adjust="age", standard=str(f))
+    # leaving those rows out is the documented way
+    r = compare(ds, DESIGN, ["y"], by="g", age_adjust="age", standard=str(f), where="age != 3")
+    means = estimate(ds, DESIGN, ["y"], by=["g", "age"], where="age != 3").frame
+    cell = means[means["g"].notna() & means["age"].notna()]
+    first = cell[cell["g"].astype(float) == 1.0]["estimate"].to_numpy()[:2]
+    assert r.differences.rows[0]["estimate_a"] == pytest.approx(0.75 * first[0] + 0.25 * first[1])

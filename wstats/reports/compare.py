@@ -240,19 +240,25 @@ def _plan(data: Dataset, design: Design, variables: Sequence[str], by: str,
         return _Plan(eng, by, labels, scores, chosen, level, trend, None, None, eng)
     # the reasons are compared crude: they need the groups without the age cells
     groups = domain_sums(data, design, [by], where) if reasons else eng
-    age, name = _age_plan(eng, age_adjust, standard)
+    age, name = _age_plan(data, eng, age_adjust, standard)
     return _Plan(eng, by, labels, scores, chosen, level, trend, age, name, groups)
 
 
-def _age_plan(eng: DomainSums, age_adjust: str, standard: str | Standard
+def _age_plan(data: Dataset, eng: DomainSums, age_adjust: str, standard: str | Standard
               ) -> tuple[tuple[str, Any, list[str]], str]:
     """Return (age variable, weights per age level, age labels) and the standard's name."""
+    from wstats.estimation.age_adjust import check_standard_covers
+    from wstats.estimation.levels import level_index
     from wstats.estimation.standards import adjustment_weights, load_standard
 
     std = load_standard(standard) if isinstance(standard, str) else standard
     codes, shown = eng.levels[1]
     labels = [str(s) for s in shown]
-    return (age_adjust, adjustment_weights(std, codes, labels, age_adjust), labels), std.name
+    weights = adjustment_weights(std, codes, labels, age_adjust)
+    col = eng.column(data, age_adjust)
+    check_standard_covers(weights, level_index(col, codes, col.valid),
+                          eng.sums.domains.inside, labels, age_adjust, std.name)
+    return (age_adjust, weights, labels), std.name
 
 
 def _check_options(pairs: str, adjust: str, level: float, age_adjust: str | None,
