@@ -152,3 +152,16 @@ def test_age_group_with_respondents_missing_from_the_standard_is_an_error(
     cell = means[means["g"].notna() & means["age"].notna()]
     first = cell[cell["g"].astype(float) == 1.0]["estimate"].to_numpy()[:2]
     assert r.differences.rows[0]["estimate_a"] == pytest.approx(0.75 * first[0] + 0.25 * first[1])
+
+
+def test_wald_with_too_few_df_is_flagged_once() -> None:
+    # Korn & Graubard (1990): F on (k-1, d-k+2) is undefined for d - k + 2 <= 0; that is
+    # the reason given (not an SE of 0)
+    rng = np.random.default_rng(4)
+    n = 400
+    ds = Dataset.from_arrays({"w": np.ones(n), "st": rng.integers(0, 2, n),
+                              "psu": rng.integers(0, 3, n), "g": rng.integers(1, 9, n),
+                              "y": rng.normal(size=n)})
+    wald = compare(ds, DESIGN, ["y"], by="g").tests.rows[0]
+    assert (wald["df1"], wald["df2"]) == (7.0, -2.0)
+    assert wald["flags"] == ["wald-unstable", "df<8"]

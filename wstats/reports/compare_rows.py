@@ -100,9 +100,11 @@ def wald_row(cov: Covariance, head: dict[str, Any], flags: Sequence[str] = ()) -
     """Return the adjusted Wald F row that every estimate of *cov* is equal."""
     w = wald_equal(cov)
     # with fewer than 2 groups estimated there is no F whatever the df (flag se-zero only)
-    extra = list(flags) + (["wald-unstable"] if w.df1 >= 1 and not w.df2 > 0 else [])
+    unstable = w.df1 >= 1 and not w.df2 > 0
+    extra = list(flags) + (["wald-unstable"] if unstable else [])
     return _test_row(head, test="wald", statistic=w.f, df1=w.df1, df2=w.df2, p=w.p,
-                     flags=_flags(1.0 if np.isfinite(w.f) else np.nan, cov.df, extra))
+                     flags=_flags(1.0 if np.isfinite(w.f) or unstable else np.nan, cov.df,
+                                  extra))
 
 
 def rao_scott_table(sums: WeightedSums, cell: Any, shape: tuple[int, int],
