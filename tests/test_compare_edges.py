@@ -165,3 +165,20 @@ def test_wald_with_too_few_df_is_flagged_once() -> None:
     wald = compare(ds, DESIGN, ["y"], by="g").tests.rows[0]
     assert (wald["df1"], wald["df2"]) == (7.0, -2.0)
     assert wald["flags"] == ["wald-unstable", "df<8"]
+
+
+def test_crude_nonresponse_rows_are_said_crude_under_an_age_adjusted_title() -> None:
+    # docs/compare.md: rates are crude, even in an age-adjusted comparison; the text formats
+    # whose title says "age-adjusted" must say which rows are not
+    from wstats.render._compare import compare_notes
+
+    ds = _data()
+    cols = {k: ds[k].values.copy() for k in ds.columns}
+    cols["y"][::9] = np.nan
+    r = compare(Dataset.from_arrays(cols), DESIGN, ["y"], by="g", age_adjust="age",
+                standard="us2000-adults20", reasons=True)
+    assert any("nonresponse rates and the reasons tests are crude" in n
+               for n in compare_notes(r))
+    plain = compare(Dataset.from_arrays(cols), DESIGN, ["y"], by="g", age_adjust="age",
+                    standard="us2000-adults20")
+    assert not any("crude" in n for n in compare_notes(plain))
