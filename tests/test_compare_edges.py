@@ -5,6 +5,7 @@ from __future__ import annotations
 from pathlib import Path
 
 import numpy as np
+import pandas as pd
 import pytest
 
 from wstats import Dataset, Design, estimate
@@ -182,3 +183,26 @@ def test_crude_nonresponse_rows_are_said_crude_under_an_age_adjusted_title() -> 
     plain = compare(Dataset.from_arrays(cols), DESIGN, ["y"], by="g", age_adjust="age",
                     standard="us2000-adults20")
     assert not any("crude" in n for n in compare_notes(plain))
+
+
+def test_table_mean_row_of_a_categorical_variable_gets_its_p_value(tmp_path: Path) -> None:
+    # Korn & Graubard (1990): a mean row's p is the adjusted Wald F of the means, also when
+    # the variable's kind is categorical (the row asks for its mean); it was left blank
+    from wstats.reports.table_specs import load_table_spec
+    from wstats.reports.tables import build_table
+
+    ds = _data()
+    frame = pd.DataFrame({k: ds[k].values for k in ds.columns})
+    frame.to_csv(tmp_path / "s.csv", index=False)
+    (tmp_path / "cb.toml").write_text(
+        '[design]\nweight = "w"\nstrata = "st"\npsu = "psu"\n'
+        '[variables.age]\nkind = "categorical"\nlabels = { 1 = "a", 2 = "b", 3 = "c" }\n')
+    (tmp_path / "t.toml").write_text(
+        'data = "s.csv"\ncodebook = "cb.toml"\ntitle = "T"\n'
+        'rows = [{ variable = "age", statistic = "mean" }]\n'
+        '[columns]\nby = ["g"]\np_value = true\n')
+    table = build_table(load_table_spec(tmp_path / "t.toml"), time=False)
+    data = Dataset.from_arrays({k: ds[k].values for k in ds.columns})
+    want = compare(data, DESIGN, ["age"], by="g", continuous=["age"]).tests.rows[0]
+    assert want["test"] == "wald"
+    assert table.numbers["p:g"].iloc[0] == pytest.approx(want["p"], rel=1e-12)

@@ -140,6 +140,7 @@ def compare(
     reasons: bool = False,
     where: str | None = None,
     categorical: Sequence[str] = (),
+    continuous: Sequence[str] = (),
     level: float = 0.95,
     age_adjust: str | None = None,
     standard: str | Standard | None = None,
@@ -162,6 +163,8 @@ def compare(
     reasons : compare item nonresponse across groups too.
     where : population domain condition (expression language).
     categorical : variables to treat as categorical whatever their kind.
+    continuous : variables whose means are compared whatever their kind (e.g. the mean of
+        a categorical code, as a table row with ``statistic = "mean"`` asks).
     level : confidence level of the intervals of differences.
     age_adjust : the age variable: group estimates are directly age-adjusted.
     standard : standard population for ``age_adjust`` (a built-in name, a TOML file path or
@@ -182,11 +185,12 @@ def compare(
     2.5
     """
     plan = _plan(data, design, variables, by, reference, pairs, adjust_p, level, trend,
-                 age_adjust, standard, categorical, where, reasons)
+                 age_adjust, standard, [*categorical, *continuous], where, reasons)
     diff_rows: list[dict[str, Any]] = []
     test_rows: list[dict[str, Any]] = []
     for name in variables:  # loop over variables only
-        d, t = _variable(data, plan, name, name in categorical)
+        forced = True if name in categorical else (False if name in continuous else None)
+        d, t = _variable(data, plan, name, forced)
         diff_rows += d
         test_rows += t
         if reasons:
@@ -300,14 +304,14 @@ def _code(v: Any) -> str:
     return str(int(v)) if isinstance(v, float) and v.is_integer() else str(v)
 
 
-def _is_categorical(col: DecodedColumn, forced: bool) -> bool:
-    """Return whether *col* is compared by its levels' proportions."""
+def _is_categorical(col: DecodedColumn, forced: bool | None) -> bool:
+    """Return whether *col* is compared by its levels' proportions (*forced*: the caller's)."""
     from wstats.estimation.statistics import is_categorical
 
-    return is_categorical(col, [col.name] if forced else [])
+    return is_categorical(col) if forced is None else forced
 
 
-def _variable(data: Dataset, plan: _Plan, name: str, forced: bool
+def _variable(data: Dataset, plan: _Plan, name: str, forced: bool | None
               ) -> tuple[list[dict[str, Any]], list[dict[str, Any]]]:
     """Return the difference and test rows of one variable."""
     col = plan.eng.column(data, name)
