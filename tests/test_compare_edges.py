@@ -206,3 +206,18 @@ def test_table_mean_row_of_a_categorical_variable_gets_its_p_value(tmp_path: Pat
     want = compare(data, DESIGN, ["age"], by="g", continuous=["age"]).tests.rows[0]
     assert want["test"] == "wald"
     assert table.numbers["p:g"].iloc[0] == pytest.approx(want["p"], rel=1e-12)
+
+
+def test_unavailable_output_format_names_the_format_option_values(
+        tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:
+    # common practice, no source: the message lists values --format accepts ('table', not
+    # the registry's internal name 'terminal')
+    from wstats.cli.main import main
+
+    ds = _data()
+    pd.DataFrame({k: ds[k].values for k in ds.columns}).to_csv(tmp_path / "s.csv", index=False)
+    code = main(["compare", str(tmp_path / "s.csv"), "y", "--by", "g", "--weight", "w",
+                 "-o", str(tmp_path / "out.html")])
+    err = capsys.readouterr().err
+    assert code != 0 and "choose one of csv, json, markdown, table" in err
+    assert len(err.strip().splitlines()) == 1
