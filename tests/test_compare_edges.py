@@ -221,3 +221,18 @@ def test_unavailable_output_format_names_the_format_option_values(
     err = capsys.readouterr().err
     assert code != 0 and "choose one of csv, json, markdown, table" in err
     assert len(err.strip().splitlines()) == 1
+
+
+def test_python_callers_may_pass_one_name_and_a_numeric_reference() -> None:
+    # common practice, no source: as estimate(), one variable may be given as a string; a
+    # reference may be the level's code as a number; an unknown name says where it is not
+    ds = _data()
+    one = compare(ds, DESIGN, "y", by="g")
+    assert [r["variable"] for r in one.differences.rows] == ["y", "y"]
+    for ref in (2, 2.0, "2"):
+        r = compare(ds, DESIGN, ["y"], by="g", reference=ref)  # type: ignore[arg-type]
+        assert [x["group_a"] for x in r.differences.rows] == ["2", "2"]
+    with pytest.raises(UsageError, match="reference '5' is not a level of g"):
+        compare(ds, DESIGN, ["y"], by="g", reference=5)  # type: ignore[arg-type]
+    with pytest.raises(EstimationError, match=r"variable 'nope' is not in the data"):
+        compare(ds, DESIGN, ["nope"], by="g")

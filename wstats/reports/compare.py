@@ -184,6 +184,8 @@ def compare(
     >>> round(compare(ds, Design("w"), ["y"], by="g").differences.rows[0]["difference"], 2)
     2.5
     """
+    if isinstance(variables, str):  # one name, as estimate() takes it
+        variables = [variables]
     plan = _plan(data, design, variables, by, reference, pairs, adjust_p, level, trend,
                  age_adjust, standard, [*categorical, *continuous], where, reasons)
     diff_rows: list[dict[str, Any]] = []
@@ -285,6 +287,8 @@ def _reference(reference: str | None, labels: list[str], values: list[Any], by: 
     """Return the index of the reference group (default the first)."""
     if reference is None:
         return 0
+    if not isinstance(reference, str):  # a code given as a number (Python callers)
+        reference = _code(reference)
     if reference in labels:
         return labels.index(reference)
     codes = [_code(v) for v in values]
