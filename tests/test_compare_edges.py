@@ -236,3 +236,34 @@ def test_python_callers_may_pass_one_name_and_a_numeric_reference() -> None:
         compare(ds, DESIGN, ["y"], by="g", reference=5)  # type: ignore[arg-type]
     with pytest.raises(EstimationError, match=r"variable 'nope' is not in the data"):
         compare(ds, DESIGN, ["nope"], by="g")
+
+
+def test_built_in_standard_follows_the_codes_not_the_label_order() -> None:
+    # REFERENCES §15 (us2000-adults20: 0.396579 / 0.371795 / 0.231626 for 20-39 / 40-59 /
+    # 60+): codes in age order get the weights in order whatever order the labels are
+    # listed in; labels equal to the group names are matched by name; text levels that are
+    # not the group names cannot be put in age order and are refused
+    from wstats.estimation.standards import STANDARDS, adjustment_weights
+
+    std = STANDARDS["us2000-adults20"]
+    want = std.shares
+    # labels listed 60+ first (levels in label order 3, 1, 2)
+    c = adjustment_weights(std, [3.0, 1.0, 2.0], ["60+", "20-39", "40-59"], "AGE")
+    assert c == pytest.approx(want[[2, 0, 1]], abs=1e-12)
+    # only code 2 labelled: levels 2, 1, 3
+    c = adjustment_weights(std, [2.0, 1.0, 3.0], ["middle", "1", "3"], "AGE")
+    assert c == pytest.approx(want[[1, 0, 2]], abs=1e-12)
+    # text levels named as the groups, in sorted text order
+    c = adjustment_weights(std, ["20-39", "40-59", "60+"][::-1], ["60+", "40-59", "20-39"],
+                           "AGE")
+    assert c == pytest.approx(want[::-1], abs=1e-12)
+    with pytest.raises(EstimationError, match="text levels .* age order"):
+        adjustment_weights(std, ["old", "young", "mid"], ["old", "young", "mid"], "AGE")
+    # end to end: the same data with the age labels listed backwards gives the same values
+    ds = _data()
+    back = Dataset.from_arrays({k: ds[k].values for k in ds.columns})
+    back["age"].value_labels.update({3.0: "c", 2.0: "b", 1.0: "a"})
+    r1 = compare(ds, DESIGN, ["y"], by="g", age_adjust="age", standard="us2000-adults20")
+    r2 = compare(back, DESIGN, ["y"], by="g", age_adjust="age", standard="us2000-adults20")
+    assert [x["estimate_b"] for x in r2.differences.rows] == pytest.approx(
+        [x["estimate_b"] for x in r1.differences.rows], rel=1e-12)
