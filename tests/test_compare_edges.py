@@ -267,3 +267,42 @@ def test_built_in_standard_follows_the_codes_not_the_label_order() -> None:
     r2 = compare(back, DESIGN, ["y"], by="g", age_adjust="age", standard="us2000-adults20")
     assert [x["estimate_b"] for x in r2.differences.rows] == pytest.approx(
         [x["estimate_b"] for x in r1.differences.rows], rel=1e-12)
+
+
+def test_not_asked_reasons_reach_compare_from_the_cli_and_analysis_files(
+        tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:
+    # docs/nonresponse.md: the rate's denominator is the rows asked; a reason such as
+    # not_applicable that puts a row outside the item must be givable to compare --reasons
+    # as to nonresponse, or the two commands report different rates for the same item
+    import json
+
+    from wstats.cli.main import main
+    from wstats.decoding.load import read
+
+    ds = _data()
+    frame = pd.DataFrame({k: ds[k].values for k in ds.columns})
+    frame["q"] = np.where(np.arange(len(frame)) % 5 == 0, 8.0,
+                          np.where(np.arange(len(frame)) % 11 == 0, 9.0, frame["b"] + 1))
+    frame.to_csv(tmp_path / "s.csv", index=False)
+    (tmp_path / "cb.toml").write_text(
+        '[design]\nweight = "w"\nstrata = "st"\npsu = "psu"\n'
+        '[reasons]\nnot_applicable = "does not apply"\n'
+        '[variables.q]\nkind = "categorical"\ncodes = { 8 = "not_applicable", 9 = "refused" }\n'
+        'labels = { 1 = "no", 2 = "yes" }\n')
+    data = read(tmp_path / "s.csv", None, tmp_path / "cb.toml")
+    want = compare(data, DESIGN, ["q"], by="g", reasons=True,
+                   not_asked=["not_applicable"]).differences.rows[-1]
+    crude = compare(data, DESIGN, ["q"], by="g", reasons=True).differences.rows[-1]
+    assert want["statistic"] == "nonresponse-rate" and want["estimate_b"] < crude["estimate_b"]
+    out = tmp_path / "c.json"
+    assert main(["compare", str(tmp_path / "s.csv"), "q", "--by", "g", "--codebook",
+                 str(tmp_path / "cb.toml"), "--reasons", "--not-asked",
+                 "skipped,not_applicable", "-o", str(out)]) == 0
+    got = json.loads(out.read_text())["differences"][-1]
+    assert got["estimate_b"] == pytest.approx(want["estimate_b"], rel=1e-12)
+    (tmp_path / "a.toml").write_text(
+        'data = "s.csv"\ncodebook = "cb.toml"\n[[compare]]\nvariables = ["q"]\nby = "g"\n'
+        'reasons = true\nnot_asked = ["not_applicable"]\noutput = "a.json"\n')
+    assert main(["run", str(tmp_path / "a.toml")]) == 0
+    got = json.loads((tmp_path / "a.json").read_text())["differences"][-1]
+    assert got["estimate_b"] == pytest.approx(want["estimate_b"], rel=1e-12)

@@ -98,7 +98,8 @@ def _run_compare(args: argparse.Namespace) -> int:
     result = compare(data, design, args.variables, by=args.by, reference=args.reference,
                      pairs=args.pairs, adjust_p=args.adjust_p, trend=args.trend,
                      reasons=args.reasons, where=args.where, categorical=args.categorical,
-                     level=args.level, age_adjust=args.age_adjust, standard=args.standard)
+                     level=args.level, age_adjust=args.age_adjust, standard=args.standard,
+                     not_asked=tuple(split_list([args.not_asked])))
     _emit(result, "compare", args, [args.data], args.codebook)
     return 0
 
