@@ -51,7 +51,7 @@ def _grid(d: int, v: int) -> tuple[np.ndarray, np.ndarray]:
 
 
 @pytest.mark.parametrize("fpc", [None, "N"])
-@pytest.mark.parametrize("singleton", ["fail", "center", "certainty"])
+@pytest.mark.parametrize("singleton", ["fail", "center", "certainty", "collapse"])
 def test_diagonal_equals_estimate_variances(fpc: str | None, singleton: str) -> None:
     # [C] the diagonal of V is the variance the estimate table reports, to rounding
     cols = _data(3)

@@ -16,7 +16,7 @@ _EXPORTS: dict[str, str] = {
     "Codebook": "wstats.decoding.codebook",
     "CodebookError": "wstats.errors",
     "ColumnError": "wstats.errors",
-    "Comparison": "wstats.reports.compare",
+    "Comparison": "wstats.reports.compare_result",
     "Dataset": "wstats.decoding.columns",
     "DecodedColumn": "wstats.decoding.columns",
     "Design": "wstats.design.declared",

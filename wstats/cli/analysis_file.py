@@ -31,7 +31,7 @@ JOB_KEYS: dict[str, tuple[str, ...]] = {
     "nonresponse": ("name", *_DOMAIN, "count_invalid", "sort_worst", "not_asked", *_OUT),
     "bounds": ("name", *_DOMAIN, "reasons", "reliability", *_OUT),
     "compare": ("name", *_DOMAIN, "reference", "pairs", "adjust_p", "trend", "reasons",
-                "categorical", "age_adjust", "standard", *_OUT),
+                "not_asked", "categorical", "age_adjust", "standard", *_OUT),
     "table": ("spec", "title", "rows", "columns", "where", "cells", "intervals", "notes",
               "reliability", *_OUT),
     "methods": ("estimates", *_OUT),
@@ -309,6 +309,8 @@ class _Parser(_Spec):
                                     ("none", "holm", "bh")),
             "trend": self.flag(entry.get("trend", False), f"{key} trend"),
             "reasons": self.flag(entry.get("reasons", False), f"{key} reasons"),
+            "not_asked": tuple(self.names(entry.get("not_asked", ["skipped"]),
+                                          f"{key} not_asked")),
             "categorical": self.names(entry.get("categorical", []), f"{key} categorical"),
             **self.age(entry, key),
         }

@@ -106,7 +106,8 @@ def _run_compare(args: argparse.Namespace) -> int:
                      pairs=args.pairs, adjust_p=args.adjust_p, trend=args.trend,
                      reasons=args.reasons, where=args.where, categorical=args.categorical,
                      level=args.level, age_adjust=args.age_adjust, standard=args.standard,
-                     period_df=args.period_df)
+                     period_df=args.period_df,
+                     not_asked=tuple(split_list([args.not_asked])))
     _emit(result, "compare", args, paths, args.codebook)
     return 0
 

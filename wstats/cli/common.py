@@ -58,9 +58,10 @@ def _emit(obj: Any, kind: str, args: argparse.Namespace, inputs: Sequence[str],
     fmt = format_for(args)
     registry: Mapping[str, Callable[..., Any]] = getattr(render, f"{kind.upper()}_RENDERERS")
     key = "terminal" if fmt == "table" else fmt
-    if key not in registry:
+    if key not in registry:  # list the --format values ('table' is the terminal's)
+        names = sorted("table" if k == "terminal" else k for k in registry)
         raise UsageError(f"format '{fmt}' is not available for {kind}; choose one of "
-                         f"{', '.join(sorted(registry))}")
+                         f"{', '.join(names)}")
     if key == "terminal" and not args.output:
         _print_rich(registry[key](obj))
         return

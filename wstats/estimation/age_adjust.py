@@ -17,7 +17,7 @@ from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
-from wstats.errors import EstimationError
+from wstats.errors import EstimationError, UsageError
 from wstats.estimation.covariance import Covariance
 
 if TYPE_CHECKING:
@@ -25,7 +25,8 @@ if TYPE_CHECKING:
 
     Array = npt.NDArray[np.float64]
 
-__all__ = ["AGE_FLAG", "AGE_FLAGS", "Adjusted", "adjust_cells", "unit_label"]
+__all__ = ["AGE_FLAG", "AGE_FLAGS", "Adjusted", "adjust_cells", "check_age_roles",
+           "check_standard_covers", "unit_label"]
 
 #: flag of an adjusted value with a 0 % / 100 % (SE 0) age cell
 AGE_FLAG = "age-cell-0-or-100"
@@ -50,6 +51,38 @@ class Adjusted:
     covariance: Covariance
     degenerate: npt.NDArray[np.bool_]
     empty: npt.NDArray[np.bool_]
+
+
+def check_age_roles(age: str, by: Sequence[str], variables: Sequence[str],
+                    by_role: str = "a by-variable", var_role: str = "estimated") -> None:
+    """Refuse an age variable that also forms the groups or is itself analysed.
+
+    Adjusting over the levels of the variable that defines a domain leaves one age group per
+    domain (the other cells empty); standardising a variable over itself has no meaning.
+    """
+    if age in by:
+        raise UsageError(f"variable '{age}' is both {by_role} and the age variable; "
+                         "adjust over another variable or drop it from the groups")
+    if age in variables:
+        raise UsageError(f"variable '{age}' is both {var_role} and the age variable; "
+                         "drop it from the variables")
+
+
+def check_standard_covers(weights: Array, age_code: npt.NDArray[np.int64], inside: Any,
+                          age_labels: Sequence[str], age_name: str, standard: str) -> None:
+    """Refuse an age group with rows in the population that the standard gives no share.
+
+    *age_code*: each row's age level (-1 unknown); *inside*: the population domain. Such rows
+    would be left out of the adjusted value in silence.
+    """
+    rows = (age_code >= 0) & np.asarray(inside, dtype=bool)
+    present = np.bincount(age_code[rows], minlength=len(weights)) > 0
+    lost = np.flatnonzero(present & ~(weights > 0))
+    if len(lost):
+        raise EstimationError(
+            f"age group '{age_labels[int(lost[0])]}' of {age_name} has respondents but no "
+            f"share in standard '{standard}'; add it to the standard's [population] or leave "
+            f"its rows out with a where condition (e.g. {age_name} != ...)")
 
 
 def adjust_cells(cov: Covariance, weights: Array, unit_name: Callable[[int], str],

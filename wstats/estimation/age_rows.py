@@ -15,7 +15,13 @@ from typing import TYPE_CHECKING, Any
 import numpy as np
 
 from wstats.errors import EstimationError
-from wstats.estimation.age_adjust import AGE_FLAG, adjust_cells, unit_label
+from wstats.estimation.age_adjust import (
+    AGE_FLAG,
+    adjust_cells,
+    check_age_roles,
+    check_standard_covers,
+    unit_label,
+)
 from wstats.estimation.covariance import joint_covariance
 from wstats.estimation.influence import domain_sums, mean_influence, proportion_influence
 from wstats.estimation.intervals import wald_t
@@ -41,10 +47,13 @@ def age_adjusted_rows(data: Dataset, design: Design, jobs: Sequence[tuple[str, s
     """
     from wstats.estimation.standards import adjustment_weights
 
+    check_age_roles(age, by, [name for name, _ in jobs])
     whole = domain_sums(data, design, [age], where)
     cells = domain_sums(data, design, [*by, age], where) if by else None
     codes, shown = whole.levels[0]
     weights = adjustment_weights(standard, codes, [str(s) for s in shown], age)
+    check_standard_covers(weights, whole.sums.domains.cell, whole.sums.domains.inside,
+                          [str(s) for s in shown], age, standard.name)
     rows: list[dict[str, Any]] = []
     for name, stat in jobs:  # loop over variables only
         if stat not in ("mean", "proportion"):

@@ -37,7 +37,7 @@ def check_names(data: Dataset, names: Sequence[str]) -> None:
     """Raise EstimationError naming the first variable that is not in *data*."""
     for name in names:
         if name not in data.columns:
-            where = f" in {data.source}" if data.source else ""
+            where = f" in {data.source}" if data.source else " in the data"
             raise EstimationError(
                 f"variable '{name}' is not{where}{did_you_mean(name, data.columns)}"
             )

@@ -93,7 +93,7 @@ def rao_scott(shares: npt.ArrayLike, cov: npt.ArrayLike, n: float, df: float) ->
     v = v[np.ix_(cells, cells)]
     r, c = p.shape
     nu = (r - 1) * (c - 1)
-    if nu < 1 or not (np.isfinite(p).all() and np.isfinite(v).all()):
+    if nu < 1 or not n > 0 or not (np.isfinite(p).all() and np.isfinite(v).all()):
         nan = float("nan")
         return RaoScott(nan, nan, nan, nan, nan, nan, nan, nan, nan, max(nu, 0))
     row, col = p.sum(axis=1), p.sum(axis=0)
@@ -109,8 +109,7 @@ def _corrected(pearson: float, deff: Array, nu: int, df: float) -> RaoScott:
     """Return the first- and second-order corrections of X2 from the design-effect matrix."""
     mean = float(np.trace(deff)) / nu
     cv2 = float(np.trace(deff @ deff)) / (nu * mean * mean) - 1.0 if mean > 0 else np.nan
-    with np.errstate(divide="ignore", invalid="ignore"):
-        first = pearson / (nu * mean)
+    first = pearson / (nu * mean) if mean > 0 else float("nan")  # no design variance: no test
     first_p = float(f_sf(first, nu, df * nu))
     df1, df2 = nu / (1.0 + cv2), df * nu / (1.0 + cv2)
     return RaoScott(pearson, first, first_p, first, df1, df2, float(f_sf(first, df1, df2)),

@@ -23,7 +23,8 @@ Built-in standards (name: groups, source):
 A standard file (TOML) gives any other: ``name = "..."``, ``source = "..."`` and a
 ``[population]`` table whose keys are the age variable's codes as strings and whose values
 are population counts or shares (``"1" = 77670``). A built-in standard is matched to the age
-variable's levels in order (the number of levels must equal the number of groups).
+variable's levels by the groups' names when the labels are those names, else in ascending
+order of the numeric codes (the number of levels must equal the number of groups).
 """
 
 from __future__ import annotations
@@ -120,11 +121,19 @@ def _read_file(path: Path) -> Standard:
     return standard_from_mapping(doc, f"standard file {path}")
 
 
+#: the keys of a standard file (or of an inline standard in a table spec)
+_KEYS = ("name", "source", "population")
+
+
 def standard_from_mapping(doc: Mapping[str, Any], origin: str) -> Standard:
     """Return the standard a parsed TOML table describes (a file, or inline in a spec).
 
     *origin* starts the one-line message of a mistake (e.g. ``standard file x.toml``).
     """
+    unknown = [k for k in doc if k not in _KEYS]
+    if unknown:
+        raise UsageError(f"{origin}: unknown key '{unknown[0]}'; the keys are "
+                         f"{', '.join(_KEYS)}{did_you_mean(unknown[0], _KEYS)}")
     pop = doc.get("population")
     name, source = doc.get("name"), doc.get("source")
     if not isinstance(name, str) or not isinstance(source, str) or not name:
@@ -144,7 +153,8 @@ def adjustment_weights(standard: Standard, codes: Sequence[Any], labels: Sequenc
     """Return the weight c_a of each level of the age variable (0: not in the standard).
 
     *codes*/*labels*: the age variable's levels. A file's groups are its codes; a built-in
-    standard's groups are matched to the levels in order. The weights of the groups found
+    standard's groups are matched by name, else in ascending code order (:func:`_in_age_order`).
+    The weights of the groups found
     are renormalised to sum to 1.
     """
     if standard.by_code:
@@ -153,7 +163,7 @@ def adjustment_weights(standard: Standard, codes: Sequence[Any], labels: Sequenc
         if missing:
             raise EstimationError(
                 f"standard '{standard.name}' has group '{missing[0]}', which is not a code of "
-                f"{age_name} (codes: {', '.join(keys)}); fix the [population] keys")
+                f"{age_name} (codes: {_listed(keys)}); fix the [population] keys")
         share = dict(zip(standard.groups, standard.shares.tolist(), strict=True))
         c = np.array([share.get(k, 0.0) for k in keys])
     else:
@@ -161,9 +171,39 @@ def adjustment_weights(standard: Standard, codes: Sequence[Any], labels: Sequenc
             raise EstimationError(
                 f"standard '{standard.name}' has {len(standard.groups)} age groups "
                 f"({', '.join(standard.groups)}) but {age_name} has {len(codes)} levels "
-                f"({', '.join(map(str, labels))}); give a standard file for {age_name}'s codes")
-        c = standard.shares.copy()
+                f"({_listed(list(map(str, labels)))}); group the ages into these classes (a "
+                f"categorical [derived] variable) or give a standard file for {age_name}'s codes")
+        c = _in_age_order(standard, codes, labels, age_name)
     return np.asarray(c / c.sum())
+
+
+def _in_age_order(standard: Standard, codes: Sequence[Any], labels: Sequence[str],
+                  age_name: str) -> Array:
+    """Return a built-in standard's shares per level: by group name, else by code order.
+
+    Levels are listed in the codebook's label order, which need not be age order; numeric
+    codes are taken in ascending order (age groups are coded youngest first). Text levels
+    must carry the groups' names, as text has no age order ("5-14" sorts after "15-24").
+    """
+    shares = standard.shares
+    names = [str(x).strip() for x in labels]
+    if sorted(names) == sorted(standard.groups):
+        return np.array([shares[standard.groups.index(n)] for n in names])
+    if not all(isinstance(v, int | float) for v in codes):
+        raise EstimationError(
+            f"{age_name} has text levels ({_listed(names)}) that cannot be put in age order; "
+            f"label them as the groups of standard '{standard.name}' "
+            f"({', '.join(standard.groups)}) or code them with numbers, youngest first")
+    out = np.empty(len(codes))
+    out[np.argsort(np.asarray(codes, dtype=np.float64), kind="stable")] = shares
+    return out
+
+
+def _listed(items: Sequence[str], most: int = 12) -> str:
+    """Return *items* joined by commas, the middle elided when there are more than *most*."""
+    if len(items) <= most:
+        return ", ".join(items)
+    return ", ".join([*items[: most - 2], "...", *items[-1:]])
 
 
 def _code_text(code: Any) -> str:

@@ -18,7 +18,7 @@ from wstats.reports.cells import auto_decimals, fmt_number, interval
 if TYPE_CHECKING:
     from rich.console import RenderableType
 
-    from wstats.reports.compare import Comparison
+    from wstats.reports.compare_result import Comparison
 
 __all__ = ["compare_csv", "compare_grids", "compare_json", "compare_markdown",
            "compare_terminal"]
@@ -110,8 +110,11 @@ def compare_notes(result: Comparison) -> tuple[str, ...]:
         word = {"holm": "Holm (1979)", "bh": "Benjamini-Hochberg (1995)"}[s["adjust_p"]]
         notes.append(f"p adjusted: {word}, over all differences of this comparison.")
     if s.get("standard"):
+        crude = any(r.get("statistic") == "nonresponse-rate" for r in result.differences.rows)
         notes.append(f"Age-adjusted (standard {s['standard']}) by direct standardisation over "
-                     f"the levels of {s.get('age_adjust')}.")
+                     f"the levels of {s.get('age_adjust')}"
+                     + ("; the nonresponse rates and the reasons tests are crude (not "
+                        "age-adjusted)." if crude else "."))
     kinds = sorted({str(r.get("level")) for r in result.tests.rows
                     if r.get("quantity") == "reasons"})
     if kinds:

@@ -10,8 +10,8 @@ each variable is compared too (:mod:`wstats.reports.compare_reasons`).
 
 from __future__ import annotations
 
-from collections.abc import Mapping, Sequence
-from dataclasses import dataclass, field, replace
+from collections.abc import Sequence
+from dataclasses import dataclass, replace
 from typing import TYPE_CHECKING, Any
 
 import numpy as np
@@ -19,7 +19,6 @@ import numpy as np
 from wstats.errors import EstimationError, UsageError, did_you_mean
 from wstats.estimation.contrasts import ADJUSTMENTS, adjust_p
 from wstats.estimation.covariance import Covariance, joint_covariance
-from wstats.estimation.display import as_html, as_text
 from wstats.estimation.influence import (
     DomainSums,
     domain_sums,
@@ -28,6 +27,7 @@ from wstats.estimation.influence import (
     proportion_influence,
 )
 from wstats.reports.compare_periods import period_pair_df
+from wstats.reports.compare_result import Comparison, RowTable
 from wstats.reports.compare_rows import (
     DIFFERENCE_COLUMNS,
     TEST_COLUMNS,
@@ -39,7 +39,6 @@ from wstats.reports.compare_rows import (
 )
 
 if TYPE_CHECKING:
-    import pandas as pd
 
     from wstats.decoding.columns import Dataset, DecodedColumn
     from wstats.design.declared import Design
@@ -50,66 +49,6 @@ __all__ = ["Comparison", "RowTable", "compare"]
 PAIRINGS = ("reference", "all")
 #: reference names that mean the whole population: a part against its whole
 _WHOLE = ("all", "total", "overall", "whole", "population")
-
-
-@dataclass(frozen=True, eq=False)
-class RowTable:
-    """Tidy rows of one kind (differences or tests): a list of dicts with fixed columns."""
-
-    rows: tuple[dict[str, Any], ...]
-    columns: tuple[str, ...]
-
-    def to_pandas(self) -> pd.DataFrame:
-        """Return the rows as a pandas frame (one column per entry of ``columns``)."""
-        import pandas as pd
-
-        return pd.DataFrame([[r.get(c) for c in self.columns] for r in self.rows],
-                            columns=list(self.columns))
-
-    def records(self) -> list[dict[str, Any]]:
-        """Return JSON-ready rows (NaN -> None, in column order)."""
-        return [{c: _plain(r.get(c)) for c in self.columns} for r in self.rows]
-
-    def __len__(self) -> int:
-        return len(self.rows)
-
-
-def _plain(v: Any) -> Any:
-    """Return a JSON-safe value: NaN -> None, numpy scalars -> Python."""
-    if hasattr(v, "item") and not isinstance(v, str):
-        v = v.item()
-    if isinstance(v, float) and not np.isfinite(v):
-        return None if np.isnan(v) else ("inf" if v > 0 else "-inf")
-    return v
-
-
-@dataclass(frozen=True, eq=False)
-class Comparison:
-    """The result of :func:`compare`.
-
-    Attributes
-    ----------
-    differences : one row per variable x level x pair of groups (:data:`DIFFERENCE_COLUMNS`).
-    tests : global tests and trend contrasts (:data:`TEST_COLUMNS`).
-    by : the grouping variable; level : the confidence level of the intervals.
-    design : summary of the design used; settings : pairing, reference, adjustment, df rule,
-        standard population (for the methods text and provenance).
-    """
-
-    differences: RowTable
-    tests: RowTable
-    by: str
-    level: float
-    design: Mapping[str, Any] = field(default_factory=dict)
-    settings: Mapping[str, Any] = field(default_factory=dict)
-
-    def __repr__(self) -> str:
-        """Show the comparison as the terminal does, with its design line."""
-        return as_text(self, f"Comparison(by {self.by!r})")
-
-    def _repr_html_(self) -> str | None:
-        """Show the comparison in a notebook (its terminal text: it has no html format)."""
-        return as_html(self)
 
 
 @dataclass(frozen=True)
@@ -152,6 +91,7 @@ def compare(
     reasons: bool = False,
     where: str | None = None,
     categorical: Sequence[str] = (),
+    continuous: Sequence[str] = (),
     level: float = 0.95,
     age_adjust: str | None = None,
     standard: str | Standard | None = None,
@@ -175,6 +115,8 @@ def compare(
     reasons : compare item nonresponse across groups too.
     where : population domain condition (expression language).
     categorical : variables to treat as categorical whatever their kind.
+    continuous : variables whose means are compared whatever their kind (e.g. the mean of
+        a categorical code, as a table row with ``statistic = "mean"`` asks).
     level : confidence level of the intervals of differences.
     age_adjust : the age variable: group estimates are directly age-adjusted.
     standard : standard population for ``age_adjust`` (a built-in name, a TOML file path or
@@ -194,14 +136,17 @@ def compare(
     >>> round(compare(ds, Design("w"), ["y"], by="g").differences.rows[0]["difference"], 2)
     2.5
     """
+    if isinstance(variables, str):  # one name, as estimate() takes it
+        variables = [variables]
     plan = _plan(data, design, variables, by, reference, pairs, adjust_p, level, trend,
-                 age_adjust, standard, categorical, where, reasons)
+                 age_adjust, standard, [*categorical, *continuous], where, reasons)
     plan = replace(plan, pair_df=period_pair_df(plan.by, plan.labels,
                                                 plan.eng.bound.summary(), period_df))
     diff_rows: list[dict[str, Any]] = []
     test_rows: list[dict[str, Any]] = []
     for name in variables:  # loop over variables only
-        d, t = _variable(data, plan, name, name in categorical)
+        forced = True if name in categorical else (False if name in continuous else None)
+        d, t = _variable(data, plan, name, forced)
         diff_rows += d
         test_rows += t
         if reasons:
@@ -231,9 +176,13 @@ def _plan(data: Dataset, design: Design, variables: Sequence[str], by: str,
     from wstats.estimation.domain_setup import check_names
 
     check_names(data, [*variables, by, *categorical, *([age_adjust] if age_adjust else [])])
-    if by in variables or (age_adjust is not None and age_adjust in (by, *variables)):
-        raise UsageError(f"variable '{by if by in variables else age_adjust}' is both compared "
-                         "and used to form groups; drop it from one of them")
+    if by in variables:
+        raise UsageError(f"variable '{by}' is both compared and used to form groups; drop it "
+                         "from one of them")
+    if age_adjust is not None:
+        from wstats.estimation.age_adjust import check_age_roles
+
+        check_age_roles(age_adjust, [by], variables, "the grouping variable", "compared")
     eng = domain_sums(data, design, [by] if age_adjust is None else [by, age_adjust], where)
     values, shown = eng.levels[0]
     labels = [str(s) for s in shown]
@@ -243,25 +192,35 @@ def _plan(data: Dataset, design: Design, variables: Sequence[str], by: str,
     ref = _reference(reference, labels, values, by)
     chosen = ([(a, b) for a in range(len(labels)) for b in range(a + 1, len(labels))]
               if pairs == "all" else [(ref, b) for b in range(len(labels)) if b != ref])
+    if trend and not all(isinstance(v, int | float) for v in values):
+        raise UsageError(f"a trend across the levels of {by} needs numeric codes to order and "
+                         f"space them, but {by} holds text; recode it to numbers in the "
+                         "codebook or leave out --trend")
     scores = [float(v) if isinstance(v, int | float) else float(i)
               for i, v in enumerate(values)]
     if age_adjust is None or standard is None:
         return _Plan(eng, by, labels, scores, chosen, level, trend, None, None, eng)
     # the reasons are compared crude: they need the groups without the age cells
     groups = domain_sums(data, design, [by], where) if reasons else eng
-    age, name = _age_plan(eng, age_adjust, standard)
+    age, name = _age_plan(data, eng, age_adjust, standard)
     return _Plan(eng, by, labels, scores, chosen, level, trend, age, name, groups)
 
 
-def _age_plan(eng: DomainSums, age_adjust: str, standard: str | Standard
+def _age_plan(data: Dataset, eng: DomainSums, age_adjust: str, standard: str | Standard
               ) -> tuple[tuple[str, Any, list[str]], str]:
     """Return (age variable, weights per age level, age labels) and the standard's name."""
+    from wstats.estimation.age_adjust import check_standard_covers
+    from wstats.estimation.levels import level_index
     from wstats.estimation.standards import adjustment_weights, load_standard
 
     std = load_standard(standard) if isinstance(standard, str) else standard
     codes, shown = eng.levels[1]
     labels = [str(s) for s in shown]
-    return (age_adjust, adjustment_weights(std, codes, labels, age_adjust), labels), std.name
+    weights = adjustment_weights(std, codes, labels, age_adjust)
+    col = eng.column(data, age_adjust)
+    check_standard_covers(weights, level_index(col, codes, col.valid),
+                          eng.sums.domains.inside, labels, age_adjust, std.name)
+    return (age_adjust, weights, labels), std.name
 
 
 def _check_options(pairs: str, adjust: str, level: float, age_adjust: str | None,
@@ -284,6 +243,8 @@ def _reference(reference: str | None, labels: list[str], values: list[Any], by: 
     """Return the index of the reference group (default the first)."""
     if reference is None:
         return 0
+    if not isinstance(reference, str):  # a code given as a number (Python callers)
+        reference = _code(reference)
     if reference in labels:
         return labels.index(reference)
     codes = [_code(v) for v in values]
@@ -303,14 +264,14 @@ def _code(v: Any) -> str:
     return str(int(v)) if isinstance(v, float) and v.is_integer() else str(v)
 
 
-def _is_categorical(col: DecodedColumn, forced: bool) -> bool:
-    """Return whether *col* is compared by its levels' proportions."""
+def _is_categorical(col: DecodedColumn, forced: bool | None) -> bool:
+    """Return whether *col* is compared by its levels' proportions (*forced*: the caller's)."""
     from wstats.estimation.statistics import is_categorical
 
-    return is_categorical(col, [col.name] if forced else [])
+    return is_categorical(col) if forced is None else forced
 
 
-def _variable(data: Dataset, plan: _Plan, name: str, forced: bool
+def _variable(data: Dataset, plan: _Plan, name: str, forced: bool | None
               ) -> tuple[list[dict[str, Any]], list[dict[str, Any]]]:
     """Return the difference and test rows of one variable."""
     col = plan.eng.column(data, name)
@@ -384,7 +345,7 @@ def _independence(data: Dataset, plan: _Plan, col: DecodedColumn, name: str
     group = group_codes(plan)
     both = (code >= 0) & (group >= 0)
     cell = np.where(both, code * plan.n_groups + group, -1)
-    return rao_scott_table(plan.eng.sums, cell, (len(labels), plan.n_groups), int(both.sum()),
+    return rao_scott_table(plan.eng.sums, cell, (len(labels), plan.n_groups),
                            {"variable": name, "by": plan.by, "quantity": "proportion",
                             "level": None, "standard": None})
 

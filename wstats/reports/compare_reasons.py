@@ -55,7 +55,7 @@ def reason_rows(data: Dataset, plan: Any, name: str, not_asked: Sequence[str]
     if len(present) < 2:  # every asked row gave the same kind of answer: nothing to test
         return diffs, []
     code = np.where(inside, rank[kind] * g + group, -1)
-    test = rao_scott_table(eng.sums, code, (len(present), g), int(inside.sum()),
+    test = rao_scott_table(eng.sums, code, (len(present), g),
                            {"variable": name, "by": plan.by, "quantity": "reasons",
                             "level": "+".join(REASON_GROUPS[i] for i in present),
                             "standard": None})

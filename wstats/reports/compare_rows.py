@@ -54,6 +54,8 @@ TEST_COLUMNS: tuple[str, ...] = (
 
 #: flag id -> meaning (and source) of the flags a comparison row can carry
 FLAGS: dict[str, str] = {
+    "no-estimate": "a group has no estimate (no respondent in it, or a subpopulation that "
+                   "selects no row): nothing to compare (common practice, no source)",
     "se-zero": "the standard error is 0 or could not be estimated: no test (common "
                "practice, no source)",
     "df<8": "fewer than 8 degrees of freedom; needs statistical review (NCHS Data "
@@ -65,10 +67,13 @@ FLAGS: dict[str, str] = {
 }
 
 
-def _flags(se: float, df: float, extra: Sequence[str] = ()) -> list[str]:
-    """Return the flag ids of one row."""
+def _flags(se: float, df: float, extra: Sequence[str] = (), estimated: bool = True
+           ) -> list[str]:
+    """Return the flag ids of one row (*estimated*: every estimate it compares was made)."""
     out = list(extra)
-    if not (np.isfinite(se) and se > 0):
+    if not estimated:
+        out.append("no-estimate")
+    elif not (np.isfinite(se) and se > 0):
         out.append("se-zero")
     if df < 8:
         out.append("df<8")
@@ -103,7 +108,8 @@ def difference_rows(cov: Covariance, pairs: Sequence[tuple[int, int]], labels: S
                      "ci_low": float(low[k]), "ci_high": float(high[k]),
                      "df": float(row_df[k]), "t": float(d.t[k]), "p": float(d.p[k]),
                      "p_adjusted": float(d.p[k]),
-                     "flags": _flags(float(d.se[k]), float(row_df[k]), flags)})
+                     "flags": _flags(float(d.se[k]), float(row_df[k]), flags,
+                                     bool(np.isfinite(cov.estimate[[a[k], b[k]]]).all()))})
     return rows
 
 
@@ -118,19 +124,24 @@ def _test_row(head: dict[str, Any], **values: Any) -> dict[str, Any]:
 def wald_row(cov: Covariance, head: dict[str, Any], flags: Sequence[str] = ()) -> dict[str, Any]:
     """Return the adjusted Wald F row that every estimate of *cov* is equal."""
     w = wald_equal(cov)
-    extra = list(flags) + ([] if w.df2 > 0 else ["wald-unstable"])
+    # with fewer than 2 groups estimated there is no F whatever the df (flag se-zero only)
+    unstable = w.df1 >= 1 and not w.df2 > 0
+    extra = list(flags) + (["wald-unstable"] if unstable else [])
     return _test_row(head, test="wald", statistic=w.f, df1=w.df1, df2=w.df2, p=w.p,
-                     flags=_flags(1.0 if np.isfinite(w.f) else np.nan, cov.df, extra))
+                     flags=_flags(1.0 if np.isfinite(w.f) or unstable else np.nan, cov.df,
+                                  extra, int(np.isfinite(cov.estimate).sum()) >= 2))
 
 
-def rao_scott_table(sums: WeightedSums, cell: Any, shape: tuple[int, int], n: int,
+def rao_scott_table(sums: WeightedSums, cell: Any, shape: tuple[int, int],
                     head: dict[str, Any]) -> dict[str, Any]:
     """Return the Rao-Scott row of an r x c table whose cells (row-major) each row codes.
 
     *cell*: per row its cell number, -1 outside the table; the shares and their covariance
-    are taken over the population domain.
+    are taken over the population domain. n counts the rows in the table with a positive
+    weight (a row of weight 0 adds nothing to the shares, so it is not in the table).
     """
     k = shape[0] * shape[1]
+    n = int(np.count_nonzero((np.asarray(cell) >= 0) & (sums.design.weights > 0)))
     inf = indicator_influence(sums, cell, k)
     cov = joint_covariance(sums, [(inf, np.zeros(k, np.int64), np.arange(k))])
     shares = np.nan_to_num(cov.estimate).reshape(shape)
@@ -138,13 +149,24 @@ def rao_scott_table(sums: WeightedSums, cell: Any, shape: tuple[int, int], n: in
     return _test_row(head, test="rao-scott", statistic=rs.f, df1=rs.df1, df2=rs.df2, p=rs.p,
                      pearson_chisq=rs.pearson, first_order_f=rs.first_f,
                      mean_deff=rs.mean_deff, deff_cv2=rs.deff_cv2,
-                     flags=_flags(1.0 if np.isfinite(rs.f) else np.nan, cov.df))
+                     flags=_flags(1.0 if np.isfinite(rs.f) else np.nan, cov.df,
+                                  estimated=n > 0))
 
 
 def trend_rows(cov: Covariance, scores: Sequence[float], head: dict[str, Any],
                flags: Sequence[str] = ()) -> list[dict[str, Any]]:
-    """Return the linear (and, with 4 or more groups, quadratic) trend contrast rows."""
-    linear, quadratic = trend_coefficients(scores)
+    """Return the linear (and, with 4 or more groups, quadratic) trend contrast rows.
+
+    Groups without an estimate (no respondent) are left out, as in the Wald F: the
+    contrasts are those of the remaining levels' scores.
+    """
+    made = np.flatnonzero(np.isfinite(cov.estimate))
+    if len(made) < 2:
+        return [_test_row(head, test="trend-linear", statistic=np.nan, df1=1.0, df2=cov.df,
+                          p=np.nan, estimate=np.nan, se=np.nan,
+                          flags=_flags(np.nan, cov.df, flags, estimated=False))]
+    cov = cov.subset(made)
+    linear, quadratic = trend_coefficients(np.asarray(scores, dtype=np.float64)[made])
     rows = []
     for name, coef in (("trend-linear", linear), ("trend-quadratic", quadratic)):
         if coef is None:

@@ -43,6 +43,7 @@ def table_p_values(spec: TableSpec, data: Dataset, design: Design) -> dict[PKey,
         for b in spec.by:
             result = compare(data, design, variables, by=b, where=spec.where,
                              categorical=variables if stat == "proportion" else (),
+                             continuous=variables if stat == "mean" else (),
                              level=spec.level, age_adjust=age, standard=std)
             for t in result.tests.rows:
                 if t["test"] in _GLOBAL and t["quantity"] in ("mean", "proportion"):
