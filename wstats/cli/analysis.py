@@ -14,7 +14,8 @@ from collections.abc import Callable, Mapping, Sequence
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
-from wstats.cli.analysis_file import Analysis, Job, Output, load_analysis
+from wstats.cli.analysis_file import load_analysis
+from wstats.cli.analysis_plan import Analysis, Job, Output
 from wstats.errors import AnalysisError, OutputError, WstatsError, did_you_mean
 
 if TYPE_CHECKING:
