@@ -119,7 +119,7 @@ def reason_bytes(xpt: str, codebook: str, raw_a: list[str]) -> int:
 
     A decoded number column keeps one reason code (1 byte) for each value that is missing.
     """
-    from wstats._load import read
+    from wstats.decoding.load import read
 
     data = read(xpt, columns=raw_a, codebook=codebook)
     return sum(int(col.missing_codes.nbytes) for col in data.columns.values())
@@ -127,8 +127,8 @@ def reason_bytes(xpt: str, codebook: str, raw_a: list[str]) -> int:
 
 def columns_of(xpt: str, codebook: str) -> tuple[list[str], list[str]]:
     """Return (the raw columns A reads, the item variables of D)."""
-    from wstats._codebook import load_codebook
-    from wstats._readers import file_columns
+    from wstats.decoding.codebook import load_codebook
+    from wstats.readers.dispatch import file_columns
 
     raw_a = [*load_codebook(codebook).raw_columns_for(TEN), WEIGHT, STRATA, PSU]
     items = [c for c in file_columns(xpt) if c not in NOT_ITEMS]

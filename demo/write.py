@@ -420,7 +420,7 @@ def _replace_into(path: Path, write: object) -> None:
 def write_text(path: Path, text: str) -> None:
     """Write *text* atomically (through wstats' writer when it exists)."""
     try:
-        from wstats._io import atomic_write
+        from wstats.readers.output import atomic_write
     except ImportError:
         _replace_into(path, lambda tmp: Path(tmp).write_text(text, encoding="utf-8"))
     else:

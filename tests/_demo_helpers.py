@@ -15,7 +15,7 @@ import numpy as np
 
 import demo
 from wstats import load_codebook
-from wstats._readers._types import RawColumn, RawTable
+from wstats.readers.raw import RawColumn, RawTable
 
 if TYPE_CHECKING:
     import pandas as pd

@@ -11,7 +11,7 @@ from typing import Any
 
 import pandas as pd
 
-from wstats._results import ESTIMATE_COLUMNS, EstimateTable
+from wstats.estimation.results import ESTIMATE_COLUMNS, EstimateTable
 
 DESIGN = {"weight": "FINALWT", "strata": "STRAT_ID", "psu": "CLUSTER_ID", "fpc": None,
           "n_strata": 12, "n_psu": 36, "df": 24, "singleton": "fail",

@@ -11,15 +11,15 @@ import numpy as np
 import pandas as pd
 import pytest
 
-import wstats._io
-import wstats._load
-from wstats._analysis import run_analysis
-from wstats._analysis_file import load_analysis
-from wstats._design import Design
-from wstats._estimate import estimate
-from wstats._load import read
-from wstats._nonresponse import nonresponse
+import wstats.decoding.load
+import wstats.readers.output
+from wstats.cli.analysis import run_analysis
+from wstats.cli.analysis_file import load_analysis
+from wstats.decoding.load import read
+from wstats.design.declared import Design
 from wstats.errors import AnalysisError, ExpressionError, OutputError
+from wstats.estimation.estimate import estimate
+from wstats.reports.nonresponse import nonresponse
 
 CODEBOOK = """\
 [design]
@@ -157,15 +157,15 @@ def test_outputs_hold_what_the_library_computes(folder: Path) -> None:
 
 @pytest.fixture
 def read_calls(monkeypatch: pytest.MonkeyPatch) -> list[list[str]]:
-    """Record the columns asked of every ``wstats._load.read`` call (the read still happens)."""
+    """Record the columns asked of every ``wstats.decoding.load.read`` call (it still reads)."""
     calls: list[list[str]] = []
-    real = wstats._load.read
+    real = wstats.decoding.load.read
 
     def spy(path, columns=None, **kw):  # type: ignore[no-untyped-def]
         calls.append(list(columns))
         return real(path, columns, **kw)
 
-    monkeypatch.setattr(wstats._load, "read", spy)
+    monkeypatch.setattr(wstats.decoding.load, "read", spy)
     return calls
 
 
@@ -266,7 +266,7 @@ def test_a_missing_output_folder_is_refused_up_front(folder: Path) -> None:
 
 def test_a_failure_while_writing_removes_what_the_run_created(
         folder: Path, monkeypatch: pytest.MonkeyPatch) -> None:
-    real = wstats._io.atomic_write
+    real = wstats.readers.output.atomic_write
     count = {"n": 0}
 
     def failing(path, data, overwrite=False):  # type: ignore[no-untyped-def]
@@ -275,7 +275,7 @@ def test_a_failure_while_writing_removes_what_the_run_created(
             raise OutputError(f"no space left on the device while writing '{path}'")
         real(path, data, overwrite)
 
-    monkeypatch.setattr(wstats._io, "atomic_write", failing)
+    monkeypatch.setattr(wstats.readers.output, "atomic_write", failing)
     with pytest.raises(OutputError, match="no space left"):
         run_analysis(_analysis(folder, FULL))
     assert count["n"] == 4

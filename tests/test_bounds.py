@@ -9,13 +9,13 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from wstats._column import Dataset, DecodedColumn
-from wstats._design import Design
-from wstats._estimate import estimate
-from wstats._nonresponse import bounds, bounds_records
-from wstats._reasons import DONT_KNOW, INVALID, MISSING, REFUSED, SKIPPED, VALID, Reasons
-from wstats._reliability import STANDARDS
+from wstats.decoding.columns import Dataset, DecodedColumn
+from wstats.decoding.reasons import DONT_KNOW, INVALID, MISSING, REFUSED, SKIPPED, VALID, Reasons
+from wstats.design.declared import Design
 from wstats.errors import CodebookError, ColumnError
+from wstats.estimation.estimate import estimate
+from wstats.estimation.reliability import STANDARDS
+from wstats.reports.bounds import bounds, bounds_records
 
 
 def _dataset(values: np.ndarray, reasons: np.ndarray, weights: np.ndarray,

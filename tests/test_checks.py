@@ -7,7 +7,11 @@ import warnings
 import numpy as np
 import pytest
 
-from wstats._checks import (
+from wstats.decoding.columns import Dataset
+from wstats.design.declared import Design
+from wstats.errors import WstatsWarning
+from wstats.estimation.estimate import estimate
+from wstats.estimation.sanity import (
     KISH_DEFF_THRESHOLD,
     MIN_GROUP_SIZE,
     check_group_sizes,
@@ -15,10 +19,6 @@ from wstats._checks import (
     check_special_codes,
     check_weight_spread,
 )
-from wstats._column import Dataset
-from wstats._design import Design
-from wstats._estimate import estimate
-from wstats.errors import WstatsWarning
 
 
 def test_presubset_fires_above_the_single_psu_share() -> None:
@@ -45,8 +45,7 @@ def test_weight_spread_uses_kish_deff() -> None:
 def test_weight_spread_in_row_tiles_skips_zero_weights(monkeypatch: pytest.MonkeyPatch) -> None:
     # Kish (1992) deff_w over the positive weights, summed tile by tile: the 9 ones and 100 of
     # the test above with zeros between them give the same 8.42 with tiles of 3 rows
-    from wstats import _column
-
+    from wstats.decoding import columns as _column
     monkeypatch.setattr(_column, "ROW_TILE", 3)
     w = np.array([1.0, 0.0] * 9 + [0.0, 100.0])
     msgs = check_weight_spread(w, "w")

@@ -13,7 +13,8 @@ import pytest
 import wstats
 import wstats.errors
 from _imports import modules_loaded_by
-from wstats.cli import COMMANDS, build_parser, main
+from wstats.cli.commands import COMMANDS
+from wstats.cli.main import build_parser, main
 
 ROOT = Path(__file__).resolve().parents[1]
 
@@ -90,7 +91,8 @@ def test_bad_rows_option_names_the_option(tmp_path: Path) -> None:
 
 def test_help_imports_nothing_heavy() -> None:
     # Start-up cost: --help must not import pandas, scipy, statsmodels, pyreadstat or pyarrow.
-    code = "from wstats.cli import main\ntry:\n    main(['--help'])\nexcept SystemExit:\n    pass"
+    code = ("from wstats.cli.main import main\ntry:\n    main(['--help'])\n"
+            "except SystemExit:\n    pass")
     heavy = ("pandas", "scipy", "statsmodels", "pyreadstat", "pyarrow", "numpy")
     assert modules_loaded_by(code, *heavy) == []
 
@@ -100,16 +102,16 @@ def test_estimate_holds_only_named_columns_not_derived_inputs(
         monkeypatch: pytest.MonkeyPatch, capsys: pytest.CaptureFixture[str]) -> None:
     # common practice, no source: a derived variable's inputs are read to make it and then
     # let go; the estimation sees the variables, the condition's and the design's columns only
-    import wstats._estimate
+    import wstats.estimation.estimate
 
     seen: dict[str, list[str]] = {}
-    real = wstats._estimate.estimate
+    real = wstats.estimation.estimate.estimate
 
     def spy(data: Any, *args: Any, **kwargs: Any) -> Any:
         seen["columns"] = list(data.columns)
         return real(data, *args, **kwargs)
 
-    monkeypatch.setattr(wstats._estimate, "estimate", spy)
+    monkeypatch.setattr(wstats.estimation.estimate, "estimate", spy)
     code = main(["--quiet", "estimate", str(survey_files["csv"]), "SLEEP_MIN",
                  "--codebook", str(codebook_file), "--where", "AGE > 30", "--format", "json"])
     assert code == 0
@@ -122,7 +124,7 @@ def test_worker_threads_share_one_malloc_arena_on_glibc(monkeypatch: pytest.Monk
     import ctypes
     import platform
 
-    from wstats import cli
+    from wstats.cli import main as cli
 
     if platform.libc_ver()[0] == "glibc":
         assert cli._one_malloc_arena() is True

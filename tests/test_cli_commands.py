@@ -11,11 +11,11 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from wstats._column import Dataset
-from wstats._design import Design
-from wstats._estimate import estimate
-from wstats._nonresponse import bounds
-from wstats.cli import main
+from wstats.cli.main import main
+from wstats.decoding.columns import Dataset
+from wstats.design.declared import Design
+from wstats.estimation.estimate import estimate
+from wstats.reports.bounds import bounds
 
 ROOT = Path(__file__).resolve().parents[1]
 
@@ -40,7 +40,7 @@ def survey(tmp_path: Path) -> Path:
 
 
 def _data(path: Path) -> Dataset:
-    from wstats._load import read
+    from wstats.decoding.load import read
 
     return read(path, ["Q", "G", "W", "ST", "CL"], path.parent / "cb.toml")
 

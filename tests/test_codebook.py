@@ -14,10 +14,10 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from wstats._codebook import Codebook, decode, load_codebook
-from wstats._column import Dataset
-from wstats._readers._types import RawColumn, RawTable
+from wstats.decoding.codebook import Codebook, decode, load_codebook
+from wstats.decoding.columns import Dataset
 from wstats.errors import CodebookError, ExpressionError
+from wstats.readers.raw import RawColumn, RawTable
 
 NAN = np.nan
 
@@ -169,8 +169,7 @@ def test_unit_prefixed_conversion_in_tiles_equals_one_pass(monkeypatch: pytest.M
                                                            ) -> None:
     # common practice, no source: the conversion runs on row tiles; tiles of 3 rows (cutting
     # through codes, blanks and bad prefixes) give what one tile over all rows gives
-    from wstats import _column
-
+    from wstats.decoding import columns as _column
     codes = [103, 777, 203, NAN, 503, 888, 303, 102.5, 403, 999, 15, 210] * 3
     whole = decode(table(num("EX", codes)), unit_book("week"))
     monkeypatch.setattr(_column, "ROW_TILE", 3)
@@ -276,8 +275,7 @@ def test_columns_decoded_at_once_keep_the_vocabulary_order(
     # common practice, no source: columns are decoded on threads, each on its own vocabulary;
     # the reasons they meet join in column order, as one after another would (the order ranks
     # the extra reasons' precedence, which a derived variable then uses)
-    from wstats import _decode
-
+    from wstats.decoding import decode as _decode
     monkeypatch.setattr(_decode, "_THREADS", threads)
 
     def tagged(name: str, letters: str) -> RawColumn:
@@ -358,8 +356,7 @@ def test_derived_bmi_and_reason_precedence() -> None:
 def test_derived_in_tiles_equals_one_pass(monkeypatch: pytest.MonkeyPatch) -> None:
     # common practice, no source: derived variables are evaluated on row tiles; tiles of 2
     # rows give what one pass gives (values, reasons, derived on derived)
-    from wstats import _column
-
+    from wstats.decoding import columns as _column
     raw = table(num("KG", [70, 777, 70, 999, 80, 95, 60]),
                 num("CM", [175, 180, 999, 777, 0, 160, 181]))
     book = cb({"variables": {"KG": {"codes": {"777": "dont_know", "999": "refused"}},
@@ -509,8 +506,8 @@ def test_name_both_variable_and_derived() -> None:
 # --- read() -----------------------------------------------------------------------------
 
 def test_read_csv_with_codebook_reads_only_needed_columns(tmp_path: Path) -> None:
-    pytest.importorskip("wstats._readers")
-    from wstats._load import read
+    pytest.importorskip("wstats.readers.dispatch")
+    from wstats.decoding.load import read
 
     data = tmp_path / "s.csv"
     data.write_text("ID,KG,CM,OTHER\n1,70,175,x\n2,777,180,y\n3,80,,z\n", encoding="utf-8")
@@ -526,8 +523,8 @@ def test_read_csv_with_codebook_reads_only_needed_columns(tmp_path: Path) -> Non
 
 
 def test_read_unknown_column_is_an_error(tmp_path: Path) -> None:
-    pytest.importorskip("wstats._readers")
-    from wstats._load import read
+    pytest.importorskip("wstats.readers.dispatch")
+    from wstats.decoding.load import read
     from wstats.errors import ColumnError
 
     data = tmp_path / "s.csv"
@@ -543,8 +540,8 @@ def test_one_code_written_twice_with_different_meanings() -> None:
 
 
 def test_read_names_the_derived_variable_whose_input_is_absent(tmp_path: Path) -> None:
-    pytest.importorskip("wstats._readers")
-    from wstats._load import read
+    pytest.importorskip("wstats.readers.dispatch")
+    from wstats.decoding.load import read
 
     data = tmp_path / "s.csv"
     data.write_text("KG,CM\n1,2\n", encoding="utf-8")
@@ -557,7 +554,7 @@ def test_read_names_the_derived_variable_whose_input_is_absent(tmp_path: Path) -
 def test_derived_variable_takes_the_memory_of_an_input_nobody_wants() -> None:
     # common practice, no source: a derived variable may be written over an input that is
     # neither wanted nor read by a later derived variable; values and reasons are as if not
-    from wstats._decode import decode_table
+    from wstats.decoding.decode import decode_table
 
     def raw() -> RawTable:
         return table(num("KG", [70, 777, 70, 999, 80]), num("CM", [175, 180, 999, 777, 0]),

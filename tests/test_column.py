@@ -12,9 +12,9 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from wstats import _column
-from wstats._column import Dataset, DecodedColumn, row_tiles
-from wstats._reasons import INVALID, MISSING, REFUSED, SKIPPED, VALID, Reasons
+from wstats.decoding import columns as _column
+from wstats.decoding.columns import Dataset, DecodedColumn, row_tiles
+from wstats.decoding.reasons import INVALID, MISSING, REFUSED, SKIPPED, VALID, Reasons
 
 VOCAB = Reasons(["not_eligible"])  # codes 0-5 core, 6 added
 

@@ -15,11 +15,12 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 from hypothesis.extra import numpy as hnp
 
-from wstats._convert import convert
-from wstats._io import sha256_of
-from wstats._readers import RawColumn, RawTable, file_columns, read_raw
-from wstats._readers._parquet import META_KEY, TAGS_PREFIX, write_parquet
 from wstats.errors import OutputError, ReadError
+from wstats.readers.cache import convert
+from wstats.readers.dispatch import file_columns, read_raw
+from wstats.readers.output import sha256_of
+from wstats.readers.parquet import META_KEY, TAGS_PREFIX, write_parquet
+from wstats.readers.raw import RawColumn, RawTable
 
 NAN = np.nan
 FRAME = pd.DataFrame(
@@ -111,7 +112,7 @@ def test_cache_file_layout(tmp_path: Path) -> None:
     src = _source("dta", tmp_path)
     out = convert(src, tmp_path / "c.parquet")
     handle = pq.ParquetFile(out)
-    # zstd compression and the tags column, as documented in wstats._readers._parquet.
+    # zstd compression and the tags column, as documented in wstats.readers.parquet.
     assert handle.metadata.row_group(0).column(0).compression == "ZSTD"
     assert handle.schema_arrow.names == ["age", "smoke", f"{TAGS_PREFIX}smoke", "town"]
     info = json.loads(handle.schema_arrow.metadata[META_KEY])

@@ -11,9 +11,9 @@ import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
-from wstats._codebook import Codebook
-from wstats._convert import convert
-from wstats._readers import read_raw
+from wstats.decoding.codebook import Codebook
+from wstats.readers.cache import convert
+from wstats.readers.dispatch import read_raw
 
 CODEBOOK = Codebook.from_dict({
     "family": [{"name": "two", "match": ["Q*"], "codes": {"77": "dont_know", "99": "refused"}}],

@@ -22,7 +22,7 @@ import pytest
 
 import wstats.render
 from conftest import CODEBOOK_TOML, ROOT
-from wstats.cli import main
+from wstats.cli.main import main
 
 Run = Callable[..., subprocess.CompletedProcess[str]]
 DESIGN = ["--weight", "WT", "--strata", "STRAT", "--psu", "PSU"]

@@ -14,9 +14,9 @@ import numpy as np
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from wstats._codebook import Codebook, decode
-from wstats._readers._types import RawColumn, RawTable
-from wstats._reasons import VALID
+from wstats.decoding.codebook import Codebook, decode
+from wstats.decoding.reasons import VALID
+from wstats.readers.raw import RawColumn, RawTable
 
 POOL = [0.0, 1.0, 2.0, 3.0, 5.0, 7.0, 8.0, 9.0, 10.0, 50.0, 77.0, 88.0, 99.0, -1.0, 150.0]
 CODE_KEYS = [7.0, 8.0, 9.0, 77.0, 88.0, 99.0, -1.0]
@@ -120,8 +120,8 @@ def test_decode_in_row_tiles_equals_one_pass(c: tuple[dict[str, Any], RawTable],
     # vocabulary takes new reasons in the order one pass over the column meets them
     import pytest
 
-    from wstats import _column
-    from wstats._decode import decode_column
+    from wstats.decoding import columns as _column
+    from wstats.decoding.decode import decode_column
 
     book, raw = c
     book_obj = Codebook.from_dict(book)

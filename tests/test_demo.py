@@ -213,9 +213,9 @@ def test_packaged_codebook_is_the_generated_one() -> None:
 
 
 def test_codebook_decodes_like_the_demo(written: tuple[dict[str, Path], pd.DataFrame]) -> None:
-    pytest.importorskip("wstats._codebook")
-    from wstats._codebook import load_codebook
-    from wstats._load import read
+    pytest.importorskip("wstats.decoding.codebook")
+    from wstats.decoding.codebook import load_codebook
+    from wstats.decoding.load import read
 
     paths, frame = written
     cb = load_codebook(paths["codebook"])

@@ -15,7 +15,7 @@ import pytest
 
 from demo import write_demo
 from test_render import check_golden
-from wstats._analysis import run_analysis
+from wstats.cli.analysis import run_analysis
 
 _VOLATILE = re.compile(r"created_utc|sha256|environment|\"numpy\"|\"pandas\"|\"python\"|"
                        r"version|\"bytes\"|bytes:")

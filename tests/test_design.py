@@ -7,8 +7,8 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from wstats._column import Dataset
-from wstats._design import Design
+from wstats.decoding.columns import Dataset
+from wstats.design.declared import Design
 from wstats.errors import DesignError, SingletonStratumError, WeightError
 
 
@@ -47,8 +47,7 @@ def test_psu_index_equals_pairs_numbered_in_sorted_order(tile: int,
     # common practice, no source: the PSU index is the rank of the (stratum, PSU) pair among
     # the distinct pairs, built in place and in row tiles; checked against numpy.unique on
     # the pairs, for whole-number and text codes, with and without strata
-    from wstats import _column
-
+    from wstats.decoding import columns as _column
     monkeypatch.setattr(_column, "ROW_TILE", tile)
     rng = np.random.default_rng(11)
     st = rng.integers(1, 6, 300).astype(float)
@@ -70,7 +69,7 @@ def test_psu_index_equals_pairs_numbered_in_sorted_order(tile: int,
 
 def test_psu_index_widens_the_key_when_int32_cannot_hold_it() -> None:
     # common practice, no source: stratum code x PSU span beyond 2**31 needs an int64 key
-    from wstats._binding import _psu_index
+    from wstats.design.binding import _psu_index
 
     stratum = np.array([70_000, 0, 70_000, 3], dtype=np.int32)
     psu = np.array([40_000, 40_000, 2, 0], dtype=np.int32)
@@ -86,7 +85,7 @@ def test_psu_index_is_the_rank_of_each_pair(pairs: list[tuple[int, int]]) -> Non
     # common practice, no source: whatever the codes (keys past 2**31 included), a row's PSU
     # index is the rank of its (stratum, PSU) pair among the distinct pairs, and each PSU's
     # stratum is the stratum of its pair
-    from wstats._binding import _psu_index
+    from wstats.design.binding import _psu_index
 
     stratum = np.array([h for h, _ in pairs], dtype=np.int32)
     psu = np.array([c for _, c in pairs], dtype=np.int32)
@@ -98,7 +97,7 @@ def test_psu_index_is_the_rank_of_each_pair(pairs: list[tuple[int, int]]) -> Non
 
 def test_unique_inverse_in_place_reuses_the_codes_memory() -> None:
     # common practice, no source: positions among the sorted distinct values, as numpy.unique
-    from wstats._binding import _unique_inverse
+    from wstats.design.binding import _unique_inverse
 
     v = np.array([7, 3, 7, 9, 3], dtype=np.int32)
     uniq, inv = _unique_inverse(v, in_place=True)
@@ -352,7 +351,7 @@ def test_labelled_strata_show_labels_in_messages() -> None:
 def test_unique_inverse_equals_numpy_unique_for_any_span(values: list[int], stretch: int) -> None:
     # checked against numpy.unique (general-purpose library): the lookup table (span at most
     # two codes a row) and the sort (wider spans) give the same positions
-    from wstats._binding import _unique_inverse
+    from wstats.design.binding import _unique_inverse
 
     v = np.array(values, dtype=np.float64) * stretch  # stretch widens the span past 2n
     uniq, inv = _unique_inverse(v)

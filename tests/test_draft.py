@@ -3,7 +3,7 @@
 The special-code families (7/77/777 don't know, 9/99/999 refused, 8/88/888 "none" = 0) and the
 unit-prefixed pattern (1xx/2xx/3xx/4xx) are common practice in telephone health-survey
 codebooks, no single source (/work/shared/REFERENCES.md section 11). The suspicion heuristic is
-our own and documented in wstats/_draft.py and docs/codebook.md.
+our own and documented in wstats/decoding/draft.py and docs/codebook.md.
 """
 
 from __future__ import annotations
@@ -13,9 +13,9 @@ from pathlib import Path
 
 import numpy as np
 
-from wstats._codebook import Codebook, load_codebook
-from wstats._draft import check_codebook, draft_codebook, suspected_codes
-from wstats._readers._types import RawColumn, RawTable
+from wstats.decoding.codebook import Codebook, load_codebook
+from wstats.decoding.draft import check_codebook, draft_codebook, suspected_codes
+from wstats.readers.raw import RawColumn, RawTable
 
 NAN = np.nan
 

@@ -8,12 +8,12 @@ import numpy as np
 import pytest
 from statsmodels.stats.proportion import proportion_confint
 
-from wstats._column import Dataset, DecodedColumn
-from wstats._design import Design
-from wstats._estimate import estimate
-from wstats._intervals import t_quantile
-from wstats._reasons import DONT_KNOW, REFUSED, SKIPPED, VALID, Reasons
-from wstats._results import ESTIMATE_COLUMNS
+from wstats.decoding.columns import Dataset, DecodedColumn
+from wstats.decoding.reasons import DONT_KNOW, REFUSED, SKIPPED, VALID, Reasons
+from wstats.design.declared import Design
+from wstats.estimation.estimate import estimate
+from wstats.estimation.intervals import t_quantile
+from wstats.estimation.results import ESTIMATE_COLUMNS
 
 
 def _ds(**cols: Any) -> Dataset:
@@ -178,8 +178,7 @@ def test_proportions_in_row_tiles_equal_one_pass(monkeypatch: pytest.MonkeyPatch
     # common practice, no source: a categorical variable's passes run on row tiles; tiles of
     # 5 rows (cutting through PSUs, domains, missing rows and rows outside `where`) give what
     # one tile over all rows gives, and the levels' proportions add up to 1 in every domain
-    from wstats import _column
-
+    from wstats.decoding import columns as _column
     rng = np.random.default_rng(8)
     n = 300
     y = rng.integers(1, 5, n).astype(float)
@@ -210,8 +209,8 @@ def test_level_sums_agree_on_every_path(tile: int, monkeypatch: pytest.MonkeyPat
     # come from one pass over (bucket, code) cells, from a code -> level lookup table, or
     # from level indexes over the whole column; all three give the same table (labelled
     # levels first, one unobserved and one outside the codes' span, then unlabelled codes)
-    from wstats import _batch, _column
-
+    from wstats.decoding import columns as _column
+    from wstats.estimation import many_variables as _batch
     monkeypatch.setattr(_column, "ROW_TILE", tile)
     rng = np.random.default_rng(21)
     n = 400
@@ -247,8 +246,8 @@ def test_a_fractional_code_sends_the_column_to_level_indexes(
         dense: int, monkeypatch: pytest.MonkeyPatch) -> None:
     # common practice, no source: a value like 2.5 among whole codes is a level of its own;
     # the tiled paths find it (in the last tile) and leave the column to the general way
-    from wstats import _batch, _column
-
+    from wstats.decoding import columns as _column
+    from wstats.estimation import many_variables as _batch
     monkeypatch.setattr(_column, "ROW_TILE", 4)
     monkeypatch.setattr(_batch, "_DENSE", dense)
     x = np.array([1.0, 2.0, 2.0, 3.0, 1.0, 2.0, 3.0, 3.0, 2.5, 1.0])

@@ -16,10 +16,10 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 from scipy import stats
 
-from wstats._column import Dataset
-from wstats._design import Design
-from wstats._estimate import estimate
+from wstats.decoding.columns import Dataset
+from wstats.design.declared import Design
 from wstats.errors import SingletonStratumError
+from wstats.estimation.estimate import estimate
 
 DATA = Path(__file__).parent / "data"
 
@@ -255,8 +255,8 @@ def test_row_sums_and_group_sums_equal_dense_products(tile: int,
                                                       monkeypatch: pytest.MonkeyPatch) -> None:
     # common practice, no source: both row-pass paths (whole, and in row tiles that split
     # buckets) and the group sums against dense matrix products built from their definitions
-    from wstats import _column
-    from wstats._sums import GroupSum, _RowSums
+    from wstats.decoding import columns as _column
+    from wstats.estimation.sums import GroupSum, _RowSums
 
     monkeypatch.setattr(_column, "ROW_TILE", tile)
     rng = np.random.default_rng(5)
@@ -286,8 +286,9 @@ def test_buckets_are_ranks_of_occupied_psu_cell_keys(tile: int,
                                                      monkeypatch: pytest.MonkeyPatch) -> None:
     # common practice, no source: a row's bucket is the rank of its (PSU, cell) key among the
     # keys of rows inside the population domain; rows outside get one past the last bucket
-    from wstats import _column
-    from wstats._sums import _buckets, no_cell
+    from wstats.decoding import columns as _column
+    from wstats.estimation.domains import no_cell
+    from wstats.estimation.sums import _buckets
 
     monkeypatch.setattr(_column, "ROW_TILE", tile)
     rng = np.random.default_rng(8)
@@ -311,8 +312,8 @@ def test_order_check_sees_a_step_down_at_a_tile_boundary(tile: int,
                                                          monkeypatch: pytest.MonkeyPatch) -> None:
     # common practice, no source: the segment-sum path needs rows in bucket order; the check
     # runs in tiles that overlap by a row, so a step down between two tiles is not missed
-    from wstats import _column
-    from wstats._sums import _ascending
+    from wstats.decoding import columns as _column
+    from wstats.estimation.sums import _ascending
 
     monkeypatch.setattr(_column, "ROW_TILE", tile)
     a = np.repeat(np.arange(10, dtype=np.int32), 10)
@@ -331,7 +332,7 @@ def test_buckets_property_every_inside_row_in_the_bucket_of_its_key(
         rows: list[tuple[int, int, bool]]) -> None:
     # common practice, no source: rows share a bucket exactly when they share (PSU, cell);
     # buckets are numbered in key order; rows outside the population domain are in none
-    from wstats._sums import _buckets
+    from wstats.estimation.sums import _buckets
 
     psu = np.array([p for p, _, _ in rows], dtype=np.int32)
     cell = np.array([c for _, c, _ in rows])
@@ -345,7 +346,7 @@ def test_buckets_property_every_inside_row_in_the_bucket_of_its_key(
 
 def test_bucket_keys_do_not_overflow_int32_psu_codes() -> None:
     # common practice, no source: PSU x domain keys past 2**31 are computed in int64
-    from wstats._sums import _buckets
+    from wstats.estimation.sums import _buckets
 
     psu = np.array([2**30, 5], dtype=np.int32)
     keys, bucket = _buckets(psu, np.array([2, -1]), np.ones(2, bool), 4, 2**30 + 1)

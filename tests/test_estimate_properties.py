@@ -9,10 +9,10 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from wstats._column import Dataset
-from wstats._design import Design
-from wstats._estimate import estimate
+from wstats.decoding.columns import Dataset
+from wstats.design.declared import Design
 from wstats.errors import EstimationError, ExpressionError, WstatsError
+from wstats.estimation.estimate import estimate
 
 
 def _ds(**cols: Any) -> Dataset:

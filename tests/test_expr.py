@@ -12,9 +12,9 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from wstats._column import Dataset, DecodedColumn
-from wstats._expr import expression_names, parse_expression
-from wstats._reasons import DONT_KNOW, INVALID, REFUSED, SKIPPED, VALID, Reasons
+from wstats.decoding.columns import Dataset, DecodedColumn
+from wstats.decoding.expressions import expression_names, parse_expression
+from wstats.decoding.reasons import DONT_KNOW, INVALID, REFUSED, SKIPPED, VALID, Reasons
 from wstats.errors import ExpressionError
 
 NAN = np.nan
@@ -88,7 +88,7 @@ def test_undefined_arithmetic_is_invalid() -> None:
 
 
 def test_reasons_combine_with_documented_precedence() -> None:
-    # precedence refused > dont_know > invalid > missing > skipped (wstats/_reasons.py)
+    # precedence refused > dont_know > invalid > missing > skipped (wstats/decoding/reasons.py)
     cols = data(A=([1, 1, 1, 1], [REFUSED, DONT_KNOW, SKIPPED, VALID]),
                 B=([1, 1, 1, 1], [DONT_KNOW, SKIPPED, INVALID, VALID]))
     values, reasons = run("A + B", cols)

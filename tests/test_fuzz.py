@@ -26,11 +26,11 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
 from conftest import CODEBOOK_TOML, ROOT
-from wstats._codebook import load_codebook
-from wstats._column import Dataset
-from wstats._expr import parse_expression
-from wstats._readers._types import RawColumn, RawTable
+from wstats.decoding.codebook import load_codebook
+from wstats.decoding.columns import Dataset
+from wstats.decoding.expressions import parse_expression
 from wstats.errors import CodebookError, ExpressionError, WstatsError
+from wstats.readers.raw import RawColumn, RawTable
 
 EXAMPLES = int(os.environ.get("WSTATS_FUZZ_EXAMPLES", "25"))
 #: Seconds one read may take (the worker's alarm); the parent kills the worker after twice it.
@@ -78,8 +78,8 @@ def mutate(data: bytes, ops: list[Op]) -> bytes:
 
 _WORKER = r"""
 import json, signal, sys, traceback, tomllib
-from wstats._codebook import Codebook
-from wstats._readers import file_columns, read_raw
+from wstats.decoding.codebook import Codebook
+from wstats.readers.dispatch import file_columns, read_raw
 from wstats.errors import WstatsError
 
 class Slow(Exception):
@@ -236,8 +236,8 @@ def test_worker_reports_the_unmutated_file_as_readable(survey_files: dict[str, P
 def test_damaged_parquet_message_is_one_line(survey_files: dict[str, Path],
                                              tmp_path: Path) -> None:
     # One byte in front shifts every page: pyarrow's own message runs over several lines.
-    from wstats._readers import read_raw
     from wstats.errors import ReadError
+    from wstats.readers.dispatch import read_raw
 
     path = tmp_path / "shifted.parquet"
     path.write_bytes(mutate(survey_files["parquet"].read_bytes(), [("insert", 0, b"\x00")]))

@@ -1,4 +1,4 @@
-"""IBM System/360 hexadecimal floating point -> IEEE double (wstats._readers._ibm).
+"""IBM System/360 hexadecimal floating point -> IEEE double (wstats.readers.ibm).
 
 The format's definition (.sas7bdat Institute, "The Record Layout of a Data Set in Transport
 (XPORT) Format", TS-140; from memory): a big-endian word of 1 sign bit, a 7-bit exponent in
@@ -18,7 +18,7 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from wstats._readers._ibm import decode_ibm, decode_texts, ibm_to_float64, text_of
+from wstats.readers.ibm import decode_ibm, decode_texts, ibm_to_float64, text_of
 
 SMALLEST = 16.0**-65  # 0.1 (hex) * 16**-64: the smallest normalised IBM magnitude
 LARGEST = 16.0**63  # every IBM magnitude is below 16**63

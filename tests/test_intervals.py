@@ -1,4 +1,4 @@
-"""Tests of wstats._intervals against published check values, scipy and statsmodels."""
+"""Tests of wstats.estimation.intervals against published check values, scipy and statsmodels."""
 
 from __future__ import annotations
 
@@ -11,7 +11,8 @@ from hypothesis import strategies as st
 from scipy import stats
 from statsmodels.stats.proportion import proportion_confint
 
-from wstats._intervals import (
+from wstats.errors import EstimationError, WstatsError
+from wstats.estimation.intervals import (
     PROPORTION_INTERVALS,
     clopper_pearson,
     effective_n,
@@ -22,7 +23,6 @@ from wstats._intervals import (
     wald_t,
     wilson_ci,
 )
-from wstats.errors import EstimationError, WstatsError
 
 INF = float("inf")
 

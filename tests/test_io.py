@@ -13,8 +13,8 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from wstats._io import atomic_output, atomic_write, check_output, sha256_of
 from wstats.errors import OutputError, ReadError
+from wstats.readers.output import atomic_output, atomic_write, check_output, sha256_of
 
 IS_ROOT = hasattr(os, "geteuid") and os.geteuid() == 0
 

@@ -7,7 +7,7 @@ from pathlib import Path
 
 import pytest
 
-from wstats._io import prefetch_sha256, sha256_of
+from wstats.readers.output import prefetch_sha256, sha256_of
 
 
 def test_prefetched_digest_equals_hashlib(tmp_path: Path) -> None:
@@ -31,7 +31,7 @@ def test_prefetch_of_a_missing_file_is_silent(tmp_path: Path) -> None:
 
 def test_digest_cache_is_reused_and_follows_changes(tmp_path: Path,
                                                      monkeypatch: pytest.MonkeyPatch) -> None:
-    import wstats._io as io_mod
+    import wstats.readers.output as io_mod
 
     monkeypatch.setenv("XDG_CACHE_HOME", str(tmp_path / "cache"))
     monkeypatch.delenv("WSTATS_NO_DIGEST_CACHE", raising=False)

@@ -4,9 +4,9 @@ from __future__ import annotations
 
 import pytest
 
-from wstats._methods import methods_paragraph
-from wstats._reliability import STANDARDS
 from wstats.errors import UsageError
+from wstats.estimation.reliability import STANDARDS
+from wstats.reports.methods import methods_paragraph
 
 DESIGN = {"weight": "FINALWT", "strata": "STRAT_ID", "psu": "CLUSTER_ID", "fpc": None,
           "n_strata": 12, "n_psu": 36, "df": 24, "singleton": "center", "singleton_strata": 2,

@@ -9,13 +9,13 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from wstats._column import Dataset, DecodedColumn
-from wstats._design import Design
-from wstats._estimate import estimate
-from wstats._nonresponse import NONRESPONSE_RULES, nonresponse, nonresponse_reasons
-from wstats._reasons import DONT_KNOW, INVALID, MISSING, REFUSED, SKIPPED, VALID, Reasons
-from wstats._reliability import STANDARDS
+from wstats.decoding.columns import Dataset, DecodedColumn
+from wstats.decoding.reasons import DONT_KNOW, INVALID, MISSING, REFUSED, SKIPPED, VALID, Reasons
+from wstats.design.declared import Design
 from wstats.errors import ColumnError, EstimationError
+from wstats.estimation.estimate import estimate
+from wstats.estimation.reliability import STANDARDS
+from wstats.reports.nonresponse import NONRESPONSE_RULES, nonresponse, nonresponse_reasons
 
 CORE = ("valid", "skipped", "dont_know", "refused", "invalid", "missing")
 

@@ -8,20 +8,20 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from wstats._column import Dataset, DecodedColumn
-from wstats._design import Design
-from wstats._estimate import estimate
-from wstats._nonresponse import nonresponse
-from wstats._plots import (
+from wstats.decoding.columns import Dataset, DecodedColumn
+from wstats.decoding.reasons import DONT_KNOW, REFUSED, SKIPPED, VALID, Reasons
+from wstats.design.declared import Design
+from wstats.errors import OutputError, UsageError
+from wstats.estimation.estimate import estimate
+from wstats.estimation.results import EstimateTable
+from wstats.reports.nonresponse import nonresponse
+from wstats.reports.plots import (
     plot_domains,
     plot_format,
     plot_reasons,
     render_domains,
     render_reasons,
 )
-from wstats._reasons import DONT_KNOW, REFUSED, SKIPPED, VALID, Reasons
-from wstats._results import EstimateTable
-from wstats.errors import OutputError, UsageError
 
 
 @pytest.fixture(scope="module")

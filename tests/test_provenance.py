@@ -7,7 +7,7 @@ import json
 import re
 from pathlib import Path
 
-from wstats._provenance import normalize, provenance
+from wstats.reports.provenance import normalize, provenance
 
 
 def test_records_name_size_and_sha256(tmp_path: Path) -> None:

@@ -12,10 +12,10 @@ import pytest
 
 from render_tables import PROVENANCE
 from test_render import check_golden, draw
-from wstats._cellfmt import fmt_count, fmt_number
-from wstats._pubtable import build_table, load_table_spec
 from wstats.errors import AnalysisError, OutputError
 from wstats.render import TABLE_RENDERERS, write_table
+from wstats.reports.cells import fmt_count, fmt_number
+from wstats.reports.tables import build_table, load_table_spec
 
 CODEBOOK = """
 [survey]
@@ -225,9 +225,9 @@ def test_levels_by_code_and_missing_spec_file(survey: Path) -> None:
 
 
 def test_codebook_check_rendering(survey: Path) -> None:
-    from wstats._codebook import load_codebook
-    from wstats._draft import check_codebook
-    from wstats._readers import read_raw
+    from wstats.decoding.codebook import load_codebook
+    from wstats.decoding.draft import check_codebook
+    from wstats.readers.dispatch import read_raw
     from wstats.render import render_check
 
     report = check_codebook(read_raw(str(survey / "sample.csv")), load_codebook(survey / "cb.toml"))
@@ -253,10 +253,10 @@ def test_the_documented_example_spec_is_valid(tmp_path: Path) -> None:
 
 
 def test_real_nonresponse_table_renders_in_every_format(survey: Path) -> None:
-    from wstats._design import Design
-    from wstats._load import read
-    from wstats._nonresponse import nonresponse
+    from wstats.decoding.load import read
+    from wstats.design.declared import Design
     from wstats.render import NONRESPONSE_RENDERERS
+    from wstats.reports.nonresponse import nonresponse
 
     data = read(survey / "sample.csv", codebook=survey / "cb.toml")
     table = nonresponse(data, Design("WT", "STRAT", "PSU"), ["SLEEP"], by=["SEX"])

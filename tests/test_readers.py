@@ -20,11 +20,11 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-import wstats._readers as readers
-from wstats._readers import FORMATS, file_columns, format_of, read_raw
-from wstats._readers import _stat as stat_reader
-from wstats._readers import _text as text_reader
+import wstats.readers.raw as readers
 from wstats.errors import ColumnError, ReadError
+from wstats.readers import stat as stat_reader
+from wstats.readers import text as text_reader
+from wstats.readers.dispatch import FORMATS, file_columns, format_of, read_raw
 
 NAN = np.nan
 IS_ROOT = hasattr(os, "geteuid") and os.geteuid() == 0
@@ -206,7 +206,7 @@ def test_parquet_numbers_across_row_groups_with_nulls(tmp_path: Path) -> None:
     pq.write_table(sliced, tmp_path / "sliced.parquet")
     np.testing.assert_array_equal(read_raw(tmp_path / "sliced.parquet").columns["x"].data,
                                   [NAN, 3.0, NAN, 5.0])
-    from wstats._readers._parquet import _float64
+    from wstats.readers.parquet import _float64
 
     offset = pa.array([1.0, None, 3.0, None, 5.0, 6.0, 7.0, 8.0, 9.0, None, 11.0]).slice(3)
     np.testing.assert_array_equal(_float64(offset),

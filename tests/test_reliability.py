@@ -1,4 +1,4 @@
-"""Tests of wstats._reliability: each rule on both sides of its threshold.
+"""Tests of wstats.estimation.reliability: each rule on both sides of its threshold.
 
 Proportion rules: Parker JD, Talih M, Malec DJ, et al. National Center for Health Statistics
 Data Presentation Standards for Proportions. Vital Health Stat 2(175), 2017 (rules as listed
@@ -20,8 +20,9 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 from scipy import optimize
 
-from wstats._intervals import korn_graubard_ci
-from wstats._reliability import (
+from wstats.errors import EstimationError
+from wstats.estimation.intervals import korn_graubard_ci
+from wstats.estimation.reliability import (
     DEFAULT_STANDARD,
     RULES,
     STANDARDS,
@@ -32,7 +33,6 @@ from wstats._reliability import (
     evaluate,
     footnotes,
 )
-from wstats.errors import EstimationError
 
 UP = math.inf
 
@@ -356,10 +356,10 @@ def test_estimate_reuses_its_own_kg_interval_only_when_it_is_the_rules_one(
     # common practice, no source: a table whose proportion intervals are Korn-Graubard at the
     # standard's 95% hands them to the width rules; the flags equal those of rules that solve
     # the interval again from p, se, n and df (at 90% the table's own cannot serve)
-    from wstats._column import Dataset
-    from wstats._design import Design
-    from wstats._estimate import estimate
-    from wstats._reliability import assess
+    from wstats.decoding.columns import Dataset
+    from wstats.design.declared import Design
+    from wstats.estimation.estimate import estimate
+    from wstats.estimation.reliability import assess
 
     rng = np.random.default_rng(17)
     n = 900
@@ -368,8 +368,7 @@ def test_estimate_reuses_its_own_kg_interval_only_when_it_is_the_rules_one(
                               "st": rng.integers(0, 6, n).astype(float),
                               "psu": rng.integers(0, 3, n).astype(float),
                               "g": rng.integers(0, 12, n).astype(float)})
-    from wstats import _reliability
-
+    from wstats.estimation import reliability as _reliability
     solved: list[int] = []
 
     def counting(*args: Any) -> Any:

@@ -27,7 +27,7 @@ from rich.console import Console
 
 from _imports import modules_loaded_by
 from render_tables import PROVENANCE, estimate_table, nonresponse_table
-from wstats._reliability import RULES
+from wstats.estimation.reliability import RULES
 from wstats.render import (
     ESTIMATE_RENDERERS,
     FORMATS,

@@ -9,7 +9,7 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from wstats._cellfmt import (
+from wstats.reports.cells import (
     FlagNotes,
     auto_decimals,
     cell_text,

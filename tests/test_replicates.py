@@ -8,10 +8,10 @@ import numpy as np
 import pytest
 from scipy.linalg import hadamard
 
-from wstats._column import Dataset
-from wstats._design import Design
-from wstats._estimate import estimate
-from wstats._replicates import replicate_variance
+from wstats.decoding.columns import Dataset
+from wstats.design.declared import Design
+from wstats.design.replicates import replicate_variance
+from wstats.estimation.estimate import estimate
 
 
 def _ds(**cols: Any) -> Dataset:

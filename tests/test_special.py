@@ -1,4 +1,5 @@
-"""The normal, t and beta quantiles of wstats._special against scipy.special and tables.
+"""The normal, t and beta quantiles of wstats.estimation.distributions against scipy.special and
+tables.
 
 scipy.special (cephes / Boost based) is the general-purpose reference here; wstats computes
 the same functions in numpy so that a quick run does not import scipy.
@@ -15,7 +16,7 @@ from hypothesis import strategies as st
 from scipy import special
 
 from _imports import modules_loaded_by
-from wstats._special import beta_ppf, betainc, expit, norm_ppf, t_ppf
+from wstats.estimation.distributions import beta_ppf, betainc, expit, norm_ppf, t_ppf
 
 LEVELS = (0.0005, 0.005, 0.025, 0.05, 0.1, 0.5, 0.9, 0.95, 0.975, 0.995, 0.9995)
 
@@ -49,8 +50,7 @@ def test_t_quantiles_equal_scipy(q: float) -> None:
 def test_remembered_t_quantiles_equal_solved_ones(monkeypatch: pytest.MonkeyPatch) -> None:
     # scipy.special.stdtrit: a df met again (both tails, mixed with new ones) gives the value
     # solved the first time; the memo starts afresh past its size
-    from wstats import _special
-
+    from wstats.estimation import distributions as _special
     monkeypatch.setattr(_special, "_T_SOLVED", {})
     monkeypatch.setattr(_special, "_T_SOLVED_MAX", 5)
     df = np.array([3.0, 30.0, 7.5, 30.0, 2999.0, 1e5])
@@ -145,11 +145,12 @@ def test_expit_equals_scipy_without_overflow() -> None:
 
 
 def test_a_linearization_run_imports_no_scipy() -> None:
-    # the point of wstats._special: a Taylor-linearization estimate leaves scipy unimported
+    # the point of wstats.estimation.distributions: a Taylor-linearization estimate leaves
+    # scipy unimported
     code = (
-        "from wstats._column import Dataset\n"
-        "from wstats._design import Design\n"
-        "from wstats._estimate import estimate\n"
+        "from wstats.decoding.columns import Dataset\n"
+        "from wstats.design.declared import Design\n"
+        "from wstats.estimation.estimate import estimate\n"
         "ds = Dataset.from_arrays({'y': [1.0, 0.0, 1.0, 1.0, 0.0, 1.0], 'w': [1.0, 2, 1, 3, 1, 2],"
         " 'h': [1.0, 1, 1, 2, 2, 2], 'c': [1.0, 2, 2, 3, 4, 4]})\n"
         "estimate(ds, Design('w', strata='h', psu='c'), ['y'], categorical=['y'])"

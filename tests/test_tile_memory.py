@@ -16,14 +16,15 @@ from typing import Any
 import numpy as np
 import pytest
 
-from wstats import _batch, _column
-from wstats._column import Dataset
-from wstats._decode import _evaluate_in_tiles
-from wstats._design import Design
-from wstats._estimate import _domains
-from wstats._expr import parse_expression
-from wstats._stats import Context
-from wstats._sums import WeightedSums
+from wstats.decoding import columns as _column
+from wstats.decoding.columns import Dataset
+from wstats.decoding.decode import _evaluate_in_tiles
+from wstats.decoding.expressions import parse_expression
+from wstats.design.declared import Design
+from wstats.estimation import many_variables as _batch
+from wstats.estimation.estimate import _domains
+from wstats.estimation.statistics import Context
+from wstats.estimation.sums import WeightedSums
 
 TILE = 40_000
 TILE_BYTES = TILE * 8  # one float64 temporary of a tile

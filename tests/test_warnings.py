@@ -1,7 +1,7 @@
 """Warnings that matter fire once, as one ``wstats: warning:`` line, and are never fatal.
 
-Thresholds are those of ``wstats/_checks.py`` and docs/warnings.md. Each case builds a small
-file that crosses exactly one threshold clearly, runs ``wstats estimate`` in a child process
+Thresholds are those of ``wstats/estimation/sanity.py`` and docs/warnings.md. Each case builds a
+small file that crosses exactly one threshold clearly, runs ``wstats estimate`` in a child process
 and checks: exit 0, the output written, and exactly one warning line about the condition even
 though two variables and a by-variable give the library several chances to repeat it.
 """

@@ -1,4 +1,4 @@
-"""The fast transport (XPORT v5) reader, wstats._readers._xpt.
+"""The fast transport (XPORT v5) reader, wstats.readers.xpt.
 
 Oracles: pyreadstat.read_xport on the same files, and the record layout of
 "The Record Layout of a Data Set in Transport (XPORT) Format", technical support document
@@ -19,9 +19,9 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
 from test_ibm_float import LARGEST, SMALLEST, ibm_value, ieee_to_ibm
-from wstats._readers import _xpt
-from wstats._readers._xpt import XptUnsupported, read_xpt, xpt_file_columns
 from wstats.errors import ColumnError, ReadError, UsageError
+from wstats.readers import xpt as _xpt
+from wstats.readers.xpt import XptUnsupported, read_xpt, xpt_file_columns
 
 DATE = b"13APR89:10:20:06"
 

@@ -4,6 +4,6 @@ from __future__ import annotations
 
 import sys
 
-from wstats.cli import main
+from wstats.cli.main import main
 
 sys.exit(main())

@@ -2,7 +2,7 @@
 
 One registry per result type maps a format name to ``f(table, provenance=None)``:
 
-- :data:`ESTIMATE_RENDERERS` for :class:`~wstats._results.EstimateTable`,
+- :data:`ESTIMATE_RENDERERS` for :class:`~wstats.estimation.results.EstimateTable`,
 - :data:`NONRESPONSE_RENDERERS` for ``NonresponseTable``,
 - :data:`TABLE_RENDERERS` for ``PublicationTable``.
 
@@ -23,7 +23,7 @@ from typing import TYPE_CHECKING, Any
 from wstats.errors import OutputError
 
 if TYPE_CHECKING:
-    from wstats._pubtable import PublicationTable
+    from wstats.reports.tables import PublicationTable
 
 __all__ = [
     "BOUNDS_RENDERERS",
@@ -117,7 +117,7 @@ def write_table(table: PublicationTable, overwrite: bool = False) -> list[Path]:
     list of Path
         The files written, in spec order.
     """
-    from wstats._io import atomic_write
+    from wstats.readers.output import atomic_write
 
     written = []
     for path, fmt in table.outputs:

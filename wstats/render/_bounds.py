@@ -1,4 +1,4 @@
-"""Sensitivity bounds (a pandas frame from ``wstats._nonresponse.bounds``) in every format."""
+"""Sensitivity bounds (a pandas frame from ``wstats.reports.bounds.bounds``) in every format."""
 
 from __future__ import annotations
 
@@ -85,8 +85,8 @@ def bounds_csv(frame: pd.DataFrame, provenance: Mapping[str, Any] | None = None)
 
 def bounds_json(frame: pd.DataFrame, provenance: Mapping[str, Any] | None = None) -> str:
     """Return ``{"provenance", "settings", "results"}`` JSON."""
-    from wstats._nonresponse import bounds_records
     from wstats.render._json import _dump
+    from wstats.reports.bounds import bounds_records
 
     return _dump({"provenance": dict(provenance or {}), "settings": dict(frame.attrs),
                   "results": bounds_records(frame)})

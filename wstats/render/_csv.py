@@ -23,7 +23,7 @@ from wstats.render._grid import (
 )
 
 if TYPE_CHECKING:
-    from wstats._results import EstimateTable
+    from wstats.estimation.results import EstimateTable
 
 __all__ = ["SUPPRESSED_FIELDS", "estimate_csv", "nonresponse_csv", "table_csv", "value_text"]
 

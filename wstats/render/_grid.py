@@ -1,7 +1,7 @@
 """A format-neutral table model (Grid) built once from each result type, drawn by each format.
 
 Estimate and nonresponse tables become a Grid here: sections per variable, cells already
-formatted (see :mod:`wstats._cellfmt`), flag marks in the cells and their footnotes.
+formatted (see :mod:`wstats.reports.cells`), flag marks in the cells and their footnotes.
 Each format module then only decides how rows, spans and notes are drawn.
 """
 
@@ -13,7 +13,7 @@ from collections.abc import Iterator, Mapping, Sequence
 from dataclasses import dataclass, field
 from typing import TYPE_CHECKING, Any, Protocol
 
-from wstats._cellfmt import (
+from wstats.reports.cells import (
     SUPPRESSED,
     FlagNotes,
     auto_decimals,
@@ -29,7 +29,7 @@ from wstats._cellfmt import (
 if TYPE_CHECKING:
     import pandas as pd
 
-    from wstats._results import EstimateTable
+    from wstats.estimation.results import EstimateTable
 
 __all__ = [
     "Column",
@@ -51,7 +51,7 @@ _STAT_WORDS = {"proportion": "percent", "mean": "mean", "total": "total", "ratio
 
 
 class NonresponseLike(Protocol):
-    """What the renderers need from a nonresponse table (see ``wstats._nonresponse``)."""
+    """What the renderers need from a nonresponse table (see ``wstats.reports.nonresponse``)."""
 
     frame: pd.DataFrame
     by: tuple[str, ...]
@@ -64,7 +64,7 @@ class NonresponseLike(Protocol):
 
 
 class PublicationLike(Protocol):
-    """What the renderers need from a publication table (see ``wstats._pubtable``)."""
+    """What the renderers need from a publication table (see ``wstats.reports.tables``)."""
 
     title: str
     cells: pd.DataFrame
@@ -289,7 +289,7 @@ def design_line(design: Mapping[str, Any], settings: Mapping[str, Any], level: f
 
 def provenance_lines(provenance: Mapping[str, Any] | None) -> list[str]:
     """Return ``key: value`` lines (sorted, dotted keys, JSON values) for comment headers."""
-    from wstats._provenance import normalize
+    from wstats.reports.provenance import normalize
 
     lines: list[str] = []
 
@@ -306,6 +306,6 @@ def provenance_lines(provenance: Mapping[str, Any] | None) -> list[str]:
 
 def default_provenance(table: Any) -> dict[str, Any]:
     """Return a minimal provenance for a table rendered without one (library use)."""
-    from wstats._provenance import provenance
+    from wstats.reports.provenance import provenance
 
     return provenance([], None, dict(getattr(table, "design", {}) or {}), "", time=False)

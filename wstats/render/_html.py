@@ -18,7 +18,7 @@ from wstats.render._grid import (
 )
 
 if TYPE_CHECKING:
-    from wstats._results import EstimateTable
+    from wstats.estimation.results import EstimateTable
 
 __all__ = ["estimate_html", "grid_html", "nonresponse_html", "table_html"]
 

@@ -12,12 +12,12 @@ import math
 from collections.abc import Iterable, Mapping
 from typing import TYPE_CHECKING, Any
 
-from wstats._cellfmt import rule_info
 from wstats.render._csv import SUPPRESSED_FIELDS
 from wstats.render._grid import NonresponseLike, PublicationLike, default_provenance
+from wstats.reports.cells import rule_info
 
 if TYPE_CHECKING:
-    from wstats._results import EstimateTable
+    from wstats.estimation.results import EstimateTable
 
 __all__ = ["estimate_json", "nonresponse_json", "table_json"]
 
@@ -86,7 +86,7 @@ def _clean(value: Any) -> Any:
 
 def _dump(data: Mapping[str, Any]) -> str:
     """Serialise with stable key order (provenance keys sorted) and a final newline."""
-    from wstats._provenance import normalize
+    from wstats.reports.provenance import normalize
 
     out = dict(_clean(dict(data)))
     out["provenance"] = normalize(out["provenance"])

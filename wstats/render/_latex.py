@@ -10,7 +10,6 @@ from __future__ import annotations
 from collections.abc import Mapping
 from typing import TYPE_CHECKING, Any
 
-from wstats._methods import escape_latex
 from wstats.render._grid import (
     Grid,
     NonresponseLike,
@@ -21,9 +20,10 @@ from wstats.render._grid import (
     provenance_lines,
     publication_grid,
 )
+from wstats.reports.methods import escape_latex
 
 if TYPE_CHECKING:
-    from wstats._results import EstimateTable
+    from wstats.estimation.results import EstimateTable
 
 __all__ = ["estimate_latex", "grid_latex", "nonresponse_latex", "table_latex"]
 

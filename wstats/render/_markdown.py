@@ -5,7 +5,6 @@ from __future__ import annotations
 from collections.abc import Mapping
 from typing import TYPE_CHECKING, Any
 
-from wstats._methods import escape_markdown as _escape
 from wstats.render._grid import (
     Grid,
     NonresponseLike,
@@ -16,9 +15,10 @@ from wstats.render._grid import (
     provenance_lines,
     publication_grid,
 )
+from wstats.reports.methods import escape_markdown as _escape
 
 if TYPE_CHECKING:
-    from wstats._results import EstimateTable
+    from wstats.estimation.results import EstimateTable
 
 __all__ = ["estimate_markdown", "grid_markdown", "nonresponse_markdown", "table_markdown"]
 

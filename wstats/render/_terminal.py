@@ -25,7 +25,7 @@ from wstats.render._grid import (
 if TYPE_CHECKING:
     from rich.console import Console, ConsoleOptions, RenderableType, RenderResult
 
-    from wstats._results import EstimateTable
+    from wstats.estimation.results import EstimateTable
 
 __all__ = [
     "GridView", "estimate_terminal", "nonresponse_terminal", "render_check", "table_terminal",
@@ -173,7 +173,7 @@ def _meaning(row: dict[str, Any]) -> str:
 
 
 def render_check(report: Any) -> RenderableType:
-    """Return a rich renderable of a codebook check (``wstats._draft.CodebookCheck``)."""
+    """Return a rich renderable of a codebook check (``wstats.decoding.draft.CodebookCheck``)."""
     from rich.console import Group
     from rich.text import Text
 

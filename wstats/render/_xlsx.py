@@ -26,7 +26,7 @@ from wstats.render._grid import (
 if TYPE_CHECKING:
     import pandas as pd
 
-    from wstats._results import EstimateTable
+    from wstats.estimation.results import EstimateTable
 
 __all__ = ["estimate_xlsx", "nonresponse_xlsx", "table_xlsx"]
 

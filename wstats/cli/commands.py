@@ -1,0 +1,234 @@
+"""The commands: for each, parse its options, call one library function, render, print.
+
+Every subcommand is registered in :data:`COMMANDS` with a help text and an example; the
+program around them is :mod:`wstats.cli.main`.
+"""
+
+from __future__ import annotations
+
+import argparse
+import sys
+from pathlib import Path
+from typing import Any
+
+from wstats.cli.args import (
+    add_bounds_args,
+    add_codebook_args,
+    add_columns_args,
+    add_convert_args,
+    add_demo_args,
+    add_estimate_args,
+    add_nonresponse_args,
+    add_run_args,
+    add_table_args,
+    design_from,
+    needed_columns,
+    parse_rows,
+    ratio_pair,
+    split_list,
+)
+from wstats.cli.common import (
+    Command,
+    _check_outputs,
+    _emit,
+    _load_codebook,
+    _not_an_input,
+    _print_rich,
+    _read,
+)
+from wstats.errors import UsageError
+
+__all__ = ["COMMANDS"]
+
+def _run_estimate(args: argparse.Namespace) -> int:
+    parse_rows(args.rows)  # usage mistakes first, before any file is touched
+    _check_outputs(args, [args.data, args.codebook])
+    from wstats.estimation.estimate import estimate
+
+    codebook = _load_codebook(args.codebook)
+    design = design_from(args, codebook)
+    ratios = [ratio_pair(r) for r in args.ratio]
+    variables = list(args.variables)
+    needed = needed_columns([*variables, *[x for r in ratios for x in r], *args.by],
+                            design, args.where, args.data)
+    data = _read(args, codebook, needed)
+    table = estimate(
+        data, design, variables, statistics=split_list([args.stats]) or None, by=args.by,
+        where=args.where, categorical=args.categorical, ratios=ratios,
+        quantiles=[float(q) for q in split_list([args.quantiles])], level=args.level,
+        proportion_ci=args.proportion_ci, reliability=_standard(args.standard),
+    )
+    _emit(table, "estimate", args, [args.data], args.codebook)
+    if args.plot:
+        from wstats.reports.plots import plot_domains
+
+        plot_domains(table, Path(args.plot), overwrite=args.overwrite)
+    return 0
+
+
+def _standard(name: str) -> Any:
+    from wstats.estimation.reliability import STANDARDS
+
+    if name not in STANDARDS:
+        raise UsageError(f"--standard '{name}' is unknown; choose one of "
+                         f"{', '.join(STANDARDS)}")
+    return STANDARDS[name]
+
+
+def _run_nonresponse(args: argparse.Namespace) -> int:
+    parse_rows(args.rows)
+    _check_outputs(args, [args.data, args.codebook])
+    from wstats.reports.nonresponse import nonresponse
+
+    codebook = _load_codebook(args.codebook)
+    design = design_from(args, codebook)
+    needed = needed_columns([*args.variables, *args.by], design, args.where, args.data)
+    data = _read(args, codebook, needed)
+    table = nonresponse(data, design, args.variables, by=args.by, where=args.where,
+                        level=args.level, count_invalid=not args.exclude_invalid,
+                        sort_worst=args.worst_first, not_asked=tuple(split_list([args.not_asked])))
+    _emit(table, "nonresponse", args, [args.data], args.codebook)
+    if args.plot:
+        from wstats.reports.plots import plot_reasons
+
+        plot_reasons(table, Path(args.plot), overwrite=args.overwrite)
+    return 0
+
+
+def _run_bounds(args: argparse.Namespace) -> int:
+    parse_rows(args.rows)
+    _check_outputs(args, [args.data, args.codebook])
+    from wstats.reports.bounds import bounds
+
+    codebook = _load_codebook(args.codebook)
+    design = design_from(args, codebook)
+    data = _read(args, codebook, needed_columns([*args.variables, *args.by], design,
+                                                args.where, args.data))
+    frame = bounds(data, design, args.variables, by=args.by, where=args.where,
+                   level=args.level, reasons=tuple(split_list([args.unknown])))
+    frame.attrs.setdefault("design", design.bind(data).summary())
+    _emit(frame, "bounds", args, [args.data], args.codebook)
+    return 0
+
+
+def _run_table(args: argparse.Namespace) -> int:
+    from wstats.reports.tables import build_table, load_table_spec
+
+    spec = load_table_spec(args.spec)
+    if args.format == "xlsx" and not args.output:
+        raise UsageError("xlsx output needs -o FILE.xlsx")
+    table = build_table(spec, progress=sys.stderr.isatty())
+    if not args.output and not args.format and table.outputs:
+        from wstats.render import write_table
+
+        for path in write_table(table, overwrite=args.overwrite):
+            print(f"wrote {path}", file=sys.stderr)
+        return 0
+    _emit(table, "table", args, [str(spec.data)], str(spec.codebook) if spec.codebook else None)
+    return 0
+
+
+def _run_run(args: argparse.Namespace) -> int:
+    from wstats.cli.analysis import run_analysis
+
+    for path in run_analysis(args.analysis, overwrite=args.overwrite,
+                             progress=sys.stderr.isatty()):
+        print(f"wrote {path}", file=sys.stderr)
+    return 0
+
+
+def _run_codebook(args: argparse.Namespace) -> int:
+    from wstats.readers.dispatch import read_raw
+
+    if args.action == "draft":
+        from wstats.decoding.draft import draft_codebook
+
+        text = draft_codebook(read_raw(args.data, progress=sys.stderr.isatty()))
+        if args.output:
+            from wstats.readers.output import atomic_write
+
+            _not_an_input(args.output, [args.data])
+            atomic_write(Path(args.output), text, overwrite=args.overwrite)
+            print(f"wrote {args.output}", file=sys.stderr)
+        else:
+            sys.stdout.write(text)
+        return 0
+    from wstats.decoding.draft import check_codebook
+
+    codebook = _load_codebook(args.codebook)
+    raw = read_raw(args.data, columns=_present(args.data, codebook), rows=parse_rows(args.rows),
+                   progress=sys.stderr.isatty())
+    report = check_codebook(raw, codebook)
+    from wstats.render import render_check
+
+    _print_rich(render_check(report))
+    return 0 if report.ok else 1
+
+
+def _present(path: str, codebook: Any) -> list[str]:
+    from wstats.readers.dispatch import file_columns
+
+    in_file = set(file_columns(path))
+    wanted = codebook.raw_columns_for(list(codebook.variables))
+    return [c for c in wanted if c in in_file]
+
+
+def _run_convert(args: argparse.Namespace) -> int:
+    from wstats.readers.cache import convert
+
+    out = convert(args.data, args.output, overwrite=args.overwrite,
+                  progress=sys.stderr.isatty())
+    print(f"wrote {out}", file=sys.stderr)
+    return 0
+
+
+def _run_columns(args: argparse.Namespace) -> int:
+    from wstats.readers.dispatch import file_columns
+
+    for name in file_columns(args.data):
+        print(name)
+    return 0
+
+
+def _run_demo(args: argparse.Namespace) -> int:
+    from wstats.cli.demo import run_demo
+
+    run_demo(Path(args.folder), overwrite=args.overwrite, rows=args.rows, columns=args.columns,
+             show=_print_rich)
+    return 0
+
+
+COMMANDS: dict[str, Command] = {
+    "estimate": Command(
+        "weighted means, totals, proportions, ratios, quantiles with design-based SEs",
+        "wstats estimate survey.xpt SLEEPHRS GENHLTH --weight FINALWT --strata STRAT_ID "
+        "--psu CLUSTRID --by AGE_GRP --codebook codebook.toml",
+        add_estimate_args, _run_estimate),
+    "nonresponse": Command(
+        "counts and weighted shares of every missing reason; item nonresponse rates",
+        "wstats nonresponse survey.xpt SLEEPHRS FRUITFRQ --codebook codebook.toml --worst-first",
+        add_nonresponse_args, _run_nonresponse),
+    "bounds": Command(
+        "how far proportions could move if don't-know/refused answers were known",
+        "wstats bounds survey.xpt GENHLTH INSURED --codebook codebook.toml --by AGE_GRP",
+        add_bounds_args, _run_bounds),
+    "table": Command(
+        "a publication table (with methods paragraph) from a table spec",
+        "wstats table table1.toml --format latex -o table1.tex", add_table_args, _run_table),
+    "run": Command(
+        "run every estimate, table and chart an analysis file names",
+        "wstats run analysis.toml --overwrite", add_run_args, _run_run),
+    "codebook": Command(
+        "draft a codebook from a file, or check one against it",
+        "wstats codebook draft survey.sav -o codebook.toml", add_codebook_args, _run_codebook),
+    "convert": Command(
+        "convert a survey file to a Parquet cache that keeps labels and missing codes",
+        "wstats convert survey.xpt survey.parquet", add_convert_args, _run_convert),
+    "columns": Command(
+        "list the columns of a survey file (metadata only, fast)",
+        "wstats columns survey.xpt", add_columns_args, _run_columns),
+    "demo": Command(
+        "write the built-in demo survey and show what wstats does with it",
+        "wstats demo ./wstats-demo", add_demo_args, _run_demo),
+}
+

@@ -1,0 +1,131 @@
+"""What every command shares: reading the data asked for, checking outputs, emitting results."""
+
+from __future__ import annotations
+
+import argparse
+import sys
+from collections.abc import Callable, Mapping, Sequence
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Any
+
+from wstats.cli.args import format_for, parse_rows
+from wstats.errors import UsageError
+
+__all__ = ["Command"]
+
+@dataclass(frozen=True)
+class Command:
+    """One subcommand: its help, an example, how to add its arguments, and what it runs."""
+
+    help: str
+    example: str
+    add_arguments: Callable[[argparse.ArgumentParser], None]
+    run: Callable[[argparse.Namespace], int]
+
+
+def _load_codebook(path: str | None) -> Any:
+    if not path:
+        return None
+    from wstats.decoding.codebook import load_codebook
+
+    return load_codebook(path)
+
+
+def _read(args: argparse.Namespace, codebook: Any, needed: Sequence[str]) -> Any:
+    from wstats.decoding.load import read
+
+    return read(args.data, columns=list(dict.fromkeys(needed)), codebook=codebook,
+                rows=parse_rows(args.rows), progress=_progress_wanted(args),
+                encoding=args.encoding)
+
+
+def _progress_wanted(args: argparse.Namespace) -> bool:
+    return not getattr(args, "quiet", False) and sys.stderr.isatty()
+
+
+def _command_line() -> str:
+    import shlex
+
+    return " ".join(shlex.quote(a) for a in ["wstats", *sys.argv[1:]])
+
+
+def _emit(obj: Any, kind: str, args: argparse.Namespace, inputs: Sequence[str],
+          codebook_path: str | None) -> None:
+    """Render *obj* with the registry for *kind* and print it or write it atomically."""
+    from wstats import render
+
+    fmt = format_for(args)
+    registry: Mapping[str, Callable[..., Any]] = getattr(render, f"{kind.upper()}_RENDERERS")
+    key = "terminal" if fmt == "table" else fmt
+    if key not in registry:
+        raise UsageError(f"format '{fmt}' is not available for {kind}; choose one of "
+                         f"{', '.join(sorted(registry))}")
+    if key == "terminal" and not args.output:
+        _print_rich(registry[key](obj))
+        return
+    from wstats.readers.output import atomic_write
+    from wstats.reports.provenance import provenance
+
+    attrs = obj.attrs if kind == "bounds" else {}
+    design = getattr(obj, "design", None) or attrs.get("design") or {}
+    prov = provenance([Path(p) for p in inputs], Path(codebook_path) if codebook_path else None,
+                      dict(design), _command_line())
+    text = registry[key](obj, provenance=prov)
+    if key == "terminal":
+        text = _rich_to_text(text)
+    if args.output:
+        _not_an_input(args.output, [*inputs, codebook_path])
+        atomic_write(Path(args.output), text, overwrite=args.overwrite)
+        print(f"wrote {args.output}", file=sys.stderr)
+    else:
+        sys.stdout.write(text if isinstance(text, str) else text.decode())
+
+
+def _check_outputs(args: argparse.Namespace, inputs: Sequence[str | None]) -> None:
+    """Refuse unwritable outputs before any work is done (they are checked again at write).
+
+    When the result will be written with its provenance, the inputs' SHA-256 digests are
+    started on another thread now, so that hashing overlaps reading and estimating.
+    """
+    from wstats.readers.output import check_output, prefetch_sha256
+
+    if getattr(args, "output", None) or format_for(args) != "table":
+        for name in inputs:
+            if name:
+                prefetch_sha256(name)
+    for out in (getattr(args, "output", None), getattr(args, "plot", None)):
+        if out:
+            _not_an_input(out, inputs)
+            check_output(out, overwrite=args.overwrite)
+
+
+def _not_an_input(output: str, inputs: Sequence[str | None]) -> None:
+    """Refuse to write over a file this command reads."""
+    import os
+
+    from wstats.errors import OutputError
+
+    out = Path(output)
+    for name in inputs:
+        if not name or not out.exists() or not Path(name).exists():
+            continue
+        if os.path.samefile(out, name):
+            raise OutputError(f"output '{output}' is an input of this command; choose another "
+                              "name")
+
+
+def _print_rich(renderable: Any) -> None:
+    from rich.console import Console
+
+    Console(soft_wrap=False).print(renderable)
+
+
+def _rich_to_text(renderable: Any) -> str:
+    import io
+
+    from rich.console import Console
+
+    console = Console(record=True, width=120, file=io.StringIO())
+    console.print(renderable)
+    return console.export_text()

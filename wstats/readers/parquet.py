@@ -1,0 +1,235 @@
+"""Parquet files, including the wstats cache that :func:`wstats.readers.cache.convert` writes.
+
+Cache layout (our own): one Parquet column per data column (float64 for numeric columns,
+UTF-8 string for character columns), zstd-compressed. Tagged missing values are kept in an
+extra ``uint8`` column named ``__tags__<name>`` beside each column that has tags (a column per
+row rather than metadata, so it stays cheap for large files and is read only with its column);
+the ``__tags__`` prefix is reserved and such columns are never listed as data. Everything
+else the source file said is JSON under the key ``wstats`` of the file's key-value metadata::
+
+    {"wstats_cache": 1, "source": {"path": ..., "format": ..., "reader": ..., "sha256": ...},
+     "file_label": ..., "columns": {name: {"label": ..., "value_labels": [[code, label], ...],
+     "user_missing": [code or [low, high], ...], "numeric": bool, "format": ...}}}
+
+Any other Parquet file reads too: numeric and boolean columns become float64 (nulls NaN),
+string columns text (nulls ""), with no labels.
+"""
+
+from __future__ import annotations
+
+import json
+from collections.abc import Sequence
+from pathlib import Path
+from typing import IO, TYPE_CHECKING, Any
+
+import numpy as np
+
+from wstats.errors import ColumnError, ReadError
+from wstats.readers.common import Rows, progress_bar, select_columns
+from wstats.readers.raw import RawColumn, RawTable
+
+if TYPE_CHECKING:
+    import pyarrow as pa
+
+__all__ = ["META_KEY", "TAGS_PREFIX", "parquet_columns", "read_parquet", "write_parquet"]
+
+META_KEY = b"wstats"
+TAGS_PREFIX = "__tags__"
+_VERSION = 1
+
+
+def parquet_columns(path: Path) -> list[str]:
+    """Return the data column names of a Parquet file from its schema."""
+    return [n for n in _schema(path).names if not n.startswith(TAGS_PREFIX)]
+
+
+def read_parquet(
+    path: Path,
+    columns: Sequence[str] | None = None,
+    rows: Rows | None = None,
+    progress: bool = False,
+) -> RawTable:
+    """Read a Parquet file (a wstats cache or any other) into a RawTable."""
+    schema = _schema(path)
+    every = [n for n in schema.names if not n.startswith(TAGS_PREFIX)]
+    names = select_columns(path, every, columns)
+    tagged = [TAGS_PREFIX + n for n in names if TAGS_PREFIX + n in schema.names]
+    table = _read_table(path, names + tagged, progress)
+    if rows is not None:
+        start, stop = rows
+        table = table.slice(start, None if stop is None else max(stop - start, 0))
+    info = _cache_info(path, schema)
+    described = info.get("columns", {})
+    cols = {n: _raw_column(path, table, n, described.get(n, {})) for n in names}
+    return RawTable(
+        path=str(path),
+        format="parquet",
+        reader="pyarrow",
+        n_rows=table.num_rows,
+        columns=cols,
+        file_columns=every,
+        file_label=info.get("file_label"),
+    )
+
+
+def write_parquet(table: RawTable, sink: str | IO[bytes], source_sha256: str | None) -> None:
+    """Write a RawTable as a wstats cache (zstd Parquet with the metadata described above)."""
+    import pyarrow as pa
+    import pyarrow.parquet as pq
+
+    arrays: dict[str, pa.Array] = {}
+    for name, col in table.columns.items():
+        if col.numeric:
+            arrays[name] = pa.array(np.asarray(col.data, dtype=np.float64), type=pa.float64())
+        else:
+            arrays[name] = pa.array(col.data, type=pa.string())
+        if col.tags is not None:
+            arrays[TAGS_PREFIX + name] = pa.array(np.asarray(col.tags, dtype=np.uint8))
+    info = {
+        "wstats_cache": _VERSION,
+        "source": {
+            "path": table.path,
+            "format": table.format,
+            "reader": table.reader,
+            "sha256": source_sha256,
+        },
+        "file_label": table.file_label,
+        "columns": {name: _describe(col) for name, col in table.columns.items()},
+    }
+    out = pa.table(arrays).replace_schema_metadata({META_KEY: json.dumps(info).encode()})
+    pq.write_table(out, sink, compression="zstd")
+
+
+def _schema(path: Path) -> pa.Schema:
+    """Read a Parquet file's schema, turning pyarrow failures into ReadError."""
+    import pyarrow as pa
+    import pyarrow.parquet as pq
+
+    try:
+        return pq.read_schema(path)
+    except (pa.ArrowException, OSError, ValueError) as exc:
+        raise _damaged(path, exc) from exc
+
+
+def _read_table(path: Path, names: list[str], progress: bool) -> pa.Table:
+    """Read the named columns, row group by row group behind a progress bar when asked."""
+    import pyarrow as pa
+    import pyarrow.parquet as pq
+
+    try:
+        handle = pq.ParquetFile(path)
+        groups = handle.num_row_groups
+        if not progress or groups < 2:
+            return handle.read(columns=names)
+        parts = []
+        with progress_bar(progress, f"reading {path.name}", groups) as advance:
+            for i in range(groups):
+                parts.append(handle.read_row_group(i, columns=names))
+                advance(i + 1)
+        return pa.concat_tables(parts)
+    except (pa.ArrowException, OSError, ValueError) as exc:
+        raise _damaged(path, exc) from exc
+
+
+def _damaged(path: Path, exc: Exception) -> ReadError:
+    """Return the one-line ReadError for a file pyarrow cannot read."""
+    # pyarrow's messages run over several lines; the first says what went wrong.
+    lines = [" ".join(line.split()) for line in str(exc).splitlines()]
+    detail = next((line for line in lines if line), type(exc).__name__)
+    return ReadError(
+        f"'{path}' cannot be read as a Parquet file ({detail}); it may be truncated or "
+        "corrupt: download or convert it again"
+    )
+
+
+def _cache_info(path: Path, schema: pa.Schema) -> dict[str, Any]:
+    """Return the wstats metadata of a cache file ({} for other Parquet files)."""
+    raw = (schema.metadata or {}).get(META_KEY)
+    if raw is None:
+        return {}
+    try:
+        info = json.loads(raw)
+    except ValueError as exc:
+        raise ReadError(f"the wstats metadata of '{path}' is damaged; convert again") from exc
+    if not isinstance(info, dict) or info.get("wstats_cache") != _VERSION:
+        raise ReadError(f"'{path}' is a wstats cache of an unknown version; convert again")
+    return info
+
+
+def _raw_column(path: Path, table: pa.Table, name: str, info: dict[str, Any]) -> RawColumn:
+    """Build one RawColumn from its Parquet column and its cache description."""
+    data, numeric = _to_numpy(path, name, table.column(name))
+    tag_name = TAGS_PREFIX + name
+    tags = None
+    if tag_name in table.column_names:
+        tags = table.column(tag_name).to_numpy().astype(np.uint8)
+    return RawColumn(
+        name=name,
+        data=data,
+        label=info.get("label"),
+        value_labels={_key(code): str(label) for code, label in info.get("value_labels", [])},
+        tags=tags,
+        user_missing=[_missing(item) for item in info.get("user_missing", [])],
+        numeric=numeric,
+        format=info.get("format"),
+    )
+
+
+def _to_numpy(path: Path, name: str, column: pa.ChunkedArray) -> tuple[np.ndarray, bool]:
+    """Convert an Arrow column to float64 (numbers, booleans) or an object array of str."""
+    import pyarrow as pa
+
+    kind = column.type
+    if pa.types.is_dictionary(kind):
+        column = column.cast(kind.value_type)
+        kind = column.type
+    if pa.types.is_integer(kind) or pa.types.is_floating(kind) or pa.types.is_boolean(kind):
+        return _float64(column.cast(pa.float64()).combine_chunks()), True
+    if pa.types.is_string(kind) or pa.types.is_large_string(kind):
+        text = np.asarray(column.to_numpy(zero_copy_only=False), dtype=object)  # imports pandas
+        text[np.asarray(column.is_null().to_numpy(zero_copy_only=False), dtype=bool)] = ""
+        return text, False
+    raise ColumnError(
+        f"column '{name}' of '{path}' has type {kind}, which wstats cannot use; "
+        "store it as a number or as text"
+    )
+
+
+def _float64(array: pa.Array) -> np.ndarray:
+    """Return a float64 Arrow array as a writable numpy copy, nulls as NaN.
+
+    Straight from the Arrow buffers: pyarrow's own ``to_numpy`` imports pandas (0.3 s).
+    """
+    n = len(array)
+    if n == 0:
+        return np.zeros(0)
+    data = array.buffers()[1]
+    values = np.frombuffer(data, dtype=np.float64, count=n, offset=array.offset * 8).copy()
+    if array.null_count:
+        bits = np.unpackbits(np.frombuffer(array.buffers()[0], dtype=np.uint8),
+                             bitorder="little")
+        values[bits[array.offset : array.offset + n] == 0] = np.nan
+    return values
+
+
+def _describe(col: RawColumn) -> dict[str, Any]:
+    """Return the JSON-ready metadata of one column."""
+    return {
+        "label": col.label,
+        "value_labels": [[code, label] for code, label in col.value_labels.items()],
+        "user_missing": [list(m) if isinstance(m, tuple) else m for m in col.user_missing],
+        "numeric": col.numeric,
+        "format": col.format,
+    }
+
+
+def _key(code: Any) -> float | str:
+    """Return a value-label code read from JSON: numbers as float, text as str."""
+    return code if isinstance(code, str) else float(code)
+
+
+def _missing(item: Any) -> float | tuple[float, float]:
+    """Return a user-missing declaration read from JSON: a code or a (low, high) range."""
+    if isinstance(item, list):
+        return (float(item[0]), float(item[1]))
+    return float(item)
