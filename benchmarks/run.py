@@ -14,7 +14,7 @@ benchmarks/measure.py for why the script itself stays small):
   A  wstats estimate FILE.xpt, 10 variables, weight/strata/PSU, codebook, JSON out
   B  pyreadstat.read_xport(FILE, usecols=the raw columns A reads)
   C  dd if=FILE of=/dev/null bs=16M (one read of the whole file into memory)
-  D  wstats estimate FILE.xpt on every item variable by the 5-level AGE_GRP domain
+  D  wstats estimate FILE.xpt on every item variable by the 5-level dm_age5 domain
   E  pyreadstat.read_xport(FILE) (every column; fewer runs, no warm-up: it is slow)
   F  A on the Parquet cache
   A2 A on the 2x-rows file (memory must not grow beyond the selected columns: A and A2 run
@@ -55,14 +55,14 @@ HERE = Path(__file__).resolve().parent
 ROOT = HERE.parent
 # A realistic mix: a categorical item (proportions per level), 1/2/3-digit don't-know and
 # refused codes (7/9, 77/99, 777/999), "none" codes (88/888 = 0), a unit-prefixed frequency
-# (FRUIT: 1xx/day ... 4xx/year), a skip-pattern follow-up (TOB_NOW), a measurement with
-# "not measured" blanks (SYS_BP) and a derived variable (BMI from WT_KG and HT_CM).
-TEN = ["GENHLTH", "SLEEPHRS", "PHYSDAYS", "FRUIT", "VIG_DAYS", "BMI", "SYS_BP", "TOB_NOW",
-       "INCOME", "ALC_DAYS"]
-WEIGHT, STRATA, PSU = "FINALWT", "STRAT_ID", "CLUST_ID"
+# (fd_fruit: 1xx/day ... 4xx/year), a skip-pattern follow-up (tc_now), a measurement with
+# "not measured" blanks (mx_sys) and a derived variable (bd_bmi from bd_mass and bd_hgt).
+TEN = ["hs_rate", "sl_hours", "hs_body", "fd_fruit", "pa_hday", "bd_bmi", "mx_sys", "tc_now",
+       "dm_incbd", "al_days"]
+WEIGHT, STRATA, PSU = "wt_final", "ds_strat", "ds_psu"
 DESIGN = ["--weight", WEIGHT, "--strata", STRATA, "--psu", PSU]
-DOMAIN = "AGE_GRP"  # 5 levels
-NOT_ITEMS = {"RESP_ID", "BASEWT", WEIGHT, STRATA, PSU, DOMAIN}  # design/id columns, domain
+DOMAIN = "dm_age5"  # 5 levels
+NOT_ITEMS = {"id_resp", "wt_base", WEIGHT, STRATA, PSU, DOMAIN}  # design/id columns, domain
 # ratio: (numerator case, denominator case, target or None)
 RATIOS = {"A/C": ("A", "C", 2.5), "F/A": ("F", "A", 0.4), "D/E": ("D", "E", 0.07),
           "Acold/Ccold": ("Acold", "Ccold", 1.5), "A/B": ("A", "B", 0.10)}

@@ -12,6 +12,7 @@ Public API: :func:`build_sample`, :func:`draw_samples`, :func:`write_demo`,
 
 from __future__ import annotations
 
+from demo.items import DESIGN, ITEMS, Item
 from demo.population import POPULATION_SEED
 from demo.sample import (
     DEFAULT_ROWS,
@@ -21,7 +22,7 @@ from demo.sample import (
     population_truth,
     sample_items,
 )
-from demo.write import DESIGN, ITEMS, Item, write_demo
+from demo.write import write_demo
 
 __all__ = [
     "DEFAULT_ROWS",

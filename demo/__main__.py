@@ -21,7 +21,7 @@ def _parser() -> argparse.ArgumentParser:
     p.add_argument("--rows", type=int, default=None,
                    help=f"respondents (default {DEFAULT_ROWS})")
     p.add_argument("--columns", type=int, default=None,
-                   help="total columns; extra ones are padding items XITEM001...")
+                   help="total columns; extra ones are padding items px_001...")
     p.add_argument("--seed", type=int, default=SAMPLE_SEED, help="sample seed")
     p.add_argument("--formats", default="xpt,sav,dta",
                    help="comma-separated subset of xpt,sav,dta (default all three)")

@@ -27,6 +27,8 @@ from functools import lru_cache
 import numpy as np
 import pandas as pd
 
+from demo.answers import person_items, unit_code
+from demo.items import ITEMS, Item, column_labels, decode, value_labels
 from demo.population import (
     POPULATION_SEED,
     Draw,
@@ -35,10 +37,7 @@ from demo.population import (
     build_frame,
     household_adults,
     person_frame,
-    person_items,
-    unit_code,
 )
-from demo.write import ITEMS, Item, column_labels, decode, value_labels
 
 __all__ = [
     "DEFAULT_ROWS",
@@ -156,19 +155,19 @@ def _draw(rows: int, seed: int, population_seed: int) -> dict[str, np.ndarray]:
         frame.clus_stratum[clusters], frame.clus_stratum[clusters])
     return {
         "pid": pid[kept],
-        "STRAT_ID": (stratum + 1)[kept].astype(float),
-        "CLUST_ID": (rank_in_stratum[owner] + 1)[kept].astype(float),
-        "BASEWT": np.round(base[kept], 4),
-        "FINALWT": np.round((base * adjust[cell])[kept], 4),
+        "ds_strat": (stratum + 1)[kept].astype(float),
+        "ds_psu": (rank_in_stratum[owner] + 1)[kept].astype(float),
+        "wt_base": np.round(base[kept], 4),
+        "wt_final": np.round((base * adjust[cell])[kept], 4),
         "frame_scale": np.array([frame.scale]),
     }
 
 
 def extra_items(n: int) -> list[Item]:
-    """Return *n* padding items ``XITEM001``... cycling through eight coded templates."""
+    """Return *n* padding items ``px_001``... cycling through eight coded templates."""
     out = []
     for j in range(n):
-        name, kind = f"XITEM{j + 1:03d}", _TEMPLATES[j % len(_TEMPLATES)]
+        name, kind = f"px_{j + 1:03d}", _TEMPLATES[j % len(_TEMPLATES)]
         lab = f"Extra item {j + 1:03d} ({kind})"
         yes_no = {1: "Yes", 2: "No"}
         spec = {
@@ -178,7 +177,7 @@ def extra_items(n: int) -> list[Item]:
             "days": dict(kind="count", digits=2, valid=(1, 30), none=88),
             "frequency": dict(kind="count", digits=3, valid=(1, 99), none=888, unit=True),
             "follow-up": dict(kind="categorical", digits=1, labels=yes_no, valid=(1, 2),
-                              universe=f"XITEM{j - 3:03d} = 1"),
+                              universe=f"px_{j - 3:03d} = 1"),
             "reading": dict(kind="continuous", digits=None, valid=(0, 400),
                             blank="not_measured"),
             "category": dict(kind="categorical", digits=2, valid=(1, 12),
@@ -244,7 +243,7 @@ def build_sample(rows: int | None = None, columns: int | None = None, seed: int 
     Parameters
     ----------
     rows : respondents (default 60,000); the count is exact.
-    columns : total columns (default: the core items); extra columns are ``XITEM001``...
+    columns : total columns (default: the core items); extra columns are ``px_001``...
     seed : sample seed (cluster, household, adult selection and response).
     population_seed : the population; keep it fixed to re-draw from the same population.
 
@@ -258,7 +257,7 @@ def build_sample(rows: int | None = None, columns: int | None = None, seed: int 
     Examples
     --------
     >>> df = build_sample(rows=2000)
-    >>> len(df), df["FINALWT"].gt(0).all()
+    >>> len(df), df["wt_final"].gt(0).all()
     (2000, np.True_)
     """
     rows = DEFAULT_ROWS if rows is None else int(rows)
@@ -267,7 +266,7 @@ def build_sample(rows: int | None = None, columns: int | None = None, seed: int 
     items = sample_items(columns)
     design = _draw(rows, seed, population_seed)
     scale = float(design.pop("frame_scale")[0])
-    order = np.lexsort((design["pid"], design["CLUST_ID"], design["STRAT_ID"]))
+    order = np.lexsort((design["pid"], design["ds_psu"], design["ds_strat"]))
     design = {k: v[order] for k, v in design.items()}  # items are then generated in file order
     frame = build_frame(population_seed, scale)
     pid = design.pop("pid")
@@ -275,7 +274,7 @@ def build_sample(rows: int | None = None, columns: int | None = None, seed: int 
     health = person_frame(frame, pid)["health"]
     raw.update(_extra_values(items[len(ITEMS):], pid, health, population_seed))
     raw.update(design)
-    raw["RESP_ID"] = 1_000_001 + np.arange(rows, dtype=np.float64)
+    raw["id_resp"] = 1_000_001 + np.arange(rows, dtype=np.float64)
     block = np.empty((len(items), rows))  # one float block, column-contiguous: no pandas copy
     for j, item in enumerate(items):
         block[j] = raw.pop(item.name)
@@ -293,9 +292,9 @@ def draw_samples(k: int, seed: int = SAMPLE_SEED, rows: int = 6000,
         yield build_sample(rows=rows, seed=seed + i, population_seed=population_seed)
 
 
-_DOMAINS = ("AGE_GRP", "DISTRICT")
+_DOMAINS = ("dm_age5", "ar_dist")
 _TRUTH_KINDS = ("categorical", "count", "continuous")
-_NOT_ITEMS = {"RESP_ID", "STRAT_ID", "CLUST_ID", "BASEWT", "FINALWT", "INT_MON", "URBAN"}
+_NOT_ITEMS = {"id_resp", "ds_strat", "ds_psu", "wt_base", "wt_final", "iv_month", "ar_urban"}
 
 
 def _truth_items() -> list[Item]:
@@ -305,11 +304,11 @@ def _truth_items() -> list[Item]:
 
 def _accumulate(sums: dict[str, np.ndarray], raw: dict[str, np.ndarray]) -> None:
     """Add one chunk of the population to the running sums by cell (age group x district)."""
-    cell = (raw["AGE_GRP"].astype(np.int64) - 1) * 6 + raw["DISTRICT"].astype(np.int64) - 1
+    cell = (raw["dm_age5"].astype(np.int64) - 1) * 6 + raw["ar_dist"].astype(np.int64) - 1
     values = {item.name: decode(item, raw[item.name]) for item in _truth_items()}
-    values["BMI"] = values["WT_KG"] / (values["HT_CM"] / 100) ** 2
-    values["GENHLTH_12"] = np.where(np.isnan(values["GENHLTH"]), np.nan,
-                                    (values["GENHLTH"] <= 2).astype(float))
+    values["bd_bmi"] = values["bd_mass"] / (values["bd_hgt"] / 100) ** 2
+    values["hs_rate_12"] = np.where(np.isnan(values["hs_rate"]), np.nan,
+                                    (values["hs_rate"] <= 2).astype(float))
     sums["size"] = sums.get("size", 0) + np.bincount(cell, minlength=30)
     for name, v in values.items():
         ok = ~np.isnan(v)
@@ -325,7 +324,7 @@ def _accumulate(sums: dict[str, np.ndarray], raw: dict[str, np.ndarray]) -> None
 
 def _categories(name: str) -> list[int]:
     """Return the valid categories of a categorical truth variable ([] for means)."""
-    if name == "GENHLTH_12":
+    if name == "hs_rate_12":
         return [0, 1]
     item = next((i for i in ITEMS if i.name == name), None)
     if item is None or item.kind != "categorical":
@@ -334,11 +333,11 @@ def _categories(name: str) -> list[int]:
 
 
 def _margins(table: np.ndarray) -> list[tuple[str, np.ndarray, np.ndarray]]:
-    """Return (domain, levels, rows) of a (30, k) cell table: all, by AGE_GRP, by DISTRICT."""
+    """Return (domain, levels, rows) of a (30, k) cell table: all, by dm_age5, by ar_dist."""
     cube = table.reshape(5, 6, -1)
     return [("all", np.array([0]), cube.sum(axis=(0, 1))[None, :]),
-            ("AGE_GRP", np.arange(1, 6), cube.sum(axis=1)),
-            ("DISTRICT", np.arange(1, 7), cube.sum(axis=0))]
+            ("dm_age5", np.arange(1, 6), cube.sum(axis=1)),
+            ("ar_dist", np.arange(1, 7), cube.sum(axis=0))]
 
 
 def _truth_rows(sums: dict[str, np.ndarray]) -> pd.DataFrame:
@@ -357,9 +356,9 @@ def _truth_rows(sums: dict[str, np.ndarray]) -> pd.DataFrame:
                 parts.append(pd.DataFrame({**base, "statistic": "mean", "category": "",
                                            "value": rows[:, 1] / n}))
             for j, c in enumerate(cats):
-                if name == "GENHLTH_12" and c == 0:
+                if name == "hs_rate_12" and c == 0:
                     continue
-                cat = "1,2" if name == "GENHLTH_12" else str(c)
+                cat = "1,2" if name == "hs_rate_12" else str(c)
                 parts.append(pd.DataFrame({**base, "statistic": "proportion", "category": cat,
                                            "value": rows[:, j] / n}))
     cols = ["variable", "statistic", "category", "domain", "level", "value", "n_valid",
@@ -404,10 +403,10 @@ def population_truth(seed: int = POPULATION_SEED) -> pd.DataFrame:
     -------
     pandas.DataFrame
         Columns ``variable``, ``statistic`` (mean | proportion), ``category`` (the code as a
-        string, "1,2" for GENHLTH excellent or very good, "" for means), ``domain`` (all |
-        AGE_GRP | DISTRICT), ``level`` (domain code; 0 for all), ``value``, ``n_valid``
+        string, "1,2" for hs_rate excellent or very good, "" for means), ``domain`` (all |
+        dm_age5 | ar_dist), ``level`` (domain code; 0 for all), ``value``, ``n_valid``
         (persons with a valid answer in the domain), ``n_persons`` (persons in the domain).
-        Also ``BMI`` (from self-reported height and weight). The first call takes a few
+        Also ``bd_bmi`` (from self-reported height and weight). The first call takes a few
         seconds; results are cached.
     """
     return _truth(seed).copy()

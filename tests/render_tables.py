@@ -13,7 +13,7 @@ import pandas as pd
 
 from wstats.estimation.results import ESTIMATE_COLUMNS, EstimateTable
 
-DESIGN = {"weight": "FINALWT", "strata": "STRAT_ID", "psu": "CLUSTER_ID", "fpc": None,
+DESIGN = {"weight": "wt_final", "strata": "ds_strat", "psu": "ds_psu", "fpc": None,
           "n_strata": 12, "n_psu": 36, "df": 24, "singleton": "fail",
           "variance_method": "linearization", "replicate_method": None, "n_replicates": 0,
           "n_rows": 1500, "dropped_rows": 0, "zero_weights": 0}
@@ -25,7 +25,7 @@ def _row(variable: str, statistic: str, group: str | None, estimate: float, se: 
          lo: float, hi: float, n: int, reasons: dict[str, int], flags: tuple[str, ...] = (),
          suppress: bool = False, level: str | None = None, p: float = math.nan) -> dict[str, Any]:
     return {"variable": variable, "statistic": statistic, "level": level, "p": p,
-            "SEX": group, "estimate": estimate, "se": se, "ci_low": lo, "ci_high": hi,
+            "dm_sex": group, "estimate": estimate, "se": se, "ci_low": lo, "ci_high": hi,
             "df": 24.0, "cv": se / abs(estimate) if estimate else math.nan, "deff": 1.4,
             "deff_weight": 1.2, "n_eff": n / 1.4, "n": n, "weighted_n": n * 1500.5,
             "reasons": reasons, "flags": flags, "suppress": suppress}
@@ -46,14 +46,14 @@ def estimate_table() -> EstimateTable:
              {"refused": 3}, flags=("neff<30", "kg-width>=0.30"), suppress=True, level="Yes"),
         _row("SMOKER", "proportion", "Female", 0.2875, 0.061, 0.17, 0.43, 40,
              {}, flags=("df<8",), level="Yes"),
-        _row("INCOME", "quantile", None, 52125.0, 2150.0, 47900.0, 56400.0, 1300,
+        _row("dm_incbd", "quantile", None, 52125.0, 2150.0, 47900.0, 56400.0, 1300,
              {"dont_know": 150, "refused": 50}, p=0.5),
-        _row("INCOME", "total", None, 916927110.0, 58169381.0, 796868000.0, 1036986000.0,
+        _row("dm_incbd", "total", None, 916927110.0, 58169381.0, 796868000.0, 1036986000.0,
              1300, {"dont_know": 150, "refused": 50}),
     ]
     frame = pd.DataFrame(rows)
-    order = [*ESTIMATE_COLUMNS[:4], "SEX", *ESTIMATE_COLUMNS[4:]]
-    return EstimateTable.from_frame(frame[order], by=("SEX",), level=0.95, design=DESIGN,
+    order = [*ESTIMATE_COLUMNS[:4], "dm_sex", *ESTIMATE_COLUMNS[4:]]
+    return EstimateTable.from_frame(frame[order], by=("dm_sex",), level=0.95, design=DESIGN,
                          settings=SETTINGS)
 
 
@@ -62,7 +62,7 @@ class FakeNonresponse:
     """A stand-in with the NonresponseTable contract (frame, by, reasons, ... records())."""
 
     frame: pd.DataFrame
-    by: tuple[str, ...] = ("SEX",)
+    by: tuple[str, ...] = ("dm_sex",)
     reasons: tuple[str, ...] = ("valid", "skipped", "dont_know", "refused", "invalid",
                                 "missing")
     level: float = 0.95
@@ -72,7 +72,7 @@ class FakeNonresponse:
     def records(self) -> list[dict[str, Any]]:
         out = []
         for r in self.frame.to_dict(orient="records"):
-            group = None if r["SEX"] is None else {"SEX": r["SEX"]}
+            group = None if r["dm_sex"] is None else {"dm_sex": r["dm_sex"]}
             out.append({"variable": r["variable"], "group": group, "asked": r["asked"],
                         "counts": {x: r[f"count_{x}"] for x in self.reasons},
                         "weighted_shares": {x: r[f"share_{x}"] for x in self.reasons},
@@ -86,7 +86,7 @@ def nonresponse_table() -> FakeNonresponse:
     """Return a two-domain nonresponse table for one variable."""
     counts = {"valid": [1402, 690], "skipped": [45, 0], "dont_know": [41, 20],
               "refused": [12, 5], "invalid": [0, 0], "missing": [0, 0]}
-    frame = pd.DataFrame({"variable": ["SLEEP_HRS"] * 2, "SEX": [None, "Male"],
+    frame = pd.DataFrame({"variable": ["SLEEP_HRS"] * 2, "dm_sex": [None, "Male"],
                           "n_rows": [1500, 715], "asked": [1455, 715]})
     for name, c in counts.items():
         frame[f"count_{name}"] = c
@@ -104,9 +104,9 @@ def nonresponse_table() -> FakeNonresponse:
 #: A fixed provenance record, so golden files do not depend on the machine or the day.
 PROVENANCE: dict[str, Any] = {
     "codebook": {"name": "demo_codebook.toml", "sha256": "0" * 64},
-    "command": "wstats estimate demo.csv SLEEP_HRS SMOKER --by SEX",
+    "command": "wstats estimate demo.csv SLEEP_HRS SMOKER --by dm_sex",
     "created_utc": None,
-    "design": {"weight": "FINALWT", "n_strata": 12, "n_psu": 36, "df": 24},
+    "design": {"weight": "wt_final", "n_strata": 12, "n_psu": 36, "df": 24},
     "environment": {"python": "3.x", "numpy": "x", "pandas": "x"},
     "inputs": [{"name": "demo.csv", "bytes": 1234, "sha256": "f" * 64}],
     "tool": "wstats",

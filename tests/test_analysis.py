@@ -326,8 +326,8 @@ def test_the_demo_analysis_file_runs(tmp_path: Path) -> None:
                  "tbchs_reasons.svg"):
         assert name in names
     results = json.loads((tmp_path / "tbchs_estimates.json").read_text())["results"]
-    assert {r["variable"] for r in results} == {"GENHLTH", "INSURED", "SLEEPHRS", "MENTDAYS",
-                                                "FRUIT", "BMI"}
+    assert {r["variable"] for r in results} == {"hs_rate", "ac_cover", "sl_hours", "hs_mood",
+                                                "fd_fruit", "bd_bmi"}
 
 
 def test_replicate_glob_is_matched_against_the_file(folder: Path,

@@ -81,7 +81,8 @@ def test_valid_case_estimate_and_interval_are_the_engines() -> None:
     recs = json.loads(json.dumps(bounds_records(b)))
     assert recs[0]["group"] is None and recs[2]["group"] == {"G": 1}
     assert set(recs[0]) == {"variable", "level", "estimate", "se", "ci_low", "ci_high",
-                            "lower", "upper", "unknown_share", "n_valid", "n_unknown", "group"}
+                            "lower", "upper", "unknown_share", "n_valid", "n_unknown", "flags",
+                            "suppress", "group"}
 
 
 def test_domain_with_only_unknown_answers_is_fully_uncertain() -> None:

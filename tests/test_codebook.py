@@ -341,16 +341,16 @@ def test_text_that_is_not_a_number_under_numeric_rules_is_an_error() -> None:
 # --- derived variables ------------------------------------------------------------------
 
 def test_derived_bmi_and_reason_precedence() -> None:
-    # BMI = kg / m^2 (WHO definition, from memory); 70 kg, 175 cm -> 22.857
+    # body mass index = kg / m^2 (WHO definition, from memory); 70 kg, 175 cm -> 22.857
     raw = table(num("KG", [70, 777, 70, 999, 80]), num("CM", [175, 180, 999, 777, 0]))
     book = cb({"variables": {"KG": {"codes": {"777": "dont_know", "999": "refused"}},
                              "CM": {"codes": {"777": "dont_know", "999": "refused"}}},
-               "derived": {"BMI": {"expr": "KG / (CM / 100) ^ 2", "label": "BMI"}}})
+               "derived": {"bd_bmi": {"expr": "KG / (CM / 100) ^ 2", "label": "Body mass index"}}})
     ds = decode(raw, book)
-    np.testing.assert_allclose(ds["BMI"].values, [70 / 1.75**2, NAN, NAN, NAN, NAN])
+    np.testing.assert_allclose(ds["bd_bmi"].values, [70 / 1.75**2, NAN, NAN, NAN, NAN])
     # precedence refused > dont_know; division by zero is invalid
-    assert reasons_of(ds, "BMI") == ["valid", "dont_know", "refused", "refused", "invalid"]
-    assert ds["BMI"].label == "BMI" and ds["BMI"].kind == "continuous"
+    assert reasons_of(ds, "bd_bmi") == ["valid", "dont_know", "refused", "refused", "invalid"]
+    assert ds["bd_bmi"].label == "Body mass index" and ds["bd_bmi"].kind == "continuous"
 
 
 def test_derived_in_tiles_equals_one_pass(monkeypatch: pytest.MonkeyPatch) -> None:
@@ -361,21 +361,21 @@ def test_derived_in_tiles_equals_one_pass(monkeypatch: pytest.MonkeyPatch) -> No
                 num("CM", [175, 180, 999, 777, 0, 160, 181]))
     book = cb({"variables": {"KG": {"codes": {"777": "dont_know", "999": "refused"}},
                              "CM": {"codes": {"777": "dont_know", "999": "refused"}}},
-               "derived": {"BMI": {"expr": "KG / (CM / 100) ^ 2"},
-                           "OBESE": {"expr": "BMI >= 30"}}})
+               "derived": {"bd_bmi": {"expr": "KG / (CM / 100) ^ 2"},
+                           "OBESE": {"expr": "bd_bmi >= 30"}}})
     whole = decode(raw, book)
     monkeypatch.setattr(_column, "ROW_TILE", 2)
     tiled = decode(raw, book)
-    for name in ("BMI", "OBESE"):
+    for name in ("bd_bmi", "OBESE"):
         np.testing.assert_array_equal(tiled[name].values, whole[name].values)
         assert reasons_of(tiled, name) == reasons_of(whole, name)
     assert reasons_of(tiled, "OBESE")[4:] == ["invalid", "valid", "valid"]
 
 
 def test_derived_on_derived_in_dependency_order_and_boolean_kind() -> None:
-    book = cb({"derived": {"OBESE": {"expr": "BMI >= 30"},
-                           "BMI": {"expr": "KG / M ^ 2"}}})
-    assert list(book.derived) == ["BMI", "OBESE"]
+    book = cb({"derived": {"OBESE": {"expr": "bd_bmi >= 30"},
+                           "bd_bmi": {"expr": "KG / M ^ 2"}}})
+    assert list(book.derived) == ["bd_bmi", "OBESE"]
     ds = decode(table(num("KG", [100, 60]), num("M", [1.7, 1.7])), book)
     np.testing.assert_array_equal(ds["OBESE"].values, [1.0, 0.0])  # 34.6 and 20.8
     assert ds["OBESE"].kind == "binary"
@@ -421,8 +421,8 @@ def test_load_full_codebook(tmp_path: Path) -> None:
 name = "Tamarack Basin test"
 population = 2400000
 [design]
-weight = "FINALWT"
-strata = "STRAT_ID"
+weight = "wt_final"
+strata = "ds_strat"
 [reasons]
 not_eligible = "Not eligible"
 [variables.SLEEP]
@@ -431,7 +431,7 @@ codes = { 77 = "dont_know", 99 = "refused", 88 = 0, "-1" = "not_eligible" }
 """)
     book = load_codebook(p)
     assert book.population == 2_400_000 and book.name == "Tamarack Basin test"
-    assert book.design == {"weight": "FINALWT", "strata": "STRAT_ID"}
+    assert book.design == {"weight": "wt_final", "strata": "ds_strat"}
     ds = book.decode(table(num("SLEEP", [-1, 8, 88])))
     assert reasons_of(ds, "SLEEP") == ["not_eligible", "valid", "valid"]
 
@@ -512,11 +512,11 @@ def test_read_csv_with_codebook_reads_only_needed_columns(tmp_path: Path) -> Non
     data = tmp_path / "s.csv"
     data.write_text("ID,KG,CM,OTHER\n1,70,175,x\n2,777,180,y\n3,80,,z\n", encoding="utf-8")
     book = write(tmp_path, '[variables.KG]\ncodes = { 777 = "dont_know" }\n'
-                 '[derived.BMI]\nexpr = "KG / (CM / 100) ^ 2"\n')
-    ds = read(data, columns=["BMI", "ID"], codebook=book)
-    assert list(ds) == ["BMI", "ID"]
-    np.testing.assert_allclose(ds["BMI"].values, [70 / 1.75**2, NAN, NAN])
-    assert reasons_of(ds, "BMI") == ["valid", "dont_know", "skipped"]
+                 '[derived.bd_bmi]\nexpr = "KG / (CM / 100) ^ 2"\n')
+    ds = read(data, columns=["bd_bmi", "ID"], codebook=book)
+    assert list(ds) == ["bd_bmi", "ID"]
+    np.testing.assert_allclose(ds["bd_bmi"].values, [70 / 1.75**2, NAN, NAN])
+    assert reasons_of(ds, "bd_bmi") == ["valid", "dont_know", "skipped"]
     assert ds.source == str(data)
     whole = read(data)
     assert list(whole) == ["ID", "KG", "CM", "OTHER"]
@@ -545,10 +545,10 @@ def test_read_names_the_derived_variable_whose_input_is_absent(tmp_path: Path) -
 
     data = tmp_path / "s.csv"
     data.write_text("KG,CM\n1,2\n", encoding="utf-8")
-    book = write(tmp_path, '[derived.BMI]\nexpr = "KG / (HEIGHT / 100) ^ 2"\n')
-    with pytest.raises(ExpressionError, match=r"line 1, \[derived.BMI\]: expression .* reads "
+    book = write(tmp_path, '[derived.bd_bmi]\nexpr = "KG / (HEIGHT / 100) ^ 2"\n')
+    with pytest.raises(ExpressionError, match=r"line 1, \[derived.bd_bmi\]: expression .* reads "
                                               r"'HEIGHT', which is neither a column of"):
-        read(data, columns=["BMI"], codebook=book)
+        read(data, columns=["bd_bmi"], codebook=book)
 
 
 def test_derived_variable_takes_the_memory_of_an_input_nobody_wants() -> None:
@@ -561,19 +561,19 @@ def test_derived_variable_takes_the_memory_of_an_input_nobody_wants() -> None:
                      num("AGE", [30, 40, 50, 60, 70]))
     book = cb({"variables": {"KG": {"codes": {"777": "dont_know", "999": "refused"}},
                              "CM": {"codes": {"777": "dont_know", "999": "refused"}}},
-               "derived": {"BMI": {"expr": "KG / (CM / 100) ^ 2"},
+               "derived": {"bd_bmi": {"expr": "KG / (CM / 100) ^ 2"},
                            "KG_AGE": {"expr": "KG / AGE"}}})
     plain = decode_table(raw(), book)
     source = raw()
     cm = source.columns["CM"].data
-    lent = decode_table(source, book, consume=True, keep=["BMI", "AGE"])
-    # KG is read again by KG_AGE, so CM lends its memory to BMI; KG then lends to KG_AGE
+    lent = decode_table(source, book, consume=True, keep=["bd_bmi", "AGE"])
+    # KG is read again by KG_AGE, so CM lends its memory to bd_bmi; KG then lends to KG_AGE
     assert "CM" not in lent and "KG" not in lent
-    assert lent["BMI"].values is cm
-    for name in ("BMI", "KG_AGE", "AGE"):
+    assert lent["bd_bmi"].values is cm
+    for name in ("bd_bmi", "KG_AGE", "AGE"):
         np.testing.assert_array_equal(lent[name].values, plain[name].values)
         assert reasons_of(lent, name) == reasons_of(plain, name)
     # a wanted input is never written over
-    kept = decode_table(raw(), book, consume=True, keep=["BMI", "KG", "CM"])
+    kept = decode_table(raw(), book, consume=True, keep=["bd_bmi", "KG", "CM"])
     np.testing.assert_array_equal(kept["CM"].values, plain["CM"].values)
     np.testing.assert_array_equal(kept["KG"].values, plain["KG"].values)

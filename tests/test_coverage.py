@@ -2,7 +2,7 @@
 
 R independent samples (fixed seeds) are drawn from ONE finite population, the fictional TBCHS
 (``demo``), each decoded with the demo codebook and analysed with the codebook's default design
-(FINALWT, strata STRAT_ID, PSUs CLUST_ID). Every mean and proportion below is estimated for the
+(wt_final, strata ds_strat, PSUs ds_psu). Every mean and proportion below is estimated for the
 whole population and for each age group and each district, and its interval is compared with
 the population value (``demo.population_truth``: valid answers only, "none" codes as 0, unit-
 coded frequencies per year, skip-pattern items among those asked, as wstats estimates them).
@@ -36,23 +36,23 @@ from scipy import stats
 
 import demo
 from _demo_helpers import demo_codebook, raw_table
-from demo.write import value_labels
+from demo.items import value_labels
 from wstats import Design, estimate
 
 R = 150  # samples
 ROWS = 6000  # respondents per sample
 SEED = 1000  # samples use seeds SEED, SEED + 1, ..., SEED + R - 1
 BAND = (0.93, 0.97)
-DOMAINS = ("AGE_GRP", "DISTRICT")
+DOMAINS = ("dm_age5", "ar_dist")
 # means: a count, a unit-coded frequency (per year), a measurement (not_measured blanks), a
 # derived variable, a count with "none" = 0, and a skip-pattern follow-up (drinkers only).
-# FRUIT per year is very skewed (skewness about 6): in domains of 500-1500 respondents its
+# fd_fruit per year is very skewed (skewness about 6): in domains of 500-1500 respondents its
 # intervals cover about 93% (a miss is mostly an interval below the truth), as expected where
 # n < 25 G1^2 (Cochran 1977, Sampling Techniques, 3rd ed., sec. 2.15; from memory)
-MEANS = ("SLEEPHRS", "FRUIT", "SYS_BP", "BMI", "PHYSDAYS", "ALC_DRNK")
-# proportions: every level of a 5-level item and of a skip-pattern follow-up (TOB_NOW, asked
+MEANS = ("sl_hours", "fd_fruit", "mx_sys", "bd_bmi", "hs_body", "al_amt")
+# proportions: every level of a 5-level item and of a skip-pattern follow-up (tc_now, asked
 # of ever-users); "Yes" only for binary items, whose "No" interval is the mirror image
-PROPORTIONS = {"GENHLTH": (1, 2, 3, 4, 5), "EXERANY": (1,), "INSURED": (1,), "TOB_NOW": (1, 2, 3)}
+PROPORTIONS = {"hs_rate": (1, 2, 3, 4, 5), "pa_sport": (1,), "ac_cover": (1,), "tc_now": (1, 2, 3)}
 KEY = ["variable", "statistic", "category", "domain", "level"]
 
 pytestmark = pytest.mark.slow  # about 45 s of CPU; still part of the default run

@@ -15,8 +15,10 @@ from scipy import stats
 
 import demo
 from demo.__main__ import main
-from demo.population import Draw, build_frame, household_adults, unit_code
-from demo.write import FAMILY_CODES, ITEMS, codebook_text, decode
+from demo.answers import unit_code
+from demo.items import FAMILY_CODES, ITEMS, decode
+from demo.population import Draw, build_frame, household_adults
+from demo.write import codebook_text
 
 ROWS = 3000
 READERS = {"xpt": pyreadstat.read_xport, "sav": pyreadstat.read_sav, "dta": pyreadstat.read_dta}
@@ -86,32 +88,32 @@ def test_cli_rejects_too_few_columns(tmp_path: Path, capsys: pytest.CaptureFixtu
 
 
 def test_design_structure(small: pd.DataFrame) -> None:
-    psus = small.groupby("STRAT_ID")["CLUST_ID"].agg(["nunique", "max"])
+    psus = small.groupby("ds_strat")["ds_psu"].agg(["nunique", "max"])
     assert 40 <= len(psus) <= 60
     assert psus["nunique"].between(2, 6).all()
     assert (psus["nunique"] == psus["max"]).all()  # numbered 1..n_h within the stratum
-    assert (small["FINALWT"] > 0).all() and (small["BASEWT"] > 0).all()
-    adjustment = small["FINALWT"] / small["BASEWT"]
+    assert (small["wt_final"] > 0).all() and (small["wt_base"] > 0).all()
+    adjustment = small["wt_final"] / small["wt_base"]
     assert adjustment.min() >= 1 and adjustment.nunique() >= 10
 
 
 def test_base_weight_is_inverse_selection_probability(small: pd.DataFrame) -> None:
     # PPS clusters x equal household take x one adult of A: w = M_h / (n_h m_h) * A, so
     # w / A is one number per PSU (common practice, no source)
-    per_adult = small["BASEWT"] / small["HH_ADULT"]
-    spread = per_adult.groupby([small["STRAT_ID"], small["CLUST_ID"]]).agg(np.ptp)
+    per_adult = small["wt_base"] / small["dm_adult"]
+    spread = per_adult.groupby([small["ds_strat"], small["ds_psu"]]).agg(np.ptp)
     assert spread.max() < 1e-3
 
 
 def test_weights_sum_to_the_population(small: pd.DataFrame) -> None:
     adults = sum(int(household_adults(np.arange(lo, min(lo + 500_000, n)), demo.POPULATION_SEED)
                      .sum()) for n in [build_frame().n_households] for lo in range(0, n, 500_000))
-    assert small["FINALWT"].sum() == pytest.approx(adults, rel=0.05)
+    assert small["wt_final"].sum() == pytest.approx(adults, rel=0.05)
 
 
 def test_nonresponse_depends_on_age(small: pd.DataFrame) -> None:
     # the young respond least, so their weights are adjusted up most
-    adjustment = (small["FINALWT"] / small["BASEWT"]).groupby(small["AGE_GRP"]).mean()
+    adjustment = (small["wt_final"] / small["wt_base"]).groupby(small["dm_age5"]).mean()
     assert adjustment[1] > adjustment[4] * 1.2
 
 
@@ -120,7 +122,7 @@ def test_same_seed_same_bytes_other_seed_other_sample(small: pd.DataFrame) -> No
     pd.testing.assert_frame_equal(again, small)
     assert again.to_numpy().tobytes() == small.to_numpy().tobytes()
     other = demo.build_sample(rows=ROWS, seed=demo.SAMPLE_SEED + 1)
-    assert not np.array_equal(other["FINALWT"].to_numpy(), small["FINALWT"].to_numpy())
+    assert not np.array_equal(other["wt_final"].to_numpy(), small["wt_final"].to_numpy())
 
 
 def test_draw_samples_redraws_from_one_population() -> None:
@@ -137,26 +139,26 @@ def test_codes_present_in_each_family(small: pd.DataFrame) -> None:
         members = small[[i.name for i in ITEMS if i.digits == digits]]
         for code in codes:
             assert (members == code).to_numpy().sum() > 0, (digits, code)
-    assert (small["VIG_DAYS"] == 888).any() and (small["PHYSDAYS"] == 88).any()
-    assert (small["SEATBLT"] == 8).any()  # does not apply: never in a car
-    units = np.unique(small["FRUIT"][small["FRUIT"] < 500] // 100)
+    assert (small["pa_hday"] == 888).any() and (small["hs_body"] == 88).any()
+    assert (small["so_belt"] == 8).any()  # does not apply: never in a car
+    units = np.unique(small["fd_fruit"][small["fd_fruit"] < 500] // 100)
     assert units.tolist() == [1, 2, 3, 4]
 
 
 @pytest.mark.parametrize(
     ("follow_up", "asked"),
     [
-        ("TOB_NOW", lambda d: d["TOB_EVER"] == 1),
-        ("TOB_AGE", lambda d: d["TOB_EVER"] == 1),
-        ("CIGS_DAY", lambda d: d["TOB_NOW"].isin([1, 2])),
-        ("TOB_QUIT", lambda d: d["TOB_NOW"].isin([1, 2])),
-        ("BPMEDS", lambda d: d["BPHIGH"] == 1),
-        ("CHOL_HI", lambda d: d["CHOL_CHK"] == 1),
-        ("PAIN_LIM", lambda d: d["ARTHRIT"] == 1),
-        ("ALC_DRNK", lambda d: d["ALC_DAYS"].between(1, 30)),
-        ("VIG_MIN", lambda d: d["VIG_DAYS"].between(1, 7)),
-        ("FLU_MON", lambda d: d["FLU_VAX"] == 1),
-        ("COMMUTE", lambda d: d["EMPLOY"].isin([1, 2])),
+        ("tc_now", lambda d: d["tc_ever"] == 1),
+        ("tc_start", lambda d: d["tc_ever"] == 1),
+        ("tc_cigs", lambda d: d["tc_now"].isin([1, 2])),
+        ("tc_quit", lambda d: d["tc_now"].isin([1, 2])),
+        ("dx_bptrt", lambda d: d["dx_bp"] == 1),
+        ("dx_lipid", lambda d: d["ac_lipid"] == 1),
+        ("dx_jpain", lambda d: d["dx_joint"] == 1),
+        ("al_amt", lambda d: d["al_days"].between(1, 30)),
+        ("pa_hmin", lambda d: d["pa_hday"].between(1, 7)),
+        ("ac_flumo", lambda d: d["ac_flu"] == 1),
+        ("so_trip", lambda d: d["dm_work"].isin([1, 2])),
     ],
 )
 def test_skip_pattern(small: pd.DataFrame, follow_up: str, asked: object) -> None:
@@ -167,15 +169,15 @@ def test_skip_pattern(small: pd.DataFrame, follow_up: str, asked: object) -> Non
 
 
 def test_item_nonresponse_differs_by_domain(small: pd.DataFrame) -> None:
-    refused = (small["INCOME"] == 99).groupby(small["AGE_GRP"]).mean()
+    refused = (small["dm_incbd"] == 99).groupby(small["dm_age5"]).mean()
     assert refused[5] > 1.5 * refused[1]
 
 
 def test_padding_gives_exact_shape() -> None:
     df = demo.build_sample(rows=2000, columns=120)
     assert df.shape == (2000, 120)
-    assert list(df.columns[-52:]) == [f"XITEM{i:03d}" for i in range(1, 53)]
-    follow = [i for i in demo.sample_items(120) if i.universe.startswith("XITEM")]
+    assert list(df.columns[-52:]) == [f"px_{i:03d}" for i in range(1, 53)]
+    follow = [i for i in demo.sample_items(120) if i.universe.startswith("px_")]
     for item in follow:
         screener = item.universe.split(" ")[0]
         assert df.loc[df[screener] != 1, item.name].isna().all()
@@ -187,7 +189,7 @@ def test_padding_gives_exact_shape() -> None:
 @given(st.floats(min_value=1.0, max_value=99 * 365.0))
 def test_unit_code_round_trip(rate: float) -> None:
     # decoding a count-with-unit code loses at most the rounding of the count (count >= 1)
-    item = next(i for i in ITEMS if i.name == "FRUIT")
+    item = next(i for i in ITEMS if i.name == "fd_fruit")
     for u in (0.1, 0.9):
         code = unit_code(np.array([rate]), np.array([u]))
         assert 101 <= code[0] <= 499 and 1 <= code[0] % 100 <= 99
@@ -209,7 +211,7 @@ def test_packaged_codebook_is_the_generated_one() -> None:
     packaged = Path(demo.__file__).with_name("tbchs_codebook.toml").read_text()
     assert packaged == codebook_text(ITEMS)
     parsed = tomllib.loads(packaged)
-    assert parsed["design"] == {"weight": "FINALWT", "strata": "STRAT_ID", "psu": "CLUST_ID"}
+    assert parsed["design"] == {"weight": "wt_final", "strata": "ds_strat", "psu": "ds_psu"}
 
 
 def test_codebook_decodes_like_the_demo(written: tuple[dict[str, Path], pd.DataFrame]) -> None:
@@ -254,7 +256,7 @@ def test_truth_is_consistent_with_the_population(truth: pd.DataFrame) -> None:
     sums = props.groupby(["variable", "domain", "level"])["value"].sum()
     np.testing.assert_allclose(sums, 1.0, rtol=1e-12)
     means = truth[truth["statistic"] == "mean"].set_index(["variable", "domain", "level"])
-    for dom in ("AGE_GRP", "DISTRICT"):
+    for dom in ("dm_age5", "ar_dist"):
         part = means.xs(dom, level="domain")
         pooled = (part["value"] * part["n_valid"]).groupby("variable").sum() / part[
             "n_valid"].groupby("variable").sum()
@@ -265,7 +267,7 @@ def test_truth_is_consistent_with_the_population(truth: pd.DataFrame) -> None:
 @pytest.mark.slow
 def test_truth_recomputed_directly(truth: pd.DataFrame) -> None:
     # the smallest district, regenerated household by household and averaged with plain numpy
-    from demo.population import person_items
+    from demo.answers import person_items
 
     frame = build_frame()
     clusters = np.flatnonzero(frame.strat_district[frame.clus_stratum] == 6)
@@ -274,10 +276,10 @@ def test_truth_recomputed_directly(truth: pd.DataFrame) -> None:
     within = np.arange(adults.sum()) - np.repeat(np.cumsum(adults) - adults, adults)
     pid = np.repeat(hh * 8, adults) + within
     raw = person_items(frame, pid)
-    assert (raw["DISTRICT"] == 6).all()
-    item = next(i for i in ITEMS if i.name == "SYS_BP")
-    v = decode(item, raw["SYS_BP"])
-    row = truth.query("variable == 'SYS_BP' and domain == 'DISTRICT' and level == 6").iloc[0]
+    assert (raw["ar_dist"] == 6).all()
+    item = next(i for i in ITEMS if i.name == "mx_sys")
+    v = decode(item, raw["mx_sys"])
+    row = truth.query("variable == 'mx_sys' and domain == 'ar_dist' and level == 6").iloc[0]
     assert row["value"] == pytest.approx(np.nanmean(v), rel=1e-12)
     assert row["n_valid"] == np.count_nonzero(~np.isnan(v))
     assert row["n_persons"] == pid.size
@@ -287,11 +289,11 @@ def _design_mean(df: pd.DataFrame, y: np.ndarray) -> tuple[float, float]:
     """Weighted mean and its with-replacement linearization SE (REFERENCES.md section 1)."""
     # Woodruff (1971) JASA 66:411-414; Wolter (2007) Introduction to Variance Estimation, ch. 6
     ok = ~np.isnan(y)
-    w = df["FINALWT"].to_numpy() * ok
+    w = df["wt_final"].to_numpy() * ok
     yy = np.where(ok, y, 0.0)
     mean = np.sum(w * yy) / np.sum(w)
     z = pd.Series(w * (yy - mean) / np.sum(w)).groupby(
-        [df["STRAT_ID"].to_numpy(), df["CLUST_ID"].to_numpy()]).sum()
+        [df["ds_strat"].to_numpy(), df["ds_psu"].to_numpy()]).sum()
     by_stratum = z.groupby(level=0)
     n_h = by_stratum.transform("size")
     dev = z - by_stratum.transform("mean")
@@ -303,7 +305,7 @@ def test_default_sample_estimates_cover_truth(truth: pd.DataFrame) -> None:
     df = demo.build_sample()
     assert df.shape == (60_000, len(ITEMS))
     overall = truth[truth["domain"] == "all"]
-    checks = {"SYS_BP": "", "FRUIT": "", "PHYSDAYS": "", "VIG_DAYS": "", "TOB_NOW": "1"}
+    checks = {"mx_sys": "", "fd_fruit": "", "hs_body": "", "pa_hday": "", "tc_now": "1"}
     for name, cat in checks.items():
         item = next(i for i in ITEMS if i.name == name)
         y = decode(item, df[name].to_numpy())

@@ -168,7 +168,7 @@ def _singletons(n: int) -> Dataset:
 
 def test_singleton_fail_lists_strata_and_alternatives() -> None:
     with pytest.raises(SingletonStratumError, match=r"2 strata have a single PSU \('0', '1'\)"
-                       r".*'certainty', 'center' or 'collapse'"):
+                       r".*--singleton certainty, center or collapse"):
         Design("w", strata="st", psu="cl").bind(_singletons(2))
 
 

@@ -45,7 +45,7 @@ def survey() -> RawTable:
         RawColumn("EXER_FREQ", exer, label="Exercise – how often"),
         RawColumn("EVER_SMK", yn, value_labels={1.0: "Yes", 2.0: "No", 7.0: "DK/NS",
                                                  9.0: "Refused"}),
-        RawColumn("DISTRICT", dist, value_labels={1.0: "North", 2.0: "South", 3.0: "East",
+        RawColumn("ar_dist", dist, value_labels={1.0: "North", 2.0: "South", 3.0: "East",
                                                   8.0: "Not eligible"}, user_missing=[8.0],
                   tags=tags),
         RawColumn("COMMENT", np.array(["a", "", "b", " ", "c"] * 200, dtype=object),
@@ -61,11 +61,11 @@ def test_draft_loads_and_lists_metadata(tmp_path: Path) -> None:
     assert book.variables["SLEEP_HRS"].label == 'Hours of "sleep"\non a usual night'
     assert book.variables["EXER_FREQ"].label == "Exercise – how often"
     assert book.kind_of("EVER_SMK") == "binary"  # 7 and 9 are suspected, leaving Yes/No
-    assert book.kind_of("DISTRICT") == "categorical" and book.kind_of("COMMENT") == "text"
-    assert book.labels_for("DISTRICT") == {1.0: "North", 2.0: "South", 3.0: "East"}
+    assert book.kind_of("ar_dist") == "categorical" and book.kind_of("COMMENT") == "text"
+    assert book.labels_for("ar_dist") == {1.0: "North", 2.0: "South", 3.0: "East"}
     # file declarations become codes; the reasons they use are declared
-    assert book.variables["DISTRICT"].codes.numeric[8.0].reason == "declared_8"
-    assert book.variables["DISTRICT"].codes.tags["a"].reason == "tag_a"
+    assert book.variables["ar_dist"].codes.numeric[8.0].reason == "declared_8"
+    assert book.variables["ar_dist"].codes.tags["a"].reason == "tag_a"
     assert set(book.reasons) == {"declared_8", "tag_a"}
 
 
@@ -95,7 +95,7 @@ def test_accepting_the_suggestions_decodes_as_suggested(tmp_path: Path) -> None:
     assert exer.reason_counts()["dont_know"] == 30 and exer.reason_counts()["refused"] == 5
     assert (exer.values[30:40] == 0).all()  # 888 -> 0
     assert set(np.unique(exer.values[45:])) <= {365.0, 730.0, 156.0, 260.0, 12.0, 120.0, 2.0}
-    assert ds["DISTRICT"].reason_counts()["declared_8"] == 5
+    assert ds["ar_dist"].reason_counts()["declared_8"] == 5
 
 
 def test_quoting_of_odd_names_and_codes(tmp_path: Path) -> None:

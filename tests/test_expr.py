@@ -136,8 +136,8 @@ def test_constant_expression_needs_row_count() -> None:
 
 
 def test_inputs_and_names() -> None:
-    expr = parse_expression("AGE_YRS >= 65 and DISTRICT == 2", None, "--where")
-    assert expr.inputs == {"AGE_YRS", "DISTRICT"} and expr.boolean
+    expr = parse_expression("dm_age >= 65 and ar_dist == 2", None, "--where")
+    assert expr.inputs == {"dm_age", "ar_dist"} and expr.boolean
     assert expression_names("max(B, A) + B") == ["B", "A"]
     assert not parse_expression("A + 1", None, "t").boolean
 
@@ -182,9 +182,9 @@ def test_forbidden_constructs_name_the_column(text: str, col: int, what: str) ->
 
 
 def test_unknown_variable_suggests_a_close_name() -> None:
-    with pytest.raises(ExpressionError, match=r"column 7: unknown variable 'AGE_YR'; did you "
-                                              r"mean 'AGE_YRS'"):
-        parse_expression("1 + 2*AGE_YR", ["AGE_YRS"], "--where")
+    with pytest.raises(ExpressionError, match=r"column 7: unknown variable 'dm_ag'; did you "
+                                              r"mean 'dm_age'"):
+        parse_expression("1 + 2*dm_ag", ["dm_age"], "--where")
 
 
 def test_empty_expression() -> None:

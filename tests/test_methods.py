@@ -8,7 +8,7 @@ from wstats.errors import UsageError
 from wstats.estimation.reliability import STANDARDS
 from wstats.reports.methods import methods_paragraph
 
-DESIGN = {"weight": "FINALWT", "strata": "STRAT_ID", "psu": "CLUSTER_ID", "fpc": None,
+DESIGN = {"weight": "wt_final", "strata": "ds_strat", "psu": "ds_psu", "fpc": None,
           "n_strata": 12, "n_psu": 36, "df": 24, "singleton": "center", "singleton_strata": 2,
           "variance_method": "linearization", "replicate_method": None, "n_replicates": 0}
 SETTINGS = {"level": 0.9, "proportion_ci": "korn-graubard"}
@@ -19,20 +19,19 @@ def _text(fmt: str = "text", **kw: object) -> str:
     args = {"design_summary": DESIGN, "settings": SETTINGS, "reasons_used": REASONS,
             "nonresponse_range": (0.012, 0.184), "data_name": "tbchs_sample.xpt",
             "standard": STANDARDS["nchs-2017"], "fmt": fmt,
-            "recodes": ["EXER_FREQ: 888 → 0"],
-            "reason_descriptions": {"not_eligible": "not eligible for the item"}}
+            "recodes": ["EXER_FREQ: 888 → 0"]}
     args.update(kw)
     return methods_paragraph(**args)  # type: ignore[arg-type]
 
 
 def test_states_every_required_fact() -> None:
     text = _text()
-    for fact in ("tbchs_sample.xpt", "weighted by FINALWT", "Taylor linearization",
+    for fact in ("tbchs_sample.xpt", "weighted by wt_final", "Taylor linearization",
                  "12 strata, 36 PSUs, 24 degrees of freedom",
                  "2 strata with a single PSU were given a variance contribution measured "
                  "around the mean of all PSU totals",
                  "90% level", "Korn–Graubard", "not asked an item",
-                 "don't know, refused and not eligible for the item",
+                 "don't know, refused and not eligible were",
                  "EXER_FREQ: 888 → 0", "from 1.2% to 18.4%", "'nchs-2017'",
                  "survey's own documentation", "agency publishing the estimates"):
         assert fact in text, fact
@@ -64,3 +63,23 @@ def test_latex_and_markdown_escape() -> None:
 def test_unknown_format_is_a_usage_error() -> None:
     with pytest.raises(UsageError, match="methods format 'rtf' is unknown"):
         _text("rtf")
+
+
+def test_says_how_subpopulation_domains_zero_weights_and_quantiles_were_handled() -> None:
+    settings = {**SETTINGS, "where": "AGE >= 65", "domains": ["SEX"], "df_rule": "domain",
+                "df_range": [9.0, 14.0], "statistics": ["mean", "quantile"]}
+    text = _text(settings=settings, design_summary={**DESIGN, "zero_weights": 3})
+    for fact in ("subpopulation AGE >= 65, keeping the full design",
+                 "Domain estimates (by SEX) keep the full design",
+                 "strata and PSUs holding its members (9 to 14)",
+                 "3 records with a zero weight stayed in the design",
+                 "Woodruff"):
+        assert fact in text, fact
+    plain = _text()
+    assert "No record had a zero weight." in plain
+    assert "subpopulation" not in plain and "Woodruff" not in plain and "Domain" not in plain
+
+
+def test_reasons_are_named_by_short_names_not_descriptions() -> None:
+    text = _text(reasons_used={"dont_know": 4, "not_measured": 9})
+    assert "don't know and not measured were left out" in text

@@ -24,7 +24,7 @@ name = "Render test survey"
 weight = "WT"
 strata = "STRAT"
 psu = "PSU"
-[variables.SEX]
+[variables.dm_sex]
 kind = "categorical"
 label = "Sex"
 labels = { 1 = "Male", 2 = "Female" }
@@ -50,7 +50,7 @@ codebook = "cb.toml"
 rows = ["SLEEP", {variable = "SMOKE", levels = ["Yes"]}, {variable = "EXER", statistic = "mean"}]
 notes = ["Source: invented data."]
 [columns]
-by = ["SEX"]
+by = ["dm_sex"]
 [output]
 files = ["t1.md", "t1.xlsx"]
 """
@@ -63,7 +63,7 @@ def survey(tmp_path_factory: pytest.TempPathFactory) -> Path:
     rng = np.random.default_rng(1)
     n = 400
     df = pd.DataFrame({"STRAT": np.repeat([1, 2, 3, 4], 100), "PSU": np.repeat(np.arange(16), 25),
-                       "WT": rng.uniform(50, 150, n).round(1), "SEX": rng.integers(1, 3, n),
+                       "WT": rng.uniform(50, 150, n).round(1), "dm_sex": rng.integers(1, 3, n),
                        "SLEEP": rng.integers(4, 10, n).astype(float),
                        "SMOKE": rng.integers(1, 3, n), "EXER": rng.integers(0, 20, n)})
     df.loc[rng.choice(n, 20, replace=False), "SLEEP"] = 77
@@ -89,9 +89,9 @@ def test_cells_match_numpy_weighted_estimates(survey: Path) -> None:
     ok = ~raw["SLEEP"].isin([77, 99])
     mean = np.average(raw.loc[ok, "SLEEP"], weights=raw.loc[ok, "WT"])
     assert cells.loc["Hours of sleep, mean", "all"].startswith(fmt_number(mean, 1) + " (")
-    male = ok & (raw["SEX"] == 1)
+    male = ok & (raw["dm_sex"] == 1)
     m_mean = np.average(raw.loc[male, "SLEEP"], weights=raw.loc[male, "WT"])
-    assert cells.loc["Hours of sleep, mean", "SEX=Male"].startswith(fmt_number(m_mean, 1))
+    assert cells.loc["Hours of sleep, mean", "dm_sex=Male"].startswith(fmt_number(m_mean, 1))
     # proportion of Yes among valid answers, in percent (same source, section 4.3)
     ok = raw["SMOKE"] != 9
     p = np.average(raw.loc[ok, "SMOKE"] == 1, weights=raw.loc[ok, "WT"])
@@ -107,15 +107,16 @@ def test_sample_size_rows(survey: Path) -> None:
     raw = _raw(survey)
     cells = table.cells.set_index("label")
     assert cells.loc["Unweighted n", "all"] == "400"
-    assert cells.loc["Unweighted n", "SEX=Female"] == fmt_count((raw["SEX"] == 2).sum())
-    assert cells.loc["Weighted N", "SEX=Male"] == fmt_count(raw.loc[raw["SEX"] == 1, "WT"].sum())
+    assert cells.loc["Unweighted n", "dm_sex=Female"] == fmt_count((raw["dm_sex"] == 2).sum())
+    male_weight = raw.loc[raw["dm_sex"] == 1, "WT"].sum()
+    assert cells.loc["Weighted N", "dm_sex=Male"] == fmt_count(male_weight)
     nums = table.numbers.set_index("label")
     assert nums.loc["Weighted N", "all"] == pytest.approx(raw["WT"].sum())
 
 
 def test_layout_columns_notes_methods(survey: Path) -> None:
     table = build_table(survey / "t1.toml", time=False)
-    assert [c.key for c in table.columns] == ["all", "SEX=Male", "SEX=Female"]
+    assert [c.key for c in table.columns] == ["all", "dm_sex=Male", "dm_sex=Female"]
     assert [c.group for c in table.columns] == [None, "Sex", "Sex"]
     assert list(table.cells["kind"]) == ["data", "section", "data", "data", "summary", "summary"]
     assert table.footnotes[-1] == "Source: invented data."
@@ -245,9 +246,9 @@ def test_the_documented_example_spec_is_valid(tmp_path: Path) -> None:
     for name in ("tbchs_sample.xpt", "tbchs_codebook.toml"):
         (tmp_path / name).write_text("", encoding="utf-8")  # only existence is checked here
     spec = load_table_spec(tmp_path / "table1.toml")
-    assert [r.variable for r in spec.rows] == ["SLEEP_HRS", "SMOKER", "EXER_FREQ", "BMI"]
+    assert [r.variable for r in spec.rows] == ["sl_hours", "tc_ever", "pa_mmin", "bd_bmi"]
     assert spec.rows[2].p == 0.5 and spec.rows[3].decimals == 2
-    assert spec.by == ("AGE_GRP", "DISTRICT") and spec.total == "All adults"
+    assert spec.by == ("dm_age5", "ar_dist") and spec.total == "All adults"
     assert [f for _, f in spec.outputs] == ["markdown", "xlsx"]
     assert spec.styles["proportion"] == "{pct} ({lo}–{hi})"
 
@@ -259,7 +260,7 @@ def test_real_nonresponse_table_renders_in_every_format(survey: Path) -> None:
     from wstats.reports.nonresponse import nonresponse
 
     data = read(survey / "sample.csv", codebook=survey / "cb.toml")
-    table = nonresponse(data, Design("WT", "STRAT", "PSU"), ["SLEEP"], by=["SEX"])
+    table = nonresponse(data, Design("WT", "STRAT", "PSU"), ["SLEEP"], by=["dm_sex"])
     raw = _raw(survey)
     dk = str(int((raw["SLEEP"] == 77).sum()))
     for fmt, render in NONRESPONSE_RENDERERS.items():

@@ -212,7 +212,7 @@ def test_json_keys_and_nulls() -> None:
         assert key in first
     suppressed = [r for r in doc["results"] if r["suppress"]]
     assert len(suppressed) == 1 and suppressed[0]["estimate"] is None
-    assert suppressed[0]["group"] == {"SEX": "Male"}
+    assert suppressed[0]["group"] == {"dm_sex": "Male"}
     assert doc["rules"]["df<8"] == {"description": RULES["df<8"][0],
                                     "source": RULES["df<8"][1]}
 
@@ -222,7 +222,7 @@ def test_nonresponse_json_follows_the_contract() -> None:
     rec = doc["results"][1]
     assert set(rec) >= {"variable", "group", "asked", "counts", "weighted_shares",
                         "nonresponse_rate", "se", "ci_low", "ci_high"}
-    assert rec["counts"]["dont_know"] == 20 and rec["group"] == {"SEX": "Male"}
+    assert rec["counts"]["dont_know"] == 20 and rec["group"] == {"dm_sex": "Male"}
 
 
 def test_latex_escapes_specials() -> None:
@@ -266,7 +266,7 @@ def test_xlsx_estimate_workbook_reads_back() -> None:
 def test_missing_provenance_falls_back_to_a_minimal_record() -> None:
     doc = json.loads(ESTIMATE_RENDERERS["json"](estimate_table()))
     assert doc["provenance"]["tool"] == "wstats"
-    assert doc["provenance"]["design"]["weight"] == "FINALWT"
+    assert doc["provenance"]["design"]["weight"] == "wt_final"
     assert doc["provenance"]["created_utc"] is None
     assert not math.isnan(doc["results"][0]["estimate"])
 

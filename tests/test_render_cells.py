@@ -17,6 +17,8 @@ from wstats.reports.cells import (
     fmt_number,
     group_text,
     reason_breakdown,
+    reason_legend,
+    short_reason,
     template_fields,
 )
 
@@ -81,8 +83,17 @@ def test_template_fields_rejects_format_specs() -> None:
 def test_reason_breakdown_order_and_zeros() -> None:
     counts = {"skipped": 903, "dont_know": 41, "refused": 12, "invalid": 0, "not_eligible": 3}
     assert (reason_breakdown(counts, ["dont_know", "refused", "skipped"])
-            == "dk 41 · ref 12 · skip 903 · not_eligible 3")
+            == "dk 41 · ref 12 · skip 903 · ne 3")
     assert reason_breakdown({}) == ""
+
+
+def test_unusual_reasons_get_a_short_form_in_the_legend() -> None:
+    legend = reason_legend(["dont_know", "not_applicable", "declared_88", "proxy"])
+    assert "na = not applicable" in legend and "d88 = declared 88" in legend
+    assert "dk = don't know" in legend and "prox = proxy" in legend
+    assert "not_applicable = not_applicable" not in legend
+    assert [short_reason(r) for r in ("refused", "not_measured", "gone")] == ["ref", "nm", "gone"]
+    assert "gone =" not in reason_legend(["gone"])  # a short form that is the word: no "x = x"
 
 
 def test_flag_notes_give_one_mark_per_rule_in_order_of_use() -> None:

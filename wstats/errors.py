@@ -42,7 +42,11 @@ __all__ = [
     "WstatsError",
     "WstatsWarning",
     "did_you_mean",
+    "require_package",
 ]
+
+#: optional feature -> (module it imports, pip extra that installs it)
+OPTIONAL_PACKAGES = {"charts": ("matplotlib", "plot"), "xlsx files": ("openpyxl", "xlsx")}
 
 
 class WstatsError(Exception):
@@ -111,3 +115,18 @@ def did_you_mean(name: str, choices: Iterable[str]) -> str:
         return f"; did you mean '{lowered[name.lower()]}'?"
     close = difflib.get_close_matches(name.lower(), list(lowered), n=1, cutoff=0.6)
     return f"; did you mean '{lowered[close[0]]}'?" if close else ""
+
+
+def require_package(feature: str, where: str = "",
+                    error: type[WstatsError] = UsageError) -> None:
+    """Raise UsageError with the ``pip install`` line when *feature*'s optional package is absent.
+
+    Called before any data is read, so that a missing package is reported before the work.
+    """
+    import importlib.util
+
+    module, extra = OPTIONAL_PACKAGES[feature]
+    if importlib.util.find_spec(module) is None:
+        lead = f"{where}: " if where else ""
+        raise error(f"{lead}{feature} need {module}, which is not installed; install it "
+                         f"with: pip install 'wstats[{extra}]'")

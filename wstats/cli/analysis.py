@@ -106,17 +106,15 @@ def _inputs(analysis: Analysis) -> list[Path]:
 
 
 def _check_plot_support(analysis: Analysis) -> None:
-    """Refuse a required chart when matplotlib is not installed (before any work is done)."""
-    import importlib.util
+    """Refuse a required chart or an xlsx output whose package is absent (before any work)."""
+    from wstats.errors import require_package
 
-    if importlib.util.find_spec("matplotlib") is not None:
-        return
     for job in analysis.jobs:
         if job.kind == "plot" and job.options["required"]:
-            raise AnalysisError(
-                f"{analysis.source}: {job.key}: charts need matplotlib, which is not installed;"
-                " install the plot extra: pip install 'wstats[plot]' (or set required = false"
-                " to skip the chart)")
+            require_package("charts", f"{analysis.source}: {job.key}", AnalysisError)
+    for out in analysis.outputs():
+        if out.fmt == "xlsx":
+            require_package("xlsx files", f"{analysis.source}: {out.key}", AnalysisError)
 
 
 def _codebook(analysis: Analysis) -> Codebook | None:
@@ -221,7 +219,7 @@ class _Runner:
                         job: Job) -> list[tuple[Output, bytes]]:
         """Render *obj* with *registry* for every output of *job*."""
         prov = self.provenance(getattr(obj, "design", None) or {})
-        return [(o, _as_bytes(registry[o.fmt](obj, provenance=prov), o.fmt))
+        return [(o, _as_bytes(registry[o.fmt](obj, provenance=prov), prov))
                 for o in job.outputs]
 
     def estimates(self, job: Job) -> list[tuple[Output, bytes]]:
@@ -236,7 +234,8 @@ class _Runner:
             by=o["by"], where=o.get("where"), categorical=o.get("categorical", ()),
             ratios=[tuple(r) for r in o.get("ratios", ())],
             quantiles=o.get("quantiles", (0.5,)), level=o["level"],
-            proportion_ci=o["proportion_ci"], reliability=STANDARDS[o["reliability"]])
+            proportion_ci=o["proportion_ci"], reliability=STANDARDS[o["reliability"]],
+            margins=o.get("margins", False))
         self.results[("estimates", job.name)] = table
         return self.registry_render(ESTIMATE_RENDERERS, table, job)
 
@@ -255,19 +254,17 @@ class _Runner:
 
     def bounds(self, job: Job) -> list[tuple[Output, bytes]]:
         """Compute and render one ``[[bounds]]`` entry (JSON, CSV or markdown)."""
+        from wstats.estimation.reliability import STANDARDS
         from wstats.render import BOUNDS_RENDERERS
         from wstats.reports.bounds import bounds
 
         o = job.options
         frame = bounds(self.data, self.design, o["variables"], by=o["by"], where=o.get("where"),
-                       level=o["level"], reasons=o["reasons"])
-        prov = self.provenance(self.design_summary())
-        return [(out, _as_bytes(BOUNDS_RENDERERS[out.fmt](frame, provenance=prov), out.fmt))
+                       level=o["level"], reasons=o["reasons"],
+                       reliability=STANDARDS[o["reliability"]])
+        prov = self.provenance(frame.attrs["design"])
+        return [(out, _as_bytes(BOUNDS_RENDERERS[out.fmt](frame, provenance=prov), prov))
                 for out in job.outputs]
-
-    def design_summary(self) -> dict[str, Any]:
-        """Return the bound design's summary."""
-        return self.design.bind(self.data).summary()
 
     def table(self, job: Job) -> list[tuple[Output, bytes]]:
         """Build and render one ``[[table]]`` entry (publication table)."""
@@ -281,11 +278,12 @@ class _Runner:
         built = build_table(spec, **kwargs)
         self.results[("table", job.name)] = built
         return [(o, _as_bytes(TABLE_RENDERERS[o.fmt](built, provenance=built.provenance),
-                              o.fmt)) for o in job.outputs]
+                              built.provenance)) for o in job.outputs]
 
     def methods(self, job: Job) -> list[tuple[Output, bytes]]:
         """Write the methods paragraph of the estimates an entry names."""
         from wstats.estimation.reliability import STANDARDS
+        from wstats.render import with_provenance
         from wstats.reports.methods import methods_paragraph
         from wstats.reports.nonresponse import nonresponse
 
@@ -304,9 +302,9 @@ class _Runner:
         for o_ in job.outputs:
             text = methods_paragraph(
                 table.design, table.settings, counts, rng, self.a.data.name,
-                STANDARDS[o["reliability"]], o_.fmt,
-                reason_descriptions=dict(self.codebook.reasons) if self.codebook else None)
-            out.append((o_, (text + "\n").encode("utf-8")))
+                STANDARDS[o["reliability"]], o_.fmt)
+            prov = self.provenance(table.design)
+            out.append((o_, with_provenance(text + "\n", o_.fmt, prov).encode("utf-8")))
             self.results.setdefault(("methods", job.name), text)
         return out
 
@@ -322,22 +320,23 @@ class _Runner:
         source = self.a_job(wanted, job.options.get("from"))
         table = self.results[(wanted, source.name)]
         draw = _plots.render_domains if kind == "domains" else _plots.render_reasons
-        return [(o, draw(table, o.fmt)) for o in job.outputs]
+        prov = self.provenance(table.design)
+        return [(o, draw(table, o.fmt, prov)) for o in job.outputs]
 
     def a_job(self, kind: str, name: str | None) -> Job:
         """Return the job of *kind* called *name*, or the first of its kind (checked at load)."""
         return next(j for j in self.a.jobs if j.kind == kind and name in (None, j.name))
 
 
-def _as_bytes(data: Any, fmt: str) -> bytes:
-    """Return rendered output as bytes (terminal renderables drawn as plain text)."""
+def _as_bytes(data: Any, provenance: Mapping[str, Any]) -> bytes:
+    """Return rendered output as bytes (terminal renderables as plain text, provenance below)."""
     if isinstance(data, bytes):
         return data
     if isinstance(data, str):
         return data.encode("utf-8")
-    from wstats.render import _plain_text
+    from wstats.render import plain_text
 
-    return _plain_text(data).encode("utf-8")
+    return plain_text(data, provenance).encode("utf-8")
 
 
 def _json(data: Mapping[str, Any]) -> str:

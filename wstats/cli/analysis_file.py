@@ -25,9 +25,9 @@ _DOMAIN = ("variables", "by", "where", "level")
 #: table name -> allowed keys of each entry
 JOB_KEYS: dict[str, tuple[str, ...]] = {
     "estimates": ("name", *_DOMAIN, "statistics", "categorical", "ratios", "quantiles",
-                  "proportion_ci", "reliability", *_OUT),
+                  "proportion_ci", "reliability", "margins", *_OUT),
     "nonresponse": ("name", *_DOMAIN, "count_invalid", "sort_worst", "not_asked", *_OUT),
-    "bounds": ("name", *_DOMAIN, "reasons", *_OUT),
+    "bounds": ("name", *_DOMAIN, "reasons", "reliability", *_OUT),
     "table": ("spec", "title", "rows", "columns", "where", "cells", "intervals", "notes",
               "reliability", *_OUT),
     "methods": ("estimates", *_OUT),
@@ -224,7 +224,7 @@ class _Parser(_Spec):
         d = self.defaults
         if "variables" not in entry:
             raise self.fail(f"{key} variables", "missing; list the variables, e.g. "
-                            "variables = [\"AGE_YRS\"]")
+                            "variables = [\"dm_age\"]")
         opts: dict[str, Any] = {
             "variables": self.names(entry["variables"], f"{key} variables", empty=False),
             "by": self.names(entry.get("by", d.get("by", [])), f"{key} by"),
@@ -243,18 +243,15 @@ class _Parser(_Spec):
         else:
             opts["reasons"] = self.names(entry.get("reasons", ["dont_know", "refused"]),
                                          f"{key} reasons", empty=False)
+            opts["reliability"] = self.reliability(key, entry)
         return opts
 
     def estimate_options(self, key: str, entry: Mapping[str, Any]) -> dict[str, Any]:
         """Return the statistics, interval and reliability options of an estimates entry."""
         from wstats.estimation.intervals import PROPORTION_INTERVALS
-        from wstats.estimation.reliability import STANDARDS
 
         d = self.defaults
-        stats = self.names(entry.get("statistics", []), f"{key} statistics")
-        for s in stats:
-            self.choice(s, f"{key} statistics", ("mean", "total", "proportion", "ratio",
-                                                 "quantile"))
+        stats = self.statistics(key, entry.get("statistics", []))
         ratios = entry.get("ratios", [])
         if not isinstance(ratios, list) or not all(
                 isinstance(r, list) and len(r) == 2 for r in ratios):
@@ -265,15 +262,37 @@ class _Parser(_Spec):
             raise self.fail(f"{key} quantiles", "must be a list of probabilities, e.g. [0.5]")
         return {
             "statistics": stats,
+            "margins": self.flag(entry.get("margins", False), f"{key} margins"),
             "categorical": self.names(entry.get("categorical", []), f"{key} categorical"),
             "ratios": tuple(tuple(self.names(r, f"{key} ratios")) for r in ratios),
             "quantiles": tuple(float(q) for q in quantiles),
             "proportion_ci": self.choice(entry.get("proportion_ci", d.get(
                 "proportion_ci", "korn-graubard")), f"{key} proportion_ci",
                 list(PROPORTION_INTERVALS)),
-            "reliability": self.choice(entry.get("reliability", d.get(
-                "reliability", "nchs-2017")), f"{key} reliability", list(STANDARDS)),
+            "reliability": self.reliability(key, entry),
         }
+
+    def statistics(self, key: str, value: Any) -> tuple[str, ...] | dict[str, tuple[str, ...]]:
+        """Return the statistics: one list for every variable, or a table of lists per variable."""
+        allowed = ("mean", "total", "proportion", "ratio", "quantile")
+        if isinstance(value, dict):
+            per = {self.text(v, f"{key} statistics"): self.names(s, f"{key} statistics.{v}")
+                   for v, s in value.items()}
+            for v, names in per.items():
+                for s in names:
+                    self.choice(s, f"{key} statistics.{v}", allowed)
+            return per
+        names = self.names(value, f"{key} statistics")
+        for s in names:
+            self.choice(s, f"{key} statistics", allowed)
+        return names
+
+    def reliability(self, key: str, entry: Mapping[str, Any]) -> str:
+        """Return the entry's reliability standard (or the default's), checked."""
+        from wstats.estimation.reliability import STANDARDS
+
+        return self.choice(entry.get("reliability", self.defaults.get(
+            "reliability", "nchs-2017")), f"{key} reliability", list(STANDARDS))
 
     def plot_options(self, key: str, entry: Mapping[str, Any]) -> dict[str, Any]:
         """Return kind, source entry and whether matplotlib is required."""

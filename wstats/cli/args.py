@@ -128,22 +128,26 @@ def design_from(args: argparse.Namespace, codebook: Any) -> Any:
 
 def add_estimate_args(p: argparse.ArgumentParser) -> None:
     _add_data_options(p)
-    p.add_argument("variables", metavar="VAR", nargs="+", help="variables to estimate")
+    p.add_argument("variables", metavar="VAR", nargs="*",
+                   help="variables to estimate (none needed when --ratio is given)")
     _add_design_options(p)
     g = p.add_argument_group("what to estimate")
     g.add_argument("--by", nargs="+", action="extend", metavar="COL", default=[],
                    help="domains: levels of these variables, crossed")
+    g.add_argument("--margins", action="store_true",
+                   help="with crossed --by A B: also each by-variable alone (one-way margins)")
     g.add_argument("--where", metavar="EXPR",
-                   help="row condition defining a subpopulation, e.g. 'AGE_YRS >= 65'")
+                   help="row condition defining a subpopulation, e.g. 'dm_age >= 65'")
     g.add_argument("--categorical", nargs="+", action="extend", metavar="COL", default=[],
                    help="treat these variables as categorical (a proportion per level)")
-    g.add_argument("--stats", metavar="LIST",
+    g.add_argument("--statistics", metavar="LIST",
                    help="comma list of mean,total,proportion,ratio,quantile (default: mean for "
                         "numbers, proportion for categories)")
+    g.add_argument("--stats", dest="statistics", action=_OldName, help=argparse.SUPPRESS)
     g.add_argument("--ratio", nargs="+", action="extend", metavar="NUM/DEN", default=[],
                    help="ratio of two variables, e.g. --ratio VISITS/PERSONS")
     g.add_argument("--quantiles", metavar="P,P", default="0.5",
-                   help="probabilities for --stats quantile (default 0.5)")
+                   help="probabilities for --statistics quantile (default 0.5)")
     g.add_argument("--level", type=float, default=0.95, help="confidence level (default 0.95)")
     g.add_argument("--proportion-ci", default="korn-graubard",
                    choices=("korn-graubard", "logit", "wilson", "wald"),
@@ -152,6 +156,21 @@ def add_estimate_args(p: argparse.ArgumentParser) -> None:
                    help="reliability standard: nchs-2017 (default), rse-30, none")
     g.add_argument("--plot", metavar="FILE", help="also draw estimates across domains (.png/.svg)")
     _add_output_options(p, OUTPUT_FORMATS)
+
+
+class _OldName(argparse.Action):
+    """An option kept under its old name: works, and says once what it is called now."""
+
+    def __call__(self, parser: argparse.ArgumentParser, namespace: argparse.Namespace,
+                 values: Any, option_string: str | None = None) -> None:
+        import warnings
+
+        from wstats.errors import WstatsWarning
+
+        new = "--" + self.dest.replace("_", "-")
+        warnings.warn(f"{option_string} is the old name of {new}; it still works for now, "
+                      f"but write {new}", WstatsWarning, stacklevel=2)
+        setattr(namespace, self.dest, values)
 
 
 def ratio_pair(text: str) -> tuple[str, str]:
@@ -191,6 +210,8 @@ def add_nonresponse_args(p: argparse.ArgumentParser) -> None:
     p.add_argument("--where", metavar="EXPR", help="row condition defining a subpopulation")
     p.add_argument("--worst-first", action="store_true",
                    help="sort by item nonresponse rate, highest first")
+    p.add_argument("--shares", action="store_true",
+                   help="show weighted shares of the rows per reason instead of row counts")
     p.add_argument("--exclude-invalid", action="store_true",
                    help="do not count 'invalid' answers as nonresponse")
     p.add_argument("--not-asked", default="skipped", metavar="REASONS",
@@ -211,6 +232,8 @@ def add_bounds_args(p: argparse.ArgumentParser) -> None:
     p.add_argument("--unknown", default="dont_know,refused", metavar="REASONS",
                    help="reasons whose answers are unknown (default dont_know,refused)")
     p.add_argument("--level", type=float, default=0.95, help="confidence level (default 0.95)")
+    p.add_argument("--standard", default="nchs-2017", metavar="NAME",
+                   help="reliability standard: nchs-2017 (default), rse-30, none")
     _add_output_options(p, ("table", "csv", "json", "markdown"))
 
 

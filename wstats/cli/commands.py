@@ -22,6 +22,7 @@ from wstats.cli.args import (
     add_run_args,
     add_table_args,
     design_from,
+    format_for,
     needed_columns,
     parse_rows,
     ratio_pair,
@@ -34,9 +35,10 @@ from wstats.cli.common import (
     _load_codebook,
     _not_an_input,
     _print_rich,
+    _provenance,
     _read,
 )
-from wstats.errors import UsageError
+from wstats.errors import UsageError, require_package
 
 __all__ = ["COMMANDS"]
 
@@ -49,20 +51,25 @@ def _run_estimate(args: argparse.Namespace) -> int:
     design = design_from(args, codebook)
     ratios = [ratio_pair(r) for r in args.ratio]
     variables = list(args.variables)
+    if not variables and not ratios:
+        raise UsageError("wstats estimate: name at least one VAR or give --ratio NUM/DEN "
+                         "(see 'wstats estimate --help')")
     needed = needed_columns([*variables, *[x for r in ratios for x in r], *args.by],
                             design, args.where, args.data)
     data = _read(args, codebook, needed)
     table = estimate(
-        data, design, variables, statistics=split_list([args.stats]) or None, by=args.by,
+        data, design, variables, statistics=split_list([args.statistics]) or None, by=args.by,
         where=args.where, categorical=args.categorical, ratios=ratios,
         quantiles=[float(q) for q in split_list([args.quantiles])], level=args.level,
         proportion_ci=args.proportion_ci, reliability=_standard(args.standard),
+        margins=args.margins,
     )
     _emit(table, "estimate", args, [args.data], args.codebook)
     if args.plot:
         from wstats.reports.plots import plot_domains
 
-        plot_domains(table, Path(args.plot), overwrite=args.overwrite)
+        plot_domains(table, Path(args.plot), overwrite=args.overwrite,
+                     provenance=_provenance(table, [args.data], args.codebook))
     return 0
 
 
@@ -87,11 +94,13 @@ def _run_nonresponse(args: argparse.Namespace) -> int:
     table = nonresponse(data, design, args.variables, by=args.by, where=args.where,
                         level=args.level, count_invalid=not args.exclude_invalid,
                         sort_worst=args.worst_first, not_asked=tuple(split_list([args.not_asked])))
-    _emit(table, "nonresponse", args, [args.data], args.codebook)
+    _emit(table.showing_shares() if args.shares else table, "nonresponse", args, [args.data],
+          args.codebook)
     if args.plot:
         from wstats.reports.plots import plot_reasons
 
-        plot_reasons(table, Path(args.plot), overwrite=args.overwrite)
+        plot_reasons(table, Path(args.plot), overwrite=args.overwrite,
+                     provenance=_provenance(table, [args.data], args.codebook))
     return 0
 
 
@@ -105,8 +114,8 @@ def _run_bounds(args: argparse.Namespace) -> int:
     data = _read(args, codebook, needed_columns([*args.variables, *args.by], design,
                                                 args.where, args.data))
     frame = bounds(data, design, args.variables, by=args.by, where=args.where,
-                   level=args.level, reasons=tuple(split_list([args.unknown])))
-    frame.attrs.setdefault("design", design.bind(data).summary())
+                   level=args.level, reasons=tuple(split_list([args.unknown])),
+                   reliability=_standard(args.standard))
     _emit(frame, "bounds", args, [args.data], args.codebook)
     return 0
 
@@ -117,6 +126,9 @@ def _run_table(args: argparse.Namespace) -> int:
     spec = load_table_spec(args.spec)
     if args.format == "xlsx" and not args.output:
         raise UsageError("xlsx output needs -o FILE.xlsx")
+    if format_for(args) == "xlsx" or (not args.output and not args.format and any(
+            fmt == "xlsx" for _, fmt in spec.outputs)):
+        require_package("xlsx files", str(args.spec))
     table = build_table(spec, progress=sys.stderr.isatty())
     if not args.output and not args.format and table.outputs:
         from wstats.render import write_table
@@ -201,16 +213,16 @@ def _run_demo(args: argparse.Namespace) -> int:
 COMMANDS: dict[str, Command] = {
     "estimate": Command(
         "weighted means, totals, proportions, ratios, quantiles with design-based SEs",
-        "wstats estimate survey.xpt SLEEPHRS GENHLTH --weight FINALWT --strata STRAT_ID "
-        "--psu CLUSTRID --by AGE_GRP --codebook codebook.toml",
+        "wstats estimate survey.xpt sl_hours hs_rate --weight wt_final --strata ds_strat "
+        "--psu ds_psu --by dm_age5 --codebook codebook.toml",
         add_estimate_args, _run_estimate),
     "nonresponse": Command(
         "counts and weighted shares of every missing reason; item nonresponse rates",
-        "wstats nonresponse survey.xpt SLEEPHRS FRUITFRQ --codebook codebook.toml --worst-first",
+        "wstats nonresponse survey.xpt sl_hours fd_fruit --codebook codebook.toml --worst-first",
         add_nonresponse_args, _run_nonresponse),
     "bounds": Command(
         "how far proportions could move if don't-know/refused answers were known",
-        "wstats bounds survey.xpt GENHLTH INSURED --codebook codebook.toml --by AGE_GRP",
+        "wstats bounds survey.xpt hs_rate ac_cover --codebook codebook.toml --by dm_age5",
         add_bounds_args, _run_bounds),
     "table": Command(
         "a publication table (with methods paragraph) from a table spec",

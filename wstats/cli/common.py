@@ -10,7 +10,7 @@ from pathlib import Path
 from typing import Any
 
 from wstats.cli.args import format_for, parse_rows
-from wstats.errors import UsageError
+from wstats.errors import UsageError, require_package
 
 __all__ = ["Command"]
 
@@ -65,21 +65,29 @@ def _emit(obj: Any, kind: str, args: argparse.Namespace, inputs: Sequence[str],
         _print_rich(registry[key](obj))
         return
     from wstats.readers.output import atomic_write
-    from wstats.reports.provenance import provenance
 
-    attrs = obj.attrs if kind == "bounds" else {}
-    design = getattr(obj, "design", None) or attrs.get("design") or {}
-    prov = provenance([Path(p) for p in inputs], Path(codebook_path) if codebook_path else None,
-                      dict(design), _command_line())
+    prov = _provenance(obj, inputs, codebook_path)
     text = registry[key](obj, provenance=prov)
     if key == "terminal":
-        text = _rich_to_text(text)
+        from wstats.render import plain_text
+
+        text = plain_text(text, prov, width=120)
     if args.output:
         _not_an_input(args.output, [*inputs, codebook_path])
         atomic_write(Path(args.output), text, overwrite=args.overwrite)
         print(f"wrote {args.output}", file=sys.stderr)
     else:
         sys.stdout.write(text if isinstance(text, str) else text.decode())
+
+
+def _provenance(obj: Any, inputs: Sequence[str], codebook_path: str | None) -> dict[str, Any]:
+    """Return the provenance record of a result of this command (its design, inputs, line)."""
+    from wstats.reports.provenance import provenance
+
+    attrs = getattr(obj, "attrs", None) or {}
+    design = getattr(obj, "design", None) or attrs.get("design") or {}
+    return provenance([Path(p) for p in inputs], Path(codebook_path) if codebook_path else None,
+                      dict(design), _command_line())
 
 
 def _check_outputs(args: argparse.Namespace, inputs: Sequence[str | None]) -> None:
@@ -90,6 +98,10 @@ def _check_outputs(args: argparse.Namespace, inputs: Sequence[str | None]) -> No
     """
     from wstats.readers.output import check_output, prefetch_sha256
 
+    if getattr(args, "plot", None):
+        require_package("charts", "--plot")
+    if format_for(args) == "xlsx":
+        require_package("xlsx files")
     if getattr(args, "output", None) or format_for(args) != "table":
         for name in inputs:
             if name:
@@ -119,13 +131,3 @@ def _print_rich(renderable: Any) -> None:
     from rich.console import Console
 
     Console(soft_wrap=False).print(renderable)
-
-
-def _rich_to_text(renderable: Any) -> str:
-    import io
-
-    from rich.console import Console
-
-    console = Console(record=True, width=120, file=io.StringIO())
-    console.print(renderable)
-    return console.export_text()

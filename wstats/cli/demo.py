@@ -34,13 +34,14 @@ def run_demo(folder: Path, *, overwrite: bool = False, rows: int | None = None,
     _check_folder(folder, overwrite)
     written = write_demo(folder, rows=rows, columns=columns)
     outputs, results = execute_analysis(folder / "tbchs_analysis.toml", overwrite=True)
-    _show(results, show)
-    files = sorted({*map(Path, written.values()), *outputs})
-    show(f"\nWrote {len(files)} files into {folder}/: "
-         + ", ".join(p.name for p in files)
-         + f"\nRe-run the analysis with: wstats run {folder / 'tbchs_analysis.toml'} "
-         "--overwrite")
-    return files
+    survey = [Path(p) for p in written.values()]
+    n = next((t.design.get("n_rows") for (k, _), t in results.items() if k == "estimates"), None)
+    show(f"wstats demo: a fictional survey{f' of {n:,} respondents' if n else ''}, written "
+         f"as {', '.join(p.suffix for p in survey if p.suffix != '.toml')} with its codebook "
+         "and analysis file, then analysed. A first look:\n")
+    _tour(results, show)
+    show(_where(folder, survey, outputs))
+    return sorted({*survey, *outputs})
 
 
 def _check_folder(folder: Path, overwrite: bool) -> None:
@@ -56,17 +57,43 @@ def _check_folder(folder: Path, overwrite: bool) -> None:
         raise OutputError(f"cannot create demo folder '{folder}': {exc.strerror}") from exc
 
 
-def _show(results: dict[tuple[str, str], Any], show: Callable[[Any], None]) -> None:
-    """Display estimates, nonresponse, publication table and methods text, in that order."""
-    from wstats.render import ESTIMATE_RENDERERS, NONRESPONSE_RENDERERS, TABLE_RENDERERS
+def _tour(results: dict[tuple[str, str], Any], show: Callable[[Any], None]) -> None:
+    """Show one short estimate block and the nonresponse table of the demo's analysis."""
+    from wstats.render import ESTIMATE_RENDERERS, NONRESPONSE_RENDERERS
 
-    registries = {"estimates": ESTIMATE_RENDERERS, "nonresponse": NONRESPONSE_RENDERERS,
-                  "table": TABLE_RENDERERS}
-    for kind in ("estimates", "nonresponse", "table", "methods"):
-        for (k, _name), obj in results.items():
-            if k != kind:
-                continue
-            if kind == "methods":
-                show("\nMethods\n" + str(obj))
-            else:
-                show(registries[kind]["terminal"](obj))
+    for (kind, _), obj in results.items():
+        if kind == "estimates":
+            show(ESTIMATE_RENDERERS["terminal"](_one_block(obj)))
+            break
+    for (kind, _), obj in results.items():
+        if kind == "nonresponse":
+            show("")
+            show(NONRESPONSE_RENDERERS["terminal"](obj))
+            break
+
+
+def _one_block(table: Any) -> Any:
+    """Return the first variable of an estimate table whose block is short (a mean by domain)."""
+    from wstats.estimation.results import EstimateTable
+
+    frame = table.frame
+    sizes = frame.groupby(["variable", "statistic"], sort=False).size()
+    short = [key for key, size in sizes.items() if size <= 8] or list(sizes.index)
+    variable, statistic = short[0]
+    rows = frame[(frame["variable"] == variable) & (frame["statistic"] == statistic)]
+    return EstimateTable.from_frame(rows.reset_index(drop=True), by=table.by,
+                                    level=table.level, design=table.design,
+                                    settings=table.settings)
+
+
+def _where(folder: Path, survey: list[Path], outputs: list[Path]) -> str:
+    """Return where the survey and every output went, one line per file name (stem)."""
+    groups: dict[str, list[str]] = {}
+    for p in [*survey, *sorted(outputs)]:
+        groups.setdefault(p.stem, []).append(p.suffix)
+    width = max(len(stem.split("_", 1)[-1]) for stem in groups) + 1
+    lines = [f"\nIn {folder}/ (every output carries its provenance):"]
+    lines += [f"  {stem.split('_', 1)[-1]:<{width}} {stem}{', '.join(sfx)}"
+              for stem, sfx in groups.items()]
+    lines.append(f"Re-run it all with: wstats run {folder / 'tbchs_analysis.toml'} --overwrite")
+    return "\n".join(lines)

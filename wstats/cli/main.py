@@ -103,17 +103,27 @@ def _one_blas_thread() -> None:
 
 
 def _show_warnings_as_lines(debug: bool) -> None:
-    """Print each wstats warning once, as one line on stderr; others only with --debug."""
+    """Print each wstats warning once per command, as one line on stderr; others with --debug.
+
+    The shown messages are remembered here: the warnings module's own "once" registry is
+    cleared whenever a library enters ``warnings.catch_warnings`` (pandas does, often), and a
+    `table` or `run` made the same warning once per estimate.
+    """
     import warnings
+
+    shown: set[str] = set()
 
     def show(message: Warning | str, category: type[Warning], *_: Any, **__: Any) -> None:
         if issubclass(category, WstatsWarning):
-            print(f"wstats: warning: {one_line(str(message))}", file=sys.stderr)
+            line = one_line(str(message))
+            if line not in shown:
+                shown.add(line)
+                print(f"wstats: warning: {line}", file=sys.stderr)
         elif debug:
             print(f"wstats: library warning ({category.__name__}): {message}", file=sys.stderr)
 
     warnings.showwarning = show
-    warnings.simplefilter("once", WstatsWarning)
+    warnings.simplefilter("always", WstatsWarning)
 
 
 if __name__ == "__main__":  # pragma: no cover

@@ -223,8 +223,8 @@ class CodebookRules:
 
         Examples
         --------
-        >>> cb = Codebook.from_dict({"derived": {"BMI": {"expr": "KG / (CM / 100) ^ 2"}}})
-        >>> cb.raw_columns_for(["AGE", "BMI"])
+        >>> cb = Codebook.from_dict({"derived": {"bd_bmi": {"expr": "KG / (CM / 100) ^ 2"}}})
+        >>> cb.raw_columns_for(["AGE", "bd_bmi"])
         ['AGE', 'CM', 'KG']
         """
         out: dict[str, None] = {}

@@ -178,6 +178,12 @@ def _wants_number(spec: VariableSpec | None) -> bool:
                                  or spec.kind not in (None, "text"))
 
 
+def _text_categories(spec: VariableSpec) -> bool:
+    """Tell whether a text column may keep its text as categories (e.g. 'north', 'south')."""
+    return (spec.kind in ("categorical", "binary") and spec.range is None
+            and spec.unit_prefixed is None)
+
+
 def _as_numeric(col: RawColumn, spec: VariableSpec, codes: CodeMap,
                 vocab: Reasons) -> tuple[RawColumn, list[tuple[np.ndarray, Rule]]]:
     """Read a text column (e.g. CSV with 'NA' cells) as numbers once its text codes are set.
@@ -199,7 +205,8 @@ def _as_numeric(col: RawColumn, spec: VariableSpec, codes: CodeMap,
         raise CodebookError(
             f"{spec.where}: {col.name} is treated as numeric (kind, range or unit_prefixed) "
             f"but holds text such as {first!r} in {int(bad.sum())} rows; give that text a "
-            f"meaning under codes (e.g. \"{first}\" = \"missing\") or use kind = \"text\"")
+            f"meaning under codes (e.g. \"{first}\" = \"missing\") if it is not an answer, or "
+            "use kind = \"categorical\" to keep text answers as categories")
     return dataclasses.replace(col, data=number, numeric=True, tags=None), pre
 
 
@@ -222,7 +229,11 @@ def decode_column(col: RawColumn, cb: Codebook, vocab: Reasons,
     _refuse_text_kind(col, spec)
     pre: list[tuple[np.ndarray, Rule]] = []
     if not col.numeric and spec is not None and _wants_number(spec):
-        col, pre = _as_numeric(col, spec, cb.codes_for(col.name, None), vocab)
+        try:
+            col, pre = _as_numeric(col, spec, cb.codes_for(col.name, None), vocab)
+        except CodebookError:
+            if not _text_categories(spec):
+                raise
     label = spec.label if spec is not None and spec.label else col.label
     if col.numeric:
         number, coded = _numeric(col, cb, spec, vocab, pre, inplace, ruled)

@@ -292,6 +292,28 @@ def _absent(raw: RawTable, cb: Codebook) -> tuple[tuple[str, str | None], ...]:
     return tuple(out)
 
 
+def _design_problems(raw: RawTable, cb: Codebook) -> list[str]:
+    """List ``[design]`` columns (weight, strata, PSU, FPC, replicates) the file lacks."""
+    design = dict(cb.design or {})
+    out = []
+    for key in ("weight", "strata", "psu", "fpc"):
+        name = design.get(key)
+        if name and name not in raw.file_columns:
+            out.append(f"[design] {key} = '{name}' is not a column of {raw.path}"
+                       f"{did_you_mean(str(name), raw.file_columns)}")
+    reps = design.get("replicates")
+    if isinstance(reps, str):
+        import fnmatch
+
+        if not any(fnmatch.fnmatchcase(c, reps) for c in raw.file_columns):
+            out.append(f"[design] replicates = '{reps}' matches no column of {raw.path}")
+    elif reps:
+        out += [f"[design] replicates: '{name}' is not a column of {raw.path}"
+                f"{did_you_mean(str(name), raw.file_columns)}"
+                for name in reps if name not in raw.file_columns]
+    return out
+
+
 def check_codebook(raw: RawTable, codebook: Codebook) -> CodebookCheck:
     """Apply a codebook to a file and report what each rule matched.
 
@@ -328,6 +350,7 @@ def check_codebook(raw: RawTable, codebook: Codebook) -> CodebookCheck:
         add_derived(cols, raw, codebook, vocab)
     except CodebookError as exc:
         problems.append(str(exc))
+    problems += _design_problems(raw, codebook)
     absent = _absent(raw, codebook)
     frame = pd.DataFrame(explained, columns=["variable", "raw_code", "reason", "count"])
     frame.insert(3, "value", _substitutes(frame, cols, raw))

@@ -36,7 +36,7 @@ class Expression:
     Attributes
     ----------
     text : the expression as written.
-    where : where it came from (used in messages), e.g. ``"derived.BMI in cb.toml"``.
+    where : where it came from (used in messages), e.g. ``"derived.bd_bmi in cb.toml"``.
     inputs : the variable names it reads.
     boolean : True when the result is a truth value (comparison, and/or/not, between, oneof).
     """
@@ -93,7 +93,7 @@ def parse_expression(text: str, known: Collection[str] | None, where: str) -> Ex
     ----------
     text : the expression, e.g. ``"WEIGHT_KG / (HEIGHT_CM / 100) ^ 2"``.
     known : names that may be used; None accepts any name (checked later against data).
-    where : context for messages, e.g. ``"derived.BMI in survey.toml"`` or ``"--where"``.
+    where : context for messages, e.g. ``"derived.bd_bmi in survey.toml"`` or ``"--where"``.
 
     Returns
     -------
@@ -106,8 +106,8 @@ def parse_expression(text: str, known: Collection[str] | None, where: str) -> Ex
 
     Examples
     --------
-    >>> sorted(parse_expression("AGE_YRS >= 65 and DISTRICT == 2", None, "where").inputs)
-    ['AGE_YRS', 'DISTRICT']
+    >>> sorted(parse_expression("dm_age >= 65 and ar_dist == 2", None, "where").inputs)
+    ['dm_age', 'ar_dist']
     """
     if not isinstance(text, str) or not text.strip():
         raise ExpressionError(f"{where}: the expression is empty; write e.g. 'A / B'")
@@ -128,8 +128,8 @@ def expression_names(text: str, where: str = "--where") -> list[str]:
 
     Examples
     --------
-    >>> expression_names("AGE_YRS >= 65 and DISTRICT == 2")
-    ['AGE_YRS', 'DISTRICT']
+    >>> expression_names("dm_age >= 65 and ar_dist == 2")
+    ['dm_age', 'ar_dist']
     """
     expr = parse_expression(text, None, where)
     toks = _tokenize(text, _Parser(text, where)._fail)

@@ -45,8 +45,8 @@ def read(
 
     Examples
     --------
-    >>> ds = read("tbchs_sample.xpt", ["AGE_YRS", "BMI"], "tbchs_codebook.toml")  # doctest: +SKIP
-    >>> ds["BMI"].reason_counts()  # doctest: +SKIP
+    >>> ds = read("tbchs_sample.xpt", ["dm_age", "bd_bmi"], "tbchs_codebook.toml")  # doctest: +SKIP
+    >>> ds["bd_bmi"].reason_counts()  # doctest: +SKIP
     """
     from wstats.readers.dispatch import read_raw
 

@@ -47,7 +47,8 @@ def singleton_error(labels: Sequence[str]) -> SingletonStratumError:
     more = f" and {len(labels) - _SHOW} more" if len(labels) > _SHOW else ""
     return SingletonStratumError(
         f"{len(labels)} strata have a single PSU ({shown}{more}); the variance cannot be "
-        "estimated there: choose singleton='certainty', 'center' or 'collapse'"
+        "estimated there: choose a treatment with --singleton certainty, center or collapse "
+        "(in Python: Design(..., singleton='certainty'))"
     )
 
 

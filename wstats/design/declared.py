@@ -30,8 +30,11 @@ from wstats.design.replicates import resolve_replicate_columns
 from wstats.errors import DesignError, did_you_mean
 
 if TYPE_CHECKING:
+    from pathlib import Path
+
     import numpy.typing as npt
 
+    from wstats.decoding.codebook import Codebook
     from wstats.decoding.columns import Dataset
 
     Array = npt.NDArray[np.float64]
@@ -81,7 +84,7 @@ class Design:
 
     Examples
     --------
-    >>> Design("FINALWT", strata="STRAT_ID", psu="CLUSTER_ID").singleton
+    >>> Design("wt_final", strata="ds_strat", psu="ds_psu").singleton
     'fail'
     """
 
@@ -115,6 +118,48 @@ class Design:
                 )
             return
         self._check_replicate_options()
+
+    @classmethod
+    def from_codebook(cls, codebook: Codebook | str | Path, **overrides: Any) -> Design:
+        """Return the design a codebook's ``[design]`` table declares, keywords on top.
+
+        Parameters
+        ----------
+        codebook : a loaded :class:`~wstats.Codebook`, or the path of its TOML file.
+        **overrides : any ``Design`` field (``singleton="collapse"``, ``domain_df=...``);
+            None leaves the codebook's value, as an absent CLI option does.
+
+        Returns
+        -------
+        Design
+
+        Raises
+        ------
+        DesignError
+            The table names an unknown key, or no weight is given anywhere.
+
+        Examples
+        --------
+        >>> from wstats.decoding.codebook import Codebook
+        >>> cb = Codebook.from_dict({"design": {"weight": "W", "strata": "S"}})
+        >>> Design.from_codebook(cb, psu="P").columns()
+        ['W', 'S', 'P']
+        """
+        from dataclasses import fields
+
+        from wstats.decoding.codebook import Codebook, load_codebook
+
+        cb = codebook if isinstance(codebook, Codebook) else load_codebook(codebook)
+        merged = {**(cb.design or {}), **{k: v for k, v in overrides.items() if v is not None}}
+        allowed = [f.name for f in fields(cls) if f.name != "extra"]
+        for key in merged:
+            if key not in allowed:
+                raise DesignError(f"{cb.source}: [design] {key} is not a design key; allowed: "
+                                  f"{', '.join(allowed)}{did_you_mean(key, allowed)}")
+        if not merged.get("weight"):
+            raise DesignError(f"{cb.source}: [design] names no weight column; add weight = "
+                              '"COLUMN" there or pass weight="COLUMN"')
+        return cls(**merged)
 
     def columns(
         self, available: Sequence[str] | None = None, source: str = "the data"

@@ -10,7 +10,7 @@ the full design (all strata and PSUs) is kept for its variance.
 from __future__ import annotations
 
 import itertools
-from collections.abc import Callable, Sequence
+from collections.abc import Callable, Mapping, Sequence
 from typing import TYPE_CHECKING, Any
 
 import numpy as np
@@ -18,7 +18,7 @@ import numpy as np
 from wstats.decoding.reasons import VALID
 from wstats.errors import EstimationError, did_you_mean
 from wstats.estimation.domains import Domains, no_cell
-from wstats.estimation.levels import category_levels, distinct_values, level_index
+from wstats.estimation.levels import category_levels, level_index
 from wstats.estimation.statistics import (
     Context,
     Mean,
@@ -28,13 +28,15 @@ from wstats.estimation.statistics import (
     Ratio,
     Total,
     add_intervals,
+    check_statistic,
+    is_categorical,
 )
 from wstats.estimation.sums import WeightedSums
 
 if TYPE_CHECKING:
     import numpy.typing as npt
 
-    from wstats.decoding.columns import Dataset, DecodedColumn
+    from wstats.decoding.columns import Dataset
     from wstats.design.bound import BoundDesign
     from wstats.design.declared import Design
     from wstats.estimation.reliability import ReliabilityStandard
@@ -54,7 +56,7 @@ def estimate(
     design: Design,
     variables: Sequence[str],
     *,
-    statistics: str | Sequence[str] | None = None,
+    statistics: str | Sequence[str] | Mapping[str, str | Sequence[str]] | None = None,
     by: Sequence[str] = (),
     where: str | None = None,
     categorical: Sequence[str] = (),
@@ -63,6 +65,7 @@ def estimate(
     level: float = 0.95,
     proportion_ci: str = "korn-graubard",
     reliability: ReliabilityStandard | None = None,
+    margins: bool = False,
 ) -> EstimateTable:
     """Estimate design-based statistics of survey variables, overall and by domain.
 
@@ -72,7 +75,10 @@ def estimate(
     design : the sample design; bound and checked against *data*.
     variables : variables to analyse.
     statistics : None (mean for continuous/count, proportion for categorical/binary), one
-        name or a list of ``mean``, ``total``, ``proportion``, ``ratio``, ``quantile``.
+        name or a list of ``mean``, ``total``, ``proportion``, ``ratio``, ``quantile``, or a
+        mapping variable -> name(s) for statistics per variable (variables it does not name
+        get the default). The CLI's ``--statistics`` takes the same names. A statistic that
+        does not suit a variable's kind (a proportion of a continuous one) is refused.
     by : variables whose crossed levels form the domains (plus the whole population).
     where : condition in the codebook expression language; rows where it is valid and true
         form the population domain.
@@ -83,6 +89,8 @@ def estimate(
     proportion_ci : interval for proportions, a key of ``PROPORTION_INTERVALS``.
     reliability : reliability standard for flags and suppression (None: the default,
         ``nchs-2017``; pass ``STANDARDS["none"]`` to switch the rules off).
+    margins : with two or more *by* variables, also the one-way margins (each by-variable
+        alone, the others shown as "All"); see :mod:`wstats.estimation.margins`.
 
     Returns
     -------
@@ -104,6 +112,10 @@ def estimate(
 
     stats = _check_options(statistics, level, proportion_ci, quantiles)
     _check_names(data, [*variables, *by, *categorical, *(v for r in ratios for v in r)])
+    for name in stats if isinstance(stats, dict) else ():
+        if name not in variables:
+            raise EstimationError(f"statistics name '{name}', which is not among the variables "
+                                  f"to estimate ({', '.join(variables)}); add it or drop it")
     bound = design.bind(data)
     domains, by_levels = _domains(data, bound, list(by), where)
     columns = {name: bound.column(col) for name, col in data.columns.items()}
@@ -121,8 +133,25 @@ def estimate(
     settings = {"proportion_ci": proportion_ci, "mean_ci": "wald-t", "quantile_ci": "woodruff",
                 "df_rule": "replicates" if bound.uses_replicates else design.domain_df,
                 "level": level, "reliability": standard.name,
-                "deff_srs": "with-replacement"}
-    return EstimateTable(rows, tuple(by), level, bound.summary(), settings)
+                "deff_srs": "with-replacement", **_scope(rows, by, where)}
+    table = EstimateTable(rows, tuple(by), level, bound.summary(), settings)
+    if not margins or len(by) < 2:
+        return table
+    from wstats.estimation.margins import with_margins
+
+    return with_margins(table, [estimate(
+        data, design, variables, statistics=statistics, by=[b], where=where,
+        categorical=categorical, ratios=ratios, quantiles=quantiles, level=level,
+        proportion_ci=proportion_ci, reliability=reliability) for b in by])
+
+
+def _scope(rows: dict[str, npt.NDArray[Any]], by: Sequence[str], where: str | None
+           ) -> dict[str, Any]:
+    """Return what the table covers: subpopulation, domains, statistics, range of df."""
+    df = rows["df"][np.isfinite(rows["df"])]
+    return {"where": where, "domains": list(by),
+            "statistics": list(dict.fromkeys(str(s) for s in rows["statistic"])),
+            "df_range": [float(df.min()), float(df.max())] if len(df) else None}
 
 
 def _warn(data: Dataset, bound: BoundDesign, variables: Sequence[str], domains: Domains,
@@ -140,9 +169,12 @@ def _warn(data: Dataset, bound: BoundDesign, variables: Sequence[str], domains: 
     warn_all(estimation_warnings(data, facts, variables, groups))
 
 
-def _check_options(statistics: str | Sequence[str] | None, level: float, proportion_ci: str,
-                   quantiles: Sequence[float]) -> list[str] | None:
-    """Check the options that need no data; return the statistics as a list (or None)."""
+Statistics = dict[str, list[str]] | list[str] | None
+
+
+def _check_options(statistics: str | Sequence[str] | Mapping[str, str | Sequence[str]] | None,
+                   level: float, proportion_ci: str, quantiles: Sequence[float]) -> Statistics:
+    """Check the options that need no data; return the statistics as a list, dict or None."""
     if not (isinstance(level, int | float) and 0.0 < float(level) < 1.0):
         raise EstimationError(f"confidence level {level!r} is outside (0, 1); use e.g. 0.95")
     Proportion(proportion_ci)  # checks the name
@@ -150,6 +182,13 @@ def _check_options(statistics: str | Sequence[str] | None, level: float, proport
         Quantile(p)
     if statistics is None:
         return None
+    if isinstance(statistics, Mapping):
+        return {str(v): _stat_names(s) for v, s in statistics.items()}
+    return _stat_names(statistics)
+
+
+def _stat_names(statistics: str | Sequence[str]) -> list[str]:
+    """Return one variable's statistics as a list of checked names."""
     names = [statistics] if isinstance(statistics, str) else list(statistics)
     for name in names:
         if name not in _NAMES:
@@ -169,17 +208,7 @@ def _check_names(data: Dataset, names: Sequence[str]) -> None:
             )
 
 
-def _is_categorical(col: DecodedColumn, forced: set[str]) -> bool:
-    """Return True for categorical/binary/text kinds, names in *forced*, or fully labelled data."""
-    if col.name in forced or col.kind in ("categorical", "binary", "text"):
-        return True
-    if not col.value_labels or col.values.dtype.kind != "f":
-        return False
-    seen = distinct_values(col.values[col.valid])
-    return bool(len(seen)) and all(float(v) in col.value_labels for v in seen)
-
-
-def _run(ctx: Context, variables: Sequence[str], stats: list[str] | None, forced: set[str],
+def _run(ctx: Context, variables: Sequence[str], stats: Statistics, forced: set[str],
          ratios: Sequence[tuple[str, str]], quantiles: Sequence[float], ci: str) -> list[Piece]:
     """Call the statistics for every variable (loops over variables and statistics only).
 
@@ -193,15 +222,18 @@ def _run(ctx: Context, variables: Sequence[str], stats: list[str] | None, forced
     slots: list[list[Piece] | tuple[str, str]] = []
     for name in variables:
         col = ctx.columns[name]
-        wanted = stats or (["proportion"] if _is_categorical(col, forced) else ["mean"])
+        given = stats.get(name) if isinstance(stats, dict) else stats
+        wanted = given or (["proportion"] if is_categorical(col, list(forced)) else ["mean"])
         for stat in wanted:
+            check_statistic(stat, col, list(forced))
             if fast and stat in BATCHED:
                 slots.append((name, stat))
             elif stat in ("mean", "total", "proportion"):
                 slots.append([_one(ctx, name, stat, ci)])
             elif stat == "quantile":
                 slots.append([Quantile(p)(ctx, name) for p in quantiles])
-    if stats and "ratio" in stats and not ratios:
+    every = [x for v in stats.values() for x in v] if isinstance(stats, dict) else stats or []
+    if "ratio" in every and not ratios:
         raise EstimationError("statistic 'ratio' needs ratios=[(numerator, denominator)]")
     batched = iter(batch_pieces(ctx, [s for s in slots if isinstance(s, tuple)], ci))
     pieces: list[Piece] = []

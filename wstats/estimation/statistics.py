@@ -31,7 +31,7 @@ import numpy as np
 from wstats.decoding.reasons import VALID
 from wstats.errors import EstimationError, did_you_mean
 from wstats.estimation.intervals import PROPORTION_INTERVALS, effective_n, t_quantile, wald_t
-from wstats.estimation.levels import category_levels, level_index
+from wstats.estimation.levels import category_levels, distinct_values, level_index
 from wstats.estimation.quantiles import domain_quantiles
 from wstats.estimation.variance import domain_df, ratio_estimate, total_estimate
 
@@ -47,7 +47,7 @@ if TYPE_CHECKING:
     Index = npt.NDArray[np.int64]
 
 __all__ = ["STATISTICS", "Context", "Mean", "Piece", "Proportion", "Quantile", "Ratio", "Total",
-           "add_intervals"]
+           "add_intervals", "check_statistic", "is_categorical"]
 
 
 @dataclass(frozen=True, eq=False)
@@ -338,6 +338,30 @@ def _with_se(piece: Piece, se: Array) -> Piece:
     from dataclasses import replace
 
     return replace(piece, se=se)
+
+
+def is_categorical(col: DecodedColumn, forced: Sequence[str] = ()) -> bool:
+    """Return True for categorical/binary/text kinds, names in *forced*, or fully labelled data."""
+    if col.name in forced or col.kind in ("categorical", "binary", "text"):
+        return True
+    if not col.value_labels or col.values.dtype.kind != "f":
+        return False
+    seen = distinct_values(col.values[col.valid])
+    return bool(len(seen)) and all(float(v) in col.value_labels for v in seen)
+
+
+def check_statistic(statistic: str, col: DecodedColumn, forced: Sequence[str] = ()) -> None:
+    """Refuse a statistic that does not suit the variable's kind (one owner of this rule).
+
+    A proportion of a continuous variable would be one proportion per distinct value (82 ages
+    give 82 rows), never what was meant. (A mean of a text column is refused where the
+    numbers are read, in ``Context.numeric``.)
+    """
+    if statistic == "proportion" and not is_categorical(col, forced):
+        raise EstimationError(
+            f"a proportion of '{col.name}' needs a categorical variable, but it is {col.kind}; "
+            f"estimate its mean or quantiles, or treat it as categorical (--categorical "
+            f"{col.name}, or kind = \"categorical\" in the codebook)")
 
 
 #: statistic name -> class (Ratio is called with two variables).

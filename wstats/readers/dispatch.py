@@ -74,7 +74,7 @@ def read_raw(
 
     Examples
     --------
-    >>> table = read_raw("survey.sav", columns=["AGE", "FINALWT"])  # doctest: +SKIP
+    >>> table = read_raw("survey.sav", columns=["AGE", "wt_final"])  # doctest: +SKIP
     >>> table.columns["AGE"].data.dtype  # doctest: +SKIP
     dtype('float64')
     """
@@ -120,7 +120,7 @@ def file_columns(path: str | os.PathLike[str], encoding: str = "utf-8") -> list[
     Examples
     --------
     >>> file_columns("survey.parquet")  # doctest: +SKIP
-    ['AGE', 'FINALWT', 'STRAT_ID']
+    ['AGE', 'wt_final', 'ds_strat']
     """
     source = Path(path)
     fmt = check_file(source)

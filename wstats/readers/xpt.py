@@ -81,7 +81,7 @@ def xpt_file_columns(path: str | os.PathLike[str]) -> list[str]:
     Examples
     --------
     >>> xpt_file_columns("tbchs_sample.xpt")  # doctest: +SKIP
-    ['RESP_ID', 'FINALWT', 'STRAT_ID', 'CLUSTER_ID', 'AGE_YRS']
+    ['id_resp', 'wt_final', 'ds_strat', 'ds_psu', 'dm_age']
     """
     name = os.fspath(path)
     with _opened(name) as fd:
@@ -127,8 +127,8 @@ def read_xpt(
 
     Examples
     --------
-    >>> table = read_xpt("tbchs_sample.xpt", columns=["FINALWT"], rows=(0, 100))  # doctest: +SKIP
-    >>> table.n_rows, table.columns["FINALWT"].data.dtype  # doctest: +SKIP
+    >>> table = read_xpt("tbchs_sample.xpt", columns=["wt_final"], rows=(0, 100))  # doctest: +SKIP
+    >>> table.n_rows, table.columns["wt_final"].data.dtype  # doctest: +SKIP
     (100, dtype('float64'))
     """
     name = os.fspath(path)

@@ -31,7 +31,9 @@ __all__ = [
     "FORMATS",
     "NONRESPONSE_RENDERERS",
     "TABLE_RENDERERS",
+    "plain_text",
     "render_check",
+    "with_provenance",
     "write_table",
 ]
 
@@ -126,14 +128,26 @@ def write_table(table: PublicationTable, overwrite: bool = False) -> list[Path]:
                               "not installed (xlsx: pip install openpyxl)")
         data = TABLE_RENDERERS[fmt](table, provenance=table.provenance)
         if fmt == "terminal":
-            data = _plain_text(data)
+            data = plain_text(data, table.provenance)
         atomic_write(Path(path), data, overwrite=overwrite)
         written.append(Path(path))
     return written
 
 
-def _plain_text(renderable: Any, width: int = 100) -> str:
-    """Return a rich renderable drawn as plain text at a fixed width."""
+def plain_text(renderable: Any, provenance: Mapping[str, Any] | None = None,
+               width: int = 100) -> str:
+    """Return a rich renderable drawn as plain text at a fixed width, provenance below.
+
+    Parameters
+    ----------
+    renderable : what a ``terminal`` renderer returned.
+    provenance : the record to append (None: none, for the screen).
+    width : columns of the drawing.
+
+    Returns
+    -------
+    str
+    """
     import io
 
     from rich.console import Console
@@ -141,4 +155,22 @@ def _plain_text(renderable: Any, width: int = 100) -> str:
     buf = io.StringIO()
     Console(file=buf, width=width, color_system=None, force_terminal=False,
             legacy_windows=False).print(renderable)
-    return buf.getvalue()
+    return with_provenance(buf.getvalue(), "text", provenance)
+
+
+def with_provenance(text: str, fmt: str, provenance: Mapping[str, Any] | None) -> str:
+    """Return *text* carrying its provenance the way its format allows comments.
+
+    ``text``: a block after a blank line; ``markdown``: an HTML comment first; ``latex``:
+    ``%`` lines first. No provenance: *text* unchanged.
+    """
+    from wstats.render._grid import provenance_lines
+
+    if not provenance:
+        return text
+    lines = ["wstats provenance", *provenance_lines(provenance)]
+    if fmt == "markdown":
+        return "\n".join(["<!--", *(ln.replace("--", "- -") for ln in lines), "-->", ""]) + text
+    if fmt == "latex":
+        return "".join(f"% {ln}\n" for ln in lines) + text
+    return text.rstrip("\n") + "\n\n" + "".join(f"  {ln}\n" for ln in lines)

@@ -7,7 +7,6 @@ Each format module then only decides how rows, spans and notes are drawn.
 
 from __future__ import annotations
 
-import json
 import math
 from collections.abc import Iterator, Mapping, Sequence
 from dataclasses import dataclass, field
@@ -23,6 +22,8 @@ from wstats.reports.cells import (
     interval,
     reason_breakdown,
     reason_legend,
+    reason_legend_items,
+    short_reason,
     with_marks,
 )
 
@@ -44,8 +45,6 @@ __all__ = [
     "publication_grid",
 ]
 
-_REASON_HEADERS = {"valid": "Valid", "skipped": "Skipped", "dont_know": "Don't know",
-                   "refused": "Refused", "invalid": "Invalid", "missing": "Missing"}
 _STAT_WORDS = {"proportion": "percent", "mean": "mean", "total": "total", "ratio": "ratio",
                "quantile": "quantile"}
 
@@ -159,12 +158,17 @@ def estimate_grid(table: EstimateTable) -> Grid:
         pct = stat == "proportion"
         se_dec = 2 if pct else auto_decimals(_median_se(sub))
         dec = 1 if pct else max(0, se_dec - 1)
+        last: tuple[str, ...] | None = None
         for row in sub.to_dict(orient="records"):
-            cells = [group_text(row[b]) for b in by]
-            cells += [_level_text(row)] if has_level else []
+            domain = tuple(group_text(row[b]) for b in by)
+            cells = [*domain, *([_level_text(row)] if has_level else [])]
             cells += _number_cells(row, notes, dec, se_dec, pct)
-            cells += [fmt_count(row["n"]), reason_breakdown(row["reasons"], order)]
+            # a domain's n and reasons are the same on each of its level rows: shown once
+            once = pct and domain == last
+            cells += ["", ""] if once else [fmt_count(row["n"]),
+                                             reason_breakdown(row["reasons"], order)]
             acc.add(cells)
+            last = domain
     legend = reason_legend(r for d in frame["reasons"] for r, c in dict(d).items() if c)
     return Grid(
         title=str(table.settings.get("title", "Estimates")), columns=tuple(cols),
@@ -206,43 +210,70 @@ def _number_cells(
     est = float(row["estimate"]) * k
     if math.isnan(est):
         return [with_marks("n/a", marks), "", ""]
-    big = abs(est) >= 1e4
-    text = fmt_number(est, dec, grouping=big) + ("%" if pct else "")
-    lo = fmt_number(float(row["ci_low"]) * k, dec, grouping=big)
-    hi = fmt_number(float(row["ci_high"]) * k, dec, grouping=big)
-    return [with_marks(text, marks), fmt_number(float(row["se"]) * k, se_dec, grouping=big),
+    # thousands separators on every number, so that one column has one style
+    text = fmt_number(est, dec, grouping=True) + ("%" if pct else "")
+    lo = fmt_number(float(row["ci_low"]) * k, dec, grouping=True)
+    hi = fmt_number(float(row["ci_high"]) * k, dec, grouping=True)
+    return [with_marks(text, marks), fmt_number(float(row["se"]) * k, se_dec, grouping=True),
             interval(lo, hi)]
 
 
 def nonresponse_grid(table: NonresponseLike) -> Grid:
-    """Return the grid of a nonresponse table: a section per variable, a row per domain."""
+    """Return the grid of a nonresponse table: one table, a row per variable x domain.
+
+    Reason columns are those some row has (core or added); the others are named in a note.
+    With ``settings["display"] == "shares"`` they hold weighted shares, else row counts.
+    """
     frame, by = table.frame, list(table.by)
-    # core reasons always; a reason a codebook or file added only when some row has it
-    reasons = [r for r in table.reasons if f"count_{r}" in frame.columns
-               and (r in _REASON_HEADERS or bool((frame[f"count_{r}"] > 0).any()))]
+    shares = table.settings.get("display") == "shares"
+    named = [r for r in table.reasons if r != "valid" and f"count_{r}" in frame.columns]
+    shown = [r for r in named if bool((frame[f"count_{r}"] > 0).any())]
     ci = f"{fmt_number(table.level * 100, 1).rstrip('0').rstrip('.')}% CI"
-    cols = [*(Column(b, b, "l") for b in by), Column("n_rows", "Rows"), Column("asked", "Asked")]
-    cols += [Column(f"count_{r}", _REASON_HEADERS.get(r, r.replace("_", " ").capitalize()))
-             for r in reasons]
-    cols += [Column("rate", "Nonresponse"), Column("ci", ci)]
+    cols = [Column("variable", "Item", "l"), *(Column(b, b, "l") for b in by),
+            Column("asked", "Asked"), Column("valid", "Valid"),
+            *(Column(f"count_{r}", short_reason(r)) for r in shown),
+            Column("rate", "Rate"), Column("ci", ci)]
     notes, acc = FlagNotes(), _Rows()
-    for (var,), sub in _sections(frame, ["variable"]):
-        acc.add([str(var)], "section")
-        for row in sub.to_dict(orient="records"):
-            marks = notes.mark(tuple(row.get("flags") or ()))
-            rate = fmt_number(float(row["nonresponse_rate"]) * 100, 1)
-            ci_text = interval(fmt_number(float(row["ci_low"]) * 100, 1),
-                               fmt_number(float(row["ci_high"]) * 100, 1))
-            acc.add([*(group_text(row[b]) for b in by), fmt_count(row["n_rows"]),
-                     fmt_count(row["asked"]), *(fmt_count(row[f"count_{r}"]) for r in reasons),
-                     with_marks(f"{rate}%" if rate else "n/a", marks), ci_text])
-    defn = table.settings.get("definition") or (
-        "Nonresponse: weighted share of asked rows (not skipped) that are not valid.")
+    for rec in frame.to_dict(orient="records"):
+        row = {str(k): v for k, v in rec.items()}
+        marks = notes.mark(tuple(row.get("flags") or ()))
+        rate = fmt_number(float(row["nonresponse_rate"]) * 100, 1)
+        ci_text = interval(fmt_number(float(row["ci_low"]) * 100, 1),
+                           fmt_number(float(row["ci_high"]) * 100, 1))
+        acc.add([str(row["variable"]), *(group_text(row[b]) for b in by),
+                 fmt_count(row["asked"]), *(_reason_cell(row, r, shares)
+                                            for r in ("valid", *shown)),
+                 with_marks(f"{rate}%" if rate else "n/a", marks), ci_text])
     return Grid(
         title=str(table.settings.get("title", "Item nonresponse")), columns=tuple(cols),
-        rows=tuple(acc.rows), kinds=tuple(acc.kinds), notes=(*notes.notes(), str(defn)),
+        rows=tuple(acc.rows), kinds=tuple(acc.kinds),
+        notes=(*notes.notes(), *_nonresponse_notes(table, shown, named, shares)),
         caption=design_line(table.design, table.settings, table.level),
     )
+
+
+def _reason_cell(row: Mapping[str, Any], reason: str, shares: bool) -> str:
+    """Return one reason's cell: its row count, or its weighted share in percent."""
+    if not shares:
+        return fmt_count(row[f"count_{reason}"])
+    text = fmt_number(float(row[f"share_{reason}"]) * 100, 1)
+    return f"{text}%" if text else ""
+
+
+def _nonresponse_notes(table: NonresponseLike, shown: Sequence[str], named: Sequence[str],
+                       shares: bool) -> list[str]:
+    """Return what the columns hold, the reasons' short forms, the empty reasons, the rate."""
+    what = "weighted shares of all rows" if shares else "rows (unweighted)"
+    out = [f"Valid and reason columns: {what}."]
+    legend = reason_legend_items(shown)
+    if legend:
+        out.append(f"Reasons: {legend}.")
+    empty = [r.replace("_", " ") for r in named if r not in shown]
+    if empty:
+        out.append(f"No rows (columns left out): {', '.join(empty)}.")
+    defn = table.settings.get("definition") or (
+        "Nonresponse: weighted share of asked rows (not skipped) that are not valid.")
+    return [*out, str(defn)]
 
 
 def publication_grid(table: PublicationLike) -> Grid:
@@ -270,7 +301,7 @@ def publication_grid(table: PublicationLike) -> Grid:
 
 
 def design_line(design: Mapping[str, Any], settings: Mapping[str, Any], level: float) -> str:
-    """Return a one-line summary of the design and interval method."""
+    """Return a one-line summary of the design, df rule, subpopulation and interval method."""
     parts = []
     if design.get("weight"):
         parts.append(f"weight {design['weight']}")
@@ -279,29 +310,31 @@ def design_line(design: Mapping[str, Any], settings: Mapping[str, Any], level: f
         parts.append(f"{n} stratum" if n == 1 else f"{n} strata")
     if design.get("n_psu") is not None:
         parts.append(f"{design['n_psu']} PSUs")
-    if design.get("df") is not None:
-        parts.append(f"df {group_text(design['df'])}")
+    df = _df_text(design, settings)
+    if df:
+        parts.append(df)
     method = settings.get("proportion_ci")
     level_text = fmt_number(level * 100, 1).rstrip("0").rstrip(".")
     ci = f"{level_text}% intervals" + (f" ({method} for proportions)" if method else "")
-    return "Design: " + ", ".join(parts) + "; " + ci if parts else ci
+    where = settings.get("where")
+    sub = f"; subpopulation {where} (full design kept)" if where else ""
+    return ("Design: " + ", ".join(parts) + "; " + ci if parts else ci) + sub
+
+
+def _df_text(design: Mapping[str, Any], settings: Mapping[str, Any]) -> str:
+    """Return ``df 162``, or under the domain rule ``df per domain 3–8``."""
+    span = settings.get("df_range")
+    if settings.get("df_rule") == "domain" and span:
+        lo, hi = (group_text(float(x)) for x in span)
+        return f"df per domain {lo}" if lo == hi else f"df per domain {interval(lo, hi)}"
+    return f"df {group_text(design['df'])}" if design.get("df") is not None else ""
 
 
 def provenance_lines(provenance: Mapping[str, Any] | None) -> list[str]:
     """Return ``key: value`` lines (sorted, dotted keys, JSON values) for comment headers."""
-    from wstats.reports.provenance import normalize
+    from wstats.reports.provenance import provenance_lines as lines
 
-    lines: list[str] = []
-
-    def walk(prefix: str, value: Any) -> None:
-        if isinstance(value, dict) and value:
-            for k, v in value.items():
-                walk(f"{prefix}.{k}" if prefix else k, v)
-        else:
-            lines.append(f"{prefix}: {json.dumps(value, ensure_ascii=False)}")
-
-    walk("", normalize(dict(provenance or {})))
-    return lines
+    return lines(provenance)
 
 
 def default_provenance(table: Any) -> dict[str, Any]:

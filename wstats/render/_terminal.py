@@ -33,7 +33,7 @@ __all__ = [
 
 _SHORT = 16  # label columns up to this width are kept on one line
 _WRAP_AT = 14  # a wrappable text column is given at least this width
-_PAD = 3  # what rich adds per column: one space of padding each side and the rule space
+_PAD = 2  # what rich adds per column: the separator and one space of padding on the left
 
 
 def estimate_terminal(table: EstimateTable, provenance: Any = None) -> RenderableType:
@@ -66,6 +66,11 @@ class GridView:
         if g.caption:
             yield Text(g.caption)
         for title, rows, kinds in _blocks(g, self.per_section):
+            if not self.per_section:  # a publication table: groups side by side, or panels
+                from wstats.render._panels import panels
+
+                yield from panels(g, rows, kinds, options.max_width)
+                continue
             for cols in _column_blocks(g, rows, options.max_width):
                 yield _table(g, cols, rows, kinds, title)
         for note in g.notes:
@@ -110,12 +115,15 @@ def _column_blocks(
         # trailing text (the reason breakdown) may wrap; numbers and labels may not
         wrap = col.align == "l" and i >= lead
         need.append((min(longest, _WRAP_AT) if wrap else longest) + _PAD)
-    base, current, used = list(range(lead)), list[int](), sum(need[:lead])
+    # a Level column that is empty in this block (means beside proportions) is left out
+    base = [i for i in range(lead) if g.columns[i].key != "level"
+            or any(i < len(r) and r[i] for r in rows)]
+    current, used = list[int](), sum(need[i] for i in base)
     blocks: list[list[int]] = []
     for i in range(lead, len(g.columns)):
         if current and used + need[i] - _PAD > width:
             blocks.append(base + current)
-            current, used = [], sum(need[:lead])
+            current, used = [], sum(need[i] for i in base)
         current.append(i)
         used += need[i]
     blocks.append(base + current)
@@ -149,7 +157,7 @@ def _table(
     from rich.text import Text
 
     table = Table(title=title, title_justify="left", title_style="bold", box=box.SIMPLE_HEAD,
-                  show_edge=False, pad_edge=False, expand=False)
+                  show_edge=False, pad_edge=False, expand=False, padding=(0, 1, 0, 0))
     headers = _headers(g)
     for i in cols:
         numeric = g.columns[i].align == "r"

@@ -21,6 +21,7 @@ if TYPE_CHECKING:
     import pandas as pd
 
     from wstats.design.declared import Design
+    from wstats.estimation.reliability import ReliabilityStandard
     from wstats.estimation.results import EstimateTable
 
 __all__ = ["bounds", "bounds_records"]
@@ -34,6 +35,7 @@ def bounds(
     where: str | None = None,
     level: float = 0.95,
     reasons: Sequence[str] = ("dont_know", "refused"),
+    reliability: ReliabilityStandard | None = None,
 ) -> pd.DataFrame:
     """Worst-case bounds for the proportions of a categorical item under item nonresponse.
 
@@ -56,14 +58,17 @@ def bounds(
     where : condition defining the population domain.
     level : confidence level of the valid-case interval.
     reasons : reasons whose rows could have held any level (default don't know and refused).
+    reliability : the reliability standard, as for :func:`wstats.estimate` (None: the
+        default); a valid-case estimate it suppresses is suppressed here too, with its bounds.
 
     Returns
     -------
     pandas.DataFrame
         Columns ``variable``, ``level``, the by-variables, ``estimate``, ``se``, ``ci_low``,
         ``ci_high`` (valid-case), ``lower``, ``upper``, ``unknown_share`` (W_unk / (W_valid +
-        W_unk) = upper - lower), ``n_valid``, ``n_unknown``. ``frame.attrs`` holds ``by``,
-        ``reasons`` and ``level``. See :func:`bounds_records` for JSON.
+        W_unk) = upper - lower), ``n_valid``, ``n_unknown``, ``flags`` and ``suppress`` (the
+        valid-case estimate's reliability rules). ``frame.attrs`` holds ``by``, ``reasons``,
+        ``level``, ``design`` and ``settings``. See :func:`bounds_records` for JSON.
 
     Examples
     --------
@@ -74,16 +79,16 @@ def bounds(
     [0.67, 0.5, 0.75]
     """
     from wstats.estimation.estimate import estimate
-    from wstats.estimation.reliability import STANDARDS
 
     names = _check_variables(data, [variables] if isinstance(variables, str) else variables)
     codes = np.array([data.vocabulary.code(r) for r in reasons], dtype=np.int8)
     extra = {f"{v}{_UNKNOWN}": _unknown_column(data[v], codes) for v in names}
     aug = _augmented(data, extra)
     est = estimate(aug, design, [*names, *extra], statistics="proportion", by=by, where=where,
-                   categorical=names, level=level, reliability=STANDARDS["none"])
+                   categorical=names, level=level, reliability=reliability)
     frame = _bounds_frame(est, names, list(by))
-    frame.attrs.update({"by": list(by), "reasons": list(reasons), "level": est.level})
+    frame.attrs.update({"by": list(by), "reasons": list(reasons), "level": est.level,
+                        "design": dict(est.design), "settings": dict(est.settings)})
     return frame
 
 
@@ -138,5 +143,6 @@ def _bounds_frame(est: EstimateTable, names: list[str], by: list[str]) -> pd.Dat
         block["unknown_share"] = np.where(w_all > 0, u, np.nan)
         block["n_valid"] = cat["n"].to_numpy()
         block["n_unknown"] = np.repeat(unk["n"].to_numpy(), n_levels) - cat["n"].to_numpy()
+        block["flags"], block["suppress"] = cat["flags"].to_numpy(), cat["suppress"].to_numpy()
         blocks.append(block)
     return pd.concat(blocks, ignore_index=True)

@@ -28,8 +28,11 @@ __all__ = [
     "interval",
     "reason_breakdown",
     "reason_legend",
+    "reason_legend_items",
+    "reason_words",
     "rule_info",
     "rule_text",
+    "short_reason",
     "template_fields",
     "with_marks",
 ]
@@ -96,11 +99,12 @@ def cell_text(
     """Fill *template* with the formatted numbers of one estimate row."""
     est, se = float(row["estimate"]) * scale, float(row["se"]) * scale
     lo, hi = float(row["ci_low"]) * scale, float(row["ci_high"]) * scale
+    # one separator style for every cell: a column mixing 9876.5 and 12,345.6 reads badly
     values = {
-        "est": fmt_number(est, decimals, grouping=abs(est) >= 1e4),
-        "se": fmt_number(se, se_decimals, grouping=abs(se) >= 1e4),
-        "lo": fmt_number(lo, decimals, grouping=abs(lo) >= 1e4),
-        "hi": fmt_number(hi, decimals, grouping=abs(hi) >= 1e4),
+        "est": fmt_number(est, decimals, grouping=True),
+        "se": fmt_number(se, se_decimals, grouping=True),
+        "lo": fmt_number(lo, decimals, grouping=True),
+        "hi": fmt_number(hi, decimals, grouping=True),
         "pct": fmt_number(float(row["estimate"]) * 100, decimals) + "%",
         "n": fmt_count(row["n"]),
         "cv": fmt_number(float(row["cv"]) * 100, 1) + "%",
@@ -109,12 +113,34 @@ def cell_text(
     return template.format(**values)
 
 
+def short_reason(name: str) -> str:
+    """Return a reason's short form: ``dk`` for the core ones, else initials (``na`` for
+    ``not_applicable``, ``d88`` for ``declared_88``) or the first four letters of one word."""
+    if name in REASON_ABBREVIATIONS:
+        return REASON_ABBREVIATIONS[name]
+    parts = [p for p in name.replace("-", "_").split("_") if p]
+    if len(parts) < 2:
+        return name[:4]
+    return "".join(p if p.isdigit() else p[0] for p in parts).lower()
+
+
+def reason_words(name: str) -> str:
+    """Return a reason in words: ``don't know``, ``not applicable``."""
+    return _REASON_WORDS.get(name, name.replace("_", " "))
+
+
+def reason_legend_items(reasons: Iterable[str]) -> str:
+    """Return ``dk = don't know; na = not applicable`` for the reasons given (no ``x = x``)."""
+    items = [(short_reason(r), reason_words(r)) for r in dict.fromkeys(reasons) if r != "valid"]
+    return "; ".join(f"{s} = {w}" for s, w in items if s != w)
+
+
 def reason_breakdown(reasons: Mapping[str, int] | None, order: Sequence[str] = ()) -> str:
     """Return the compact non-valid breakdown, e.g. ``dk 41 · ref 12 · skip 903``."""
     if not reasons:
         return ""
     names = [r for r in order if r in reasons] + sorted(r for r in reasons if r not in order)
-    parts = [f"{REASON_ABBREVIATIONS.get(r, r)} {fmt_count(reasons[r])}"
+    parts = [f"{short_reason(r)} {fmt_count(reasons[r])}"
              for r in names if r != "valid" and int(reasons[r]) > 0]
     return " · ".join(parts)
 
@@ -124,9 +150,9 @@ def reason_legend(reasons: Iterable[str]) -> str:
     seen = [r for r in dict.fromkeys(reasons) if r != "valid"]
     if not seen:
         return ""
-    words = "; ".join(f"{REASON_ABBREVIATIONS.get(r, r)} = {_REASON_WORDS.get(r, r)}"
-                      for r in seen)
-    return f"Not valid: domain rows left out of the estimate, by reason ({words})."
+    words = reason_legend_items(seen)
+    return ("Not valid: domain rows left out of the estimate, by reason"
+            + (f" ({words})." if words else "."))
 
 
 def rule_info(rule_id: str) -> tuple[str, str]:

@@ -70,7 +70,6 @@ def methods_paragraph(
     fmt: str = "text",
     *,
     recodes: Sequence[str] = (),
-    reason_descriptions: Mapping[str, str] | None = None,
 ) -> str:
     """Write the methods paragraph of a table.
 
@@ -78,7 +77,9 @@ def methods_paragraph(
     ----------
     design_summary : ``BoundDesign.summary()`` (weight, n_strata, n_psu, df, fpc, singleton,
         variance_method, replicate_method, n_replicates, ...).
-    settings : estimation settings: ``level``, ``proportion_ci`` (and optionally ``fay_rho``).
+    settings : estimation settings: ``level``, ``proportion_ci``; optionally ``where``,
+        ``domains``, ``df_rule``, ``df_range`` and ``statistics`` (as ``estimate`` records
+        them), which add what was done for the subpopulation, domains and quantiles.
     reasons_used : reasons that occurred among the reported variables (name -> row count, or
         just names); reasons with a zero count are not mentioned.
     nonresponse_range : lowest and highest item nonresponse rate (fractions) across the
@@ -87,7 +88,8 @@ def methods_paragraph(
     standard : the reliability standard (a ``ReliabilityStandard``, its name, or None).
     fmt : ``text``, ``markdown`` or ``latex`` (escaping for the target).
     recodes : value substitutions made by the codebook, in words (``"EXER_FREQ: 888 → 0"``).
-    reason_descriptions : descriptions of reasons the codebook added (name -> text).
+        Reasons are named by their short names (``not_eligible`` as "not eligible"): a
+        codebook's descriptions are written for a legend, not for a sentence.
 
     Returns
     -------
@@ -108,8 +110,9 @@ def methods_paragraph(
         f"Estimates were made from {data_name} with every record weighted by "
         f"{design_summary.get('weight', 'the design weight')}.",
         _variance_sentence(design_summary),
+        *_scope_sentences(design_summary, settings),
         _interval_sentence(settings),
-        *_reason_sentences(counts, recodes, reason_descriptions or {}),
+        *_reason_sentences(counts, recodes),
         _nonresponse_sentence(nonresponse_range),
         _standard_sentence(standard),
         "This note summarises what wstats did; where it differs from the survey's own "
@@ -165,16 +168,46 @@ def _interval_sentence(settings: Mapping[str, Any]) -> str:
             f"proportions use {words}.")
 
 
-def _reason_sentences(
-    counts: Mapping[str, int], recodes: Sequence[str], extra: Mapping[str, str]
-) -> list[str]:
+def _scope_sentences(d: Mapping[str, Any], settings: Mapping[str, Any]) -> list[str]:
+    """Say how the subpopulation, domains, zero weights and quantiles were handled."""
+    out = []
+    if settings.get("where"):
+        out.append(f"Estimates are for the subpopulation {settings['where']}, keeping the full "
+                   "design: records outside it add zero rather than being removed, so every "
+                   "stratum and PSU enters the variance.")
+    domains = list(settings.get("domains") or ())
+    if domains:
+        out.append(f"Domain estimates (by {', '.join(domains)}) keep the full design in the "
+                   "same way." + _domain_df(settings))
+    zero = int(d.get("zero_weights") or 0)
+    out.append("No record had a zero weight." if not zero else
+               f"{_number(zero)} records with a zero weight stayed in the design; they add "
+               "nothing to the estimates.")
+    if "quantile" in (settings.get("statistics") or ()):
+        out.append("A quantile is the smallest value whose weighted cumulative share reaches "
+                   "its probability; its interval is Woodruff's, mapped back from the "
+                   "interval of that share.")
+    return out
+
+
+def _domain_df(settings: Mapping[str, Any]) -> str:
+    """Return the sentence on per-domain degrees of freedom ('' under the design rule)."""
+    span = settings.get("df_range")
+    if settings.get("df_rule") != "domain" or not span:
+        return ""
+    lo, hi = (_number(x) for x in span)
+    count = lo if lo == hi else f"{lo} to {hi}"
+    return (" Each domain's degrees of freedom count only the strata and PSUs holding its "
+            f"members ({count}).")
+
+
+def _reason_sentences(counts: Mapping[str, int], recodes: Sequence[str]) -> list[str]:
     """Say how each reason for a missing value was handled."""
     out = []
     if counts.get("skipped"):
         out.append("Records that were not asked an item (legitimate skips, outside the item's "
                    "universe) were left out of that item's domain and are not nonresponse.")
-    named = [_NONRESPONSE_WORDS.get(r, extra.get(r, r.replace("_", " "))) for r in counts
-             if r != "skipped"]
+    named = [_NONRESPONSE_WORDS.get(r, r.replace("_", " ")) for r in counts if r != "skipped"]
     if named:
         listed = ", ".join(named[:-1]) + (" and " if len(named) > 1 else "") + named[-1]
         out.append(f"Answers coded as {listed} were left out of the item's estimates "

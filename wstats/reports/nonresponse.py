@@ -89,6 +89,12 @@ class NonresponseTable:
     design: Mapping[str, Any] = field(default_factory=dict)
     settings: Mapping[str, Any] = field(default_factory=dict)
 
+    def showing_shares(self) -> NonresponseTable:
+        """Return the same table set to display weighted shares instead of row counts."""
+        import dataclasses
+
+        return dataclasses.replace(self, settings={**self.settings, "display": "shares"})
+
     def to_pandas(self) -> pd.DataFrame:
         """Return a copy of the frame."""
         return self.frame.copy()
@@ -341,7 +347,8 @@ def _settings(counted: tuple[str, ...], skip: tuple[str, ...], count_invalid: bo
             "not_asked": list(skip), "denominator": f"asked (not {', '.join(skip)})",
             "weight": design.weight,
             "proportion_ci": "korn-graubard", "level": est.level, "df_rule":
-            est.settings.get("df_rule"), "definition": definition,
+            est.settings.get("df_rule"), "df_range": est.settings.get("df_range"),
+            "where": est.settings.get("where"), "definition": definition,
             "title": "Item nonresponse", "threshold": NCES_MIN_RESPONSE}
 
 

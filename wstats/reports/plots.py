@@ -58,7 +58,8 @@ def plot_format(path: str | Path) -> str:
     return PLOT_FORMATS[suffix]
 
 
-def render_domains(table: EstimateTable, fmt: str = "svg") -> bytes:
+def render_domains(table: EstimateTable, fmt: str = "svg",
+                   provenance: Mapping[str, Any] | None = None) -> bytes:
     """Draw estimates with their confidence intervals across domains; return the image bytes.
 
     Parameters
@@ -67,6 +68,8 @@ def render_domains(table: EstimateTable, fmt: str = "svg") -> bytes:
         Result of :func:`wstats.estimate`; one panel per variable x statistic x level.
     fmt : {"png", "svg"}
         Image format.
+    provenance : the provenance record, kept in the image's metadata (SVG description,
+        PNG text chunk) as ``key: value`` lines, without its time stamp.
 
     Returns
     -------
@@ -87,10 +90,11 @@ def render_domains(table: EstimateTable, fmt: str = "svg") -> bytes:
     for i, (title, rows) in enumerate(series):
         _domain_panel(fig.add_subplot(grid[i, 0]), title, rows, table.by)
     fig.supxlabel(f"estimate with {table.level:.0%} confidence interval", fontsize=9)
-    return _encode(fig, fmt)
+    return _encode(fig, fmt, provenance)
 
 
-def render_reasons(table: NonresponseTable, fmt: str = "svg") -> bytes:
+def render_reasons(table: NonresponseTable, fmt: str = "svg",
+                   provenance: Mapping[str, Any] | None = None) -> bytes:
     """Draw one stacked bar per variable (x domain) of the weighted share of each reason.
 
     Parameters
@@ -99,6 +103,8 @@ def render_reasons(table: NonresponseTable, fmt: str = "svg") -> bytes:
         Result of :func:`wstats.nonresponse`.
     fmt : {"png", "svg"}
         Image format.
+    provenance : the provenance record, kept in the image's metadata (SVG description,
+        PNG text chunk) as ``key: value`` lines, without its time stamp.
 
     Returns
     -------
@@ -123,10 +129,11 @@ def render_reasons(table: NonresponseTable, fmt: str = "svg") -> bytes:
     ax.set_xlim(0.0, 1.0)
     ax.set_xlabel("weighted share of rows", fontsize=9)
     fig.legend(loc="outside lower center", ncol=min(len(shown), 6), fontsize=8, frameon=False)
-    return _encode(fig, fmt)
+    return _encode(fig, fmt, provenance)
 
 
-def plot_domains(table: EstimateTable, path: str | Path, *, overwrite: bool = False) -> Path:
+def plot_domains(table: EstimateTable, path: str | Path, *, overwrite: bool = False,
+                 provenance: Mapping[str, Any] | None = None) -> Path:
     """Write :func:`render_domains` to *path* (``.png`` or ``.svg``); return the path.
 
     Parameters
@@ -137,16 +144,18 @@ def plot_domains(table: EstimateTable, path: str | Path, *, overwrite: bool = Fa
         Output file; the extension chooses the format.
     overwrite : bool
         Replace an existing file (otherwise OutputError).
+    provenance : the record to keep in the image's metadata (see :func:`render_domains`).
 
     Returns
     -------
     Path
         The file written.
     """
-    return _write(render_domains(table, plot_format(path)), path, overwrite)
+    return _write(render_domains(table, plot_format(path), provenance), path, overwrite)
 
 
-def plot_reasons(table: NonresponseTable, path: str | Path, *, overwrite: bool = False) -> Path:
+def plot_reasons(table: NonresponseTable, path: str | Path, *, overwrite: bool = False,
+                 provenance: Mapping[str, Any] | None = None) -> Path:
     """Write :func:`render_reasons` to *path* (``.png`` or ``.svg``); return the path.
 
     Parameters
@@ -157,13 +166,14 @@ def plot_reasons(table: NonresponseTable, path: str | Path, *, overwrite: bool =
         Output file; the extension chooses the format.
     overwrite : bool
         Replace an existing file (otherwise OutputError).
+    provenance : the record to keep in the image's metadata (see :func:`render_domains`).
 
     Returns
     -------
     Path
         The file written.
     """
-    return _write(render_reasons(table, plot_format(path)), path, overwrite)
+    return _write(render_reasons(table, plot_format(path), provenance), path, overwrite)
 
 
 def _write(data: bytes, path: str | Path, overwrite: bool) -> Path:
@@ -186,13 +196,18 @@ def _figure(width: float, height: float) -> Figure:
     return fig
 
 
-def _encode(fig: Figure, fmt: str) -> bytes:
+def _encode(fig: Figure, fmt: str, provenance: Mapping[str, Any] | None = None) -> bytes:
     """Return the figure encoded as *fmt*, with fixed salt and no date so bytes reproduce."""
     import matplotlib
+
+    from wstats.reports.provenance import provenance_text
 
     if fmt not in PLOT_FORMATS.values():
         raise UsageError(f"unknown chart format '{fmt}'; use one of: png, svg")
     metadata: dict[str, Any] = {"Date": None} if fmt == "svg" else {}
+    if provenance:  # without its time: an image's bytes (PNG chunk checksums) must reproduce
+        kept = {k: v for k, v in provenance.items() if k != "created_utc"}
+        metadata["Description"] = provenance_text(kept)
     buf = io.BytesIO()
     with matplotlib.rc_context({"svg.hashsalt": "wstats", "svg.fonttype": "path"}):
         fig.savefig(buf, format=fmt, metadata=metadata)

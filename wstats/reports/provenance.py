@@ -14,7 +14,7 @@ from collections.abc import Mapping, Sequence
 from pathlib import Path
 from typing import Any
 
-__all__ = ["normalize", "provenance", "sha256_file"]
+__all__ = ["normalize", "provenance", "provenance_lines", "provenance_text", "sha256_file"]
 
 _CHUNK = 1 << 20
 
@@ -61,6 +61,28 @@ def provenance(
         "created_utc": _timestamp(time),
     }
     return dict(normalize(record))
+
+
+def provenance_lines(record: Mapping[str, Any] | None) -> list[str]:
+    """Return ``key: value`` lines (sorted, dotted keys, JSON values) for comment headers."""
+    import json
+
+    lines: list[str] = []
+
+    def walk(prefix: str, value: Any) -> None:
+        if isinstance(value, dict) and value:
+            for k, v in value.items():
+                walk(f"{prefix}.{k}" if prefix else k, v)
+        else:
+            lines.append(f"{prefix}: {json.dumps(value, ensure_ascii=False)}")
+
+    walk("", normalize(dict(record or {})))
+    return lines
+
+
+def provenance_text(record: Mapping[str, Any] | None) -> str:
+    """Return the record as text: a ``wstats provenance`` line, then its key: value lines."""
+    return "\n".join(["wstats provenance", *provenance_lines(record)])
 
 
 def normalize(value: Any) -> Any:

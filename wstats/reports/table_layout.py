@@ -112,9 +112,11 @@ class _Layout:
         if stat != "proportion":
             lvl = repr(float(row.p)) if stat == "quantile" else ""
             word = f"quantile {row.p:g}" if stat == "quantile" else _STAT_WORDS[stat]
-            name = f"{label}, {'median' if stat == 'quantile' and row.p == 0.5 else word}"
+            word = "median" if stat == "quantile" and row.p == 0.5 else word
+            name = label if _names_statistic(label, word) else f"{label}, {word}"
             return [self._line(name, "data", {**base, "level": None}, stat, lvl, row)]
-        head = {"label": f"{label}, %", "kind": "section", **base, "level": None}
+        shown = label if _names_statistic(label, "%") else f"{label}, %"
+        head = {"label": shown, "kind": "section", **base, "level": None}
         blank = {c.key: "" for c in self.columns}
         out = [({**head, **blank}, {**head, **dict.fromkeys(blank, math.nan)})]
         for lv in self._levels(i, row):
@@ -147,6 +149,8 @@ class _Layout:
         self.used[stat] = template
         decimals = self.spec.decimals if row.decimals is None else row.decimals
         se_decimals = self.spec.se_decimals if row.decimals is None else row.decimals + 1
+        if stat == "total":  # a total's SE is as large as the total: no more decimals than it
+            se_decimals = min(se_decimals, decimals)
         scale = 100.0 if stat == "proportion" and self.spec.percent else 1.0
         return with_marks(cell_text(template, rec, decimals=decimals, se_decimals=se_decimals,
                                     scale=scale), marks), value
@@ -190,6 +194,15 @@ class _Layout:
         out.append(f"Unweighted n: records in the column's population{where}; weighted N: the "
                    f"sum of their weights ({self.est.design.get('weight', 'weight')}).")
         return [*out, *self.spec.notes]
+
+
+def _names_statistic(label: str, word: str) -> bool:
+    """Tell whether a row label already names its statistic ('Age, median'; 'Deaths, total')."""
+    import re
+
+    last = re.split(r"[,(]", label.lower())[-1]
+    words = {"%": ("%", "percent"), "total": ("total",)}.get(word, (word.lower(),))
+    return any(re.search(rf"(^|\W){re.escape(w)}(\W|$)", last) for w in words)
 
 
 def _level_key(rec: Mapping[str, Any]) -> str:

@@ -255,7 +255,7 @@ class _Spec:
         """Return the row specs; a plain string is a variable with default settings."""
         rows = self.doc.get("rows")
         if not isinstance(rows, list) or not rows:
-            raise self.fail("rows", "missing; list the variables, e.g. rows = [\"AGE_YRS\"] "
+            raise self.fail("rows", "missing; list the variables, e.g. rows = [\"dm_age\"] "
                             "or [[rows]] tables")
         return tuple(self.row(r, f"rows[{i}]") for i, r in enumerate(rows))
 

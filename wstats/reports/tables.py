@@ -198,7 +198,8 @@ def _estimate_all(spec: TableSpec, data: Dataset, design: Design) -> EstimateTab
     cols = [c for c in stacked.columns if c not in spec.by]
     at = cols.index("p") + 1
     stacked = stacked[[*cols[:at], *spec.by, *cols[at:]]]
-    settings = {**first.settings, "level": spec.level, "proportion_ci": spec.proportion_ci}
+    settings = {**first.settings, "level": spec.level, "proportion_ci": spec.proportion_ci,
+                "domains": list(spec.by)}
     return EstimateTable.from_frame(stacked, by=spec.by, level=spec.level, design=first.design,
                          settings=settings)
 
@@ -263,7 +264,6 @@ def _methods(spec: TableSpec, est: EstimateTable, codebook: Codebook | None) -> 
     return methods_paragraph(
         est.design, est.settings, totals, (min(rates), max(rates)) if rates else None,
         spec.data.name, spec.reliability, recodes=_recodes(spec, codebook),
-        reason_descriptions=dict(codebook.reasons) if codebook else None,
     )
 
 

@@ -1,0 +1,121 @@
+"""Publication tables on a terminal: column groups side by side, else panels of columns.
+
+A table whose columns fit the width is drawn once, its row labels wrapped if that is what
+makes it fit. Otherwise it is cut into column panels, each repeating the row labels; a
+grouping variable's name is drawn once over its columns (``──── Sex ────``), not on each.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Iterator, Sequence
+from typing import TYPE_CHECKING
+
+from rich.cells import cell_len
+
+if TYPE_CHECKING:
+    from rich.console import RenderableType
+
+    from wstats.render._grid import Grid
+
+__all__ = ["panels"]
+
+_GAP = 2  # between two columns: one space of padding and the column separator
+_LABEL_MIN = 20  # row labels are wrapped down to this width before columns are split off
+
+
+def panels(g: Grid, rows: Sequence[tuple[str, ...]], kinds: Sequence[str],
+           width: int) -> Iterator[RenderableType]:
+    """Yield, per panel, the line of group names (if any) and the table."""
+    widths = _widths(g, rows)
+    for label, cols in _layout(widths, width):
+        sized = {0: label, **{i: widths[i] for i in cols}}
+        if g.spans:
+            yield _span_line(g, [0, *cols], sized)
+        yield _table(g, [0, *cols], sized, rows, kinds)
+
+
+def _widths(g: Grid, rows: Sequence[tuple[str, ...]]) -> list[int]:
+    """Return each column's natural width: its longest cell or header."""
+    return [max([cell_len(c.header)] + [cell_len(r[i]) for r in rows if i < len(r)])
+            for i, c in enumerate(g.columns)]
+
+
+def _layout(widths: list[int], width: int) -> list[tuple[int, list[int]]]:
+    """Return (label width, column indexes) per panel: one panel when the columns fit."""
+    others = list(range(1, len(widths)))
+    need = sum(widths[i] + _GAP for i in others)
+    if widths[0] + need <= width:
+        return [(widths[0], others)]
+    label = min(widths[0], max(_LABEL_MIN, width - need))
+    if label + need <= width:
+        return [(label, others)]
+    label = min(widths[0], max(_LABEL_MIN, width // 3))
+    out: list[tuple[int, list[int]]] = []
+    current: list[int] = []
+    used = label
+    for i in others:
+        if current and used + _GAP + widths[i] > width:
+            out.append((label, current))
+            current, used = [], label
+        current.append(i)
+        used += _GAP + widths[i]
+    out.append((label, current))
+    return out
+
+
+def _span_line(g: Grid, cols: list[int], sized: dict[int, int]) -> RenderableType:
+    """Return the line naming each group over its columns, centred in a rule.
+
+    A name longer than its columns reaches left into blank space (the row labels' part of
+    the line, or a group without a name) before it is shortened with an ellipsis.
+    """
+    from rich.text import Text
+
+    group = {i: s.text for s in g.spans for i in range(s.start, s.stop)}
+    line = [" "] * (sized[0] + _GAP)
+    free, k = 0, 1  # free: the first cell no name has taken
+    while k < len(cols):
+        name, j = group.get(cols[k]), k
+        while j < len(cols) and group.get(cols[j]) == name:
+            j += 1
+        span = sum(sized[c] for c in cols[k:j]) + _GAP * (j - k - 1)
+        start = len(line)
+        line += [" "] * span
+        if name:
+            text = _ruled(name, span, room=start + span - free)
+            line[start + span - len(text):start + span] = list(text)
+            free = start + span
+        line += [" "] * _GAP
+        k = j
+    return Text("".join(line).rstrip())
+
+
+def _ruled(name: str, span: int, room: int) -> str:
+    """Return *name* centred in a rule of *span* cells, or as much as *room* allows."""
+    if len(name) + 2 <= span:
+        fill = span - len(name) - 2
+        return "─" * (fill // 2) + f" {name} " + "─" * (fill - fill // 2)
+    if len(name) <= room:
+        return name
+    return name[: max(room - 1, 0)] + "…"
+
+
+def _table(g: Grid, cols: list[int], sized: dict[int, int], rows: Sequence[tuple[str, ...]],
+           kinds: Sequence[str]) -> RenderableType:
+    """Return one rich Table of the chosen columns at the chosen widths."""
+    from rich import box
+    from rich.table import Table
+    from rich.text import Text
+
+    table = Table(box=box.SIMPLE_HEAD, show_edge=False, pad_edge=False, expand=False,
+                  padding=(0, 1, 0, 0))
+    for i in cols:
+        numeric = g.columns[i].align == "r"
+        table.add_column(Text(g.columns[i].header), justify="right" if numeric else "left",
+                         width=sized[i], no_wrap=numeric, overflow="fold")
+    for row, kind in zip(rows, kinds, strict=True):
+        cells = [Text(row[i] if i < len(row) else "") for i in cols]
+        if kind in ("section", "summary"):
+            cells[0].stylize("bold")
+        table.add_row(*cells)
+    return table
