@@ -72,9 +72,20 @@ def _wstats() -> list[str]:
     return [sys.executable, "-m", "wstats", "--quiet"]
 
 
+def demo_stamp() -> str:
+    """Return a short digest of the demo generator's sources: files built by another are stale."""
+    import hashlib
+
+    digest = hashlib.sha256()
+    for path in sorted((ROOT / "demo").rglob("*")):
+        if path.suffix in (".py", ".toml") and "__pycache__" not in path.parts:
+            digest.update(path.relative_to(ROOT).as_posix().encode() + path.read_bytes())
+    return digest.hexdigest()[:10]
+
+
 def build(cache: Path, rows: int) -> dict[str, Path]:
-    """Write the demo-scenario files for *rows* rows once; return their paths."""
-    folder = cache / f"tbchs_{rows}x{COLUMNS}"
+    """Write the demo-scenario files for *rows* rows once (per demo version); return them."""
+    folder = cache / f"tbchs_{rows}x{COLUMNS}_{demo_stamp()}"
     xpt = folder / "tbchs_sample.xpt"
     if not xpt.exists():
         print(f"building {rows:,} x {COLUMNS} demo-scenario file in {folder} (once; several "
