@@ -188,39 +188,6 @@ def test_row_subsets_match_pyreadstat(
     assert table.columns["TEXT"].data.tolist() == oracle["TEXT"][: end - start].tolist()
 
 
-def test_each_chunk_asks_for_the_file_ahead_of_it(
-    written: tuple[Path, pd.DataFrame], monkeypatch: pytest.MonkeyPatch
-) -> None:
-    # posix_fadvise(2): POSIX_FADV_WILLNEED starts reading the range into the page cache
-    # (Linux man page, from memory); a hint only: the data must not change with or without it
-    import os
-
-    path, _ = written
-    whole = read_xpt(path)
-    advised: list[tuple[int, int, int]] = []
-    monkeypatch.setattr(_xpt, "_CHUNK_BYTES", 1000)
-    monkeypatch.setattr(os, "posix_fadvise", lambda fd, at, n, how: advised.append((at, n, how)))
-    chunked = read_xpt(path, threads=1)
-    starts = [at for at, _, _ in advised]
-    step = 1000 // 52 * 52  # whole observations of 52 bytes (8 + 8 + 8 + 20 + 8) per chunk
-    assert starts == list(range(starts[0], starts[0] + len(starts) * step, step))
-    assert len(starts) == -(-500 // (1000 // 52))  # one per chunk, each at its own offset
-    assert {(n, how) for _, n, how in advised} == {(_xpt._ADVISE_AHEAD, os.POSIX_FADV_WILLNEED)}
-    for refuse in (OSError("not here"), None):
-        if refuse is None:
-            monkeypatch.delattr(os, "posix_fadvise")  # a system without the call
-        else:
-            def fail(*_: object, error: OSError = refuse) -> None:
-                raise error
-
-            monkeypatch.setattr(os, "posix_fadvise", fail)
-        again = read_xpt(path, threads=2)
-        for name, column in again.columns.items():
-            np.testing.assert_array_equal(column.data, whole.columns[name].data)
-    for name, column in chunked.columns.items():
-        np.testing.assert_array_equal(column.data, whole.columns[name].data)
-
-
 @pytest.mark.parametrize("threads", [1, 2])
 def test_many_small_chunks_give_the_same_result(
     written: tuple[Path, pd.DataFrame], threads: int, monkeypatch: pytest.MonkeyPatch

@@ -54,7 +54,6 @@ from wstats.readers.xpt_header import (
 
 __all__ = ["XptUnsupported", "read_xpt", "xpt_file_columns"]
 
-_ADVISE_AHEAD = 64 * 2**20  # bytes of the file asked for ahead of each chunk (cold reads)
 _CHUNK_BYTES = 4 * 2**20  # 0.5-16 MB measured on a 1 GB file: 4-8 MB used least CPU
 _MEMBER_HEADER = b"HEADER RECORD*******MEMBER  HEADER RECORD!!!!!!!"
 _MEMBER_BYTES = np.frombuffer(_MEMBER_HEADER, dtype=np.uint8)
@@ -262,7 +261,6 @@ def _stream(
         end = min(begin + per_chunk, stop)
         nbytes, offset = (end - begin) * length, header.data_start + begin * length
         buf = buffers.get()
-        _advise_ahead(fd, offset)
         try:
             want = min(nbytes + _LOOKAHEAD, header.size - offset)
             got = _read_into(fd, memoryview(buf)[:want], offset)
@@ -286,24 +284,6 @@ def _stream(
             with ThreadPoolExecutor(threads) as pool:
                 for nbytes in pool.map(work, starts):
                     advance(nbytes)
-
-
-def _advise_ahead(fd: int, offset: int) -> None:
-    """Tell the kernel the next ``_ADVISE_AHEAD`` bytes from *offset* will be read soon.
-
-    On a file that is not in the page cache the disk then works on the chunks to come while
-    this one is converted: A from a cold cache 1.17 -> 0.92 s (median of 9, against 0.71 s
-    for a cold sequential read, docs/performance.md). A window, not the whole file, so a file
-    larger than memory does not push out its own pages before they are read. Pages already
-    cached cost nothing; where the call is missing (not POSIX) or refused, nothing happens.
-    """
-    advise = getattr(os, "posix_fadvise", None)
-    if advise is None:
-        return
-    try:
-        advise(fd, offset, _ADVISE_AHEAD, os.POSIX_FADV_WILLNEED)
-    except OSError:  # e.g. a pipe or a file system that refuses advice: only a hint
-        pass
 
 
 def _check_member(buf: bytearray, got: int, offset: int, path: str, starts: np.ndarray) -> None:
