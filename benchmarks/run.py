@@ -48,6 +48,7 @@ from measure import (  # noqa: E402  (this folder is not a package)
     median_se,
     parent_peak_mb,
     resident_share,
+    settle_in_cache,
 )
 
 ROWS, COLUMNS = 464_664, 283
@@ -302,6 +303,8 @@ def main() -> None:
     print(f"file: {files['xpt']} ({files['xpt'].stat().st_size / 2**20:,.0f} MiB), A reads "
           f"{len(raw_a)} raw columns, D {len(items)} item variables by {DOMAIN}; this "
           f"process's peak (every case's floor) {parent_peak_mb():.0f} MB")
+    for path in (files["xpt"], files["parquet"], double["xpt"]):
+        settle_in_cache(path)  # the same page-cache state whatever came before (measure.py)
     repeats = {"E": args.repeat_slow, "A": args.repeat_memory, "A2": args.repeat_memory}
     cases = commands(files, double, raw_a, items)
     wanted = args.only.split(",") if args.only else list(cases)

@@ -89,3 +89,13 @@ def test_drop_from_cache_empties_the_page_cache_of_a_file(tmp_path: Path) -> Non
     assert share is not None and share < 0.01
     path.read_bytes()
     assert measure.resident_share(path) == pytest.approx(1.0)
+
+
+@pytest.mark.skipif(shutil.which("fincore") is None or shutil.which("dd") is None,
+                    reason="needs util-linux fincore and dd")
+def test_settling_a_file_leaves_it_wholly_in_the_page_cache(tmp_path: Path) -> None:
+    path = tmp_path / "data.bin"
+    path.write_bytes(b"\x02" * (8 << 20))
+    measure.drop_from_cache(path)
+    assert measure.resident_share(path) < 0.01
+    assert measure.settle_in_cache(path) == pytest.approx(1.0)
