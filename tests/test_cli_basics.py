@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import os
 import re
 import subprocess
 import sys
@@ -135,3 +136,19 @@ def test_worker_threads_share_one_malloc_arena_on_glibc(monkeypatch: pytest.Monk
 
     monkeypatch.setattr(ctypes, "CDLL", no_libc)
     assert cli._one_malloc_arena() is False  # another C library: left alone, no error
+
+
+def test_the_command_line_runs_openblas_on_one_thread_unless_told_otherwise() -> None:
+    # OPENBLAS_NUM_THREADS is read when numpy loads OpenBLAS (OpenBLAS README, "Setting the
+    # number of threads using environment variables", from memory); numpy.show_runtime would
+    # need threadpoolctl, so the variable the library reads is checked in a fresh process.
+    code = ("import os, sys\nfrom wstats.cli.main import main\ntry:\n    main(['--version'])\n"
+            "except SystemExit:\n    pass\n"
+            "print(os.environ['OPENBLAS_NUM_THREADS'], 'numpy' in sys.modules)")
+    for preset, want in ((None, "1 False"), ("2", "2 False")):
+        env = {k: v for k, v in os.environ.items() if k != "OPENBLAS_NUM_THREADS"}
+        if preset:
+            env["OPENBLAS_NUM_THREADS"] = preset
+        out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
+                             env=env, check=True).stdout.split()
+        assert " ".join(out[-2:]) == want  # after the version line

@@ -117,13 +117,15 @@ def check_special_codes(columns: Mapping[str, DecodedColumn], skip: Iterable[str
     and only when their largest valid value is a candidate code (a cheap filter: the full
     spike test of ``codebook draft`` runs on those few).
     """
+    described = set(skip)
+    looked_at = [(name, col) for name, col in columns.items()
+                 if name not in described and col.kind in ("continuous", "count")]
+    if not looked_at:
+        return []  # without importing the draft module (a few ms of every run)
     from wstats.decoding.draft import CANDIDATES, suspected_codes
 
     out: list[str] = []
-    described = set(skip)
-    for name, col in columns.items():
-        if name in described or col.kind not in ("continuous", "count"):
-            continue
+    for name, col in looked_at:
         if not len(col.values) or float(np.fmax.reduce(col.values)) not in CANDIDATES:
             continue  # the largest valid value (NaN where not valid) is no candidate code
         v = col.values[col.valid]

@@ -292,8 +292,6 @@ def _read_xpt(
     path: Path, columns: Sequence[str] | None, rows: Rows | None, progress: bool, encoding: str
 ) -> RawTable:
     """Read a transport file with the fast reader, falling back to pyreadstat."""
-    from wstats.readers.stat import read_stat
-
     if is_utf8(encoding):
         try:
             from wstats.readers.xpt import XptUnsupported, read_xpt
@@ -306,21 +304,25 @@ def _read_xpt(
                 pass
             else:
                 return fast
+    from wstats.readers.stat import read_stat  # the fallback only: its module costs 6 ms
+
     return read_stat(path, "xpt", columns, rows, progress, encoding)
 
 
 def _xpt_columns(path: Path, encoding: str) -> list[str]:
     """List a transport file's columns with the fast reader, falling back to pyreadstat."""
-    from wstats.readers.stat import stat_columns
+    if is_utf8(encoding):
+        try:
+            from wstats.readers.xpt import XptUnsupported, xpt_file_columns
+        except ImportError:
+            pass
+        else:
+            try:
+                names: list[str] = xpt_file_columns(path)
+            except XptUnsupported:
+                pass
+            else:
+                return names
+    from wstats.readers.stat import stat_columns  # the fallback only
 
-    if not is_utf8(encoding):
-        return stat_columns(path, "xpt", encoding)
-    try:
-        from wstats.readers.xpt import XptUnsupported, xpt_file_columns
-    except ImportError:
-        return stat_columns(path, "xpt", encoding)
-    try:
-        names: list[str] = xpt_file_columns(path)
-    except XptUnsupported:
-        return stat_columns(path, "xpt", encoding)
-    return names
+    return stat_columns(path, "xpt", encoding)

@@ -1,7 +1,9 @@
 """Parquet files, including the wstats cache that :func:`wstats.readers.cache.convert` writes.
 
 Cache layout (our own): one Parquet column per data column (float64 for numeric columns,
-UTF-8 string for character columns), zstd-compressed. Tagged missing values are kept in an
+UTF-8 string for character columns), zstd-compressed, in row groups of ``ROW_GROUP`` rows with
+each column's statistics (pyarrow's default), so that a reader takes only the columns and the
+row groups it needs. Tagged missing values are kept in an
 extra ``uint8`` column named ``__tags__<name>`` beside each column that has tags (a column per
 row rather than metadata, so it stays cheap for large files and is read only with its column);
 the ``__tags__`` prefix is reserved and such columns are never listed as data. Everything
@@ -13,6 +15,11 @@ else the source file said is JSON under the key ``wstats`` of the file's key-val
 
 Any other Parquet file reads too: numeric and boolean columns become float64 (nulls NaN),
 string columns text (nulls ""), with no labels.
+
+Reading imports pyarrow's core and Parquet modules only: float64 columns are copied straight
+from the Arrow buffers and text through Python lists, because pyarrow's ``to_numpy`` imports
+pandas (about 0.3 s) and ``cast`` its compute module (about 30 ms; needed only for other
+Parquet files' integer, boolean or float32 columns).
 """
 
 from __future__ import annotations
@@ -30,11 +37,14 @@ from wstats.readers.raw import EXACT_LIMIT, RawColumn, RawTable
 
 if TYPE_CHECKING:
     import pyarrow as pa
+    import pyarrow.parquet as pq
 
-__all__ = ["META_KEY", "TAGS_PREFIX", "parquet_columns", "read_parquet", "write_parquet"]
+__all__ = ["META_KEY", "ROW_GROUP", "TAGS_PREFIX", "parquet_columns", "read_parquet",
+           "write_parquet"]
 
 META_KEY = b"wstats"
 TAGS_PREFIX = "__tags__"
+ROW_GROUP = 262_144  # rows per row group the cache is written in (the decoding tile's size)
 _VERSION = 1
 
 
@@ -49,16 +59,19 @@ def read_parquet(
     rows: Rows | None = None,
     progress: bool = False,
 ) -> RawTable:
-    """Read a Parquet file (a wstats cache or any other) into a RawTable."""
-    schema = _schema(path)
+    """Read a Parquet file (a wstats cache or any other) into a RawTable.
+
+    Only the named columns are read, and of them only the row groups that hold *rows*.
+    """
+    handle = _open(path)
+    schema = handle.schema_arrow
     every = [n for n in schema.names if not n.startswith(TAGS_PREFIX)]
     names = select_columns(path, every, columns)
     tagged = [TAGS_PREFIX + n for n in names if TAGS_PREFIX + n in schema.names]
-    table, first = _read_table(path, names + tagged, progress, rows)
+    groups, skip, count = _row_groups(handle, rows)
+    table = _read_table(handle, path, names + tagged, groups, progress)
     if rows is not None:
-        start, stop = rows
-        start -= first  # the row groups read begin at row *first*
-        table = table.slice(start, None if stop is None else max(stop - first - start, 0))
+        table = table.slice(skip, count)
     info = _cache_info(path, schema)
     described = info.get("columns", {})
     cols = {n: _raw_column(path, table, n, described.get(n, {})) for n in names}
@@ -98,59 +111,63 @@ def write_parquet(table: RawTable, sink: str | IO[bytes], source_sha256: str | N
         "columns": {name: _describe(col) for name, col in table.columns.items()},
     }
     out = pa.table(arrays).replace_schema_metadata({META_KEY: json.dumps(info).encode()})
-    pq.write_table(out, sink, compression="zstd")
+    pq.write_table(out, sink, compression="zstd", row_group_size=ROW_GROUP,
+                   write_statistics=True)
 
 
 def _schema(path: Path) -> pa.Schema:
     """Read a Parquet file's schema, turning pyarrow failures into ReadError."""
+    return _open(path).schema_arrow
+
+
+def _open(path: Path) -> pq.ParquetFile:
+    """Open a Parquet file (its footer is read once), turning pyarrow failures into ReadError."""
     import pyarrow as pa
     import pyarrow.parquet as pq
 
     try:
-        return pq.read_schema(path)
+        return pq.ParquetFile(path)
     except (pa.ArrowException, OSError, ValueError) as exc:
         raise _damaged(path, exc) from exc
 
 
-def _read_table(path: Path, names: list[str], progress: bool, rows: Rows | None = None
-                ) -> tuple[pa.Table, int]:
-    """Read the named columns, row group by row group behind a progress bar when asked.
+def _row_groups(handle: pq.ParquetFile, rows: Rows | None) -> tuple[list[int], int, int | None]:
+    """Return the row groups holding *rows*, the rows to skip in the first, and the count.
 
-    With *rows*, only the row groups that hold them are read (a partition of a large file
-    costs its own rows, not the file's); returns the table and the row its first group
-    begins at.
+    ``rows`` is ``(start, stop)`` (stop None = to the end); None means every row group.
     """
+    meta = handle.metadata
+    if rows is None:
+        return list(range(meta.num_row_groups)), 0, None
+    start, stop = rows
+    first = 0
+    groups = []
+    for i in range(meta.num_row_groups):  # a loop over row groups (a few per million rows)
+        n = meta.row_group(i).num_rows
+        if first + n > start and (stop is None or first < stop):
+            groups.append(i)
+        first += n
+    begin = sum(meta.row_group(i).num_rows for i in range(groups[0])) if groups else 0
+    skip = max(start - begin, 0)
+    return groups, skip, None if stop is None else max(stop - max(start, begin), 0)
+
+
+def _read_table(handle: pq.ParquetFile, path: Path, names: list[str], groups: list[int],
+                progress: bool) -> pa.Table:
+    """Read the named columns of *groups*, behind a progress bar when asked."""
     import pyarrow as pa
-    import pyarrow.parquet as pq
 
     try:
-        handle = pq.ParquetFile(path)
-        groups, first = _groups(handle.metadata, rows)
-        if rows is None and (not progress or len(groups) < 2):
-            return handle.read(columns=names), 0
+        if not progress or len(groups) < 2:
+            return handle.read_row_groups(groups, columns=names)
         parts = []
         with progress_bar(progress, f"reading {path.name}", len(groups)) as advance:
-            for k, i in enumerate(groups):
+            for done, i in enumerate(groups, 1):
                 parts.append(handle.read_row_group(i, columns=names))
-                advance(k + 1)
-        if not parts:
-            return handle.schema_arrow.empty_table().select(names), first
-        return pa.concat_tables(parts), first
+                advance(done)
+        return pa.concat_tables(parts)
     except (pa.ArrowException, OSError, ValueError) as exc:
         raise _damaged(path, exc) from exc
-
-
-def _groups(meta: Any, rows: Rows | None) -> tuple[list[int], int]:
-    """Return the row groups holding *rows* (all without) and the first one's first row."""
-    sizes = [meta.row_group(i).num_rows for i in range(meta.num_row_groups)]
-    if rows is None:
-        return list(range(len(sizes))), 0
-    start, stop = rows
-    ends = np.cumsum(sizes)
-    begins = ends - np.asarray(sizes, dtype=ends.dtype)
-    keep = (ends > start) & (True if stop is None else begins < stop)
-    chosen = np.flatnonzero(keep).tolist()
-    return chosen, int(begins[chosen[0]]) if chosen else int(ends[-1]) if len(ends) else 0
 
 
 def _damaged(path: Path, exc: Exception) -> ReadError:
@@ -188,7 +205,7 @@ def _raw_column(path: Path, table: pa.Table, name: str, info: dict[str, Any]) ->
     tag_name = TAGS_PREFIX + name
     tags = None
     if tag_name in table.column_names:
-        tags = table.column(tag_name).to_numpy().astype(np.uint8)
+        tags = _uint8(table.column(tag_name))
     return RawColumn(
         name=name,
         data=data,
@@ -205,13 +222,13 @@ def _raw_column(path: Path, table: pa.Table, name: str, info: dict[str, Any]) ->
 def _beyond_float(column: pa.ChunkedArray) -> bool:
     """Tell whether an integer column holds a value float64 cannot hold exactly."""
     import pyarrow as pa
-    import pyarrow.compute as pc
 
     kind = column.type
     if pa.types.is_dictionary(kind):
         kind = kind.value_type
     if not pa.types.is_integer(kind) or kind.bit_width < 54:
         return False
+    import pyarrow.compute as pc  # only for 64-bit integers: the cache's numbers are float64
     bounds = pc.min_max(column if kind == column.type else column.cast(kind))
     low, high = bounds["min"].as_py(), bounds["max"].as_py()
     return low is not None and max(abs(low), abs(high)) > EXACT_LIMIT
@@ -237,10 +254,12 @@ def _to_numpy(path: Path, name: str, column: pa.ChunkedArray) -> tuple[np.ndarra
         column = column.cast(kind.value_type)
         kind = column.type
     if pa.types.is_integer(kind) or pa.types.is_floating(kind) or pa.types.is_boolean(kind):
-        return _float64(column.cast(pa.float64()).combine_chunks()), True
+        if kind != pa.float64():  # not a cache's own column: cast (imports pyarrow.compute)
+            column = column.cast(pa.float64())
+        return _chunks_float64(column), True
     if pa.types.is_string(kind) or pa.types.is_large_string(kind):
-        text = np.asarray(column.to_numpy(zero_copy_only=False), dtype=object)  # imports pandas
-        text[np.asarray(column.is_null().to_numpy(zero_copy_only=False), dtype=bool)] = ""
+        text = np.empty(len(column), dtype=object)
+        text[:] = ["" if v is None else v for v in column.to_pylist()]
         return text, False
     raise ColumnError(
         f"column '{name}' of '{path}' has type {kind}, which wstats cannot use; "
@@ -248,21 +267,53 @@ def _to_numpy(path: Path, name: str, column: pa.ChunkedArray) -> tuple[np.ndarra
     )
 
 
-def _float64(array: pa.Array) -> np.ndarray:
-    """Return a float64 Arrow array as a writable numpy copy, nulls as NaN.
+def _chunks_float64(column: pa.ChunkedArray) -> np.ndarray:
+    """Return a float64 Arrow column (one chunk per row group) as one writable numpy array."""
+    out = np.empty(len(column))
+    at = 0
+    for chunk in column.chunks:  # a loop over row groups, not rows
+        _float64(chunk, out[at : at + len(chunk)])
+        at += len(chunk)
+    return out
+
+
+def _float64(array: pa.Array, out: np.ndarray | None = None) -> np.ndarray:
+    """Return a float64 Arrow array as a writable numpy copy (into *out*), nulls as NaN.
 
     Straight from the Arrow buffers: pyarrow's own ``to_numpy`` imports pandas (0.3 s).
     """
     n = len(array)
+    values = np.empty(n) if out is None else out
     if n == 0:
-        return np.zeros(0)
+        return values
     data = array.buffers()[1]
-    values = np.frombuffer(data, dtype=np.float64, count=n, offset=array.offset * 8).copy()
+    values[:] = np.frombuffer(data, dtype=np.float64, count=n, offset=array.offset * 8)
     if array.null_count:
-        bits = np.unpackbits(np.frombuffer(array.buffers()[0], dtype=np.uint8),
-                             bitorder="little")
-        values[bits[array.offset : array.offset + n] == 0] = np.nan
+        values[~_valid_bits(array)] = np.nan
     return values
+
+
+def _valid_bits(array: pa.Array) -> np.ndarray:
+    """Return an Arrow array's validity bitmap as booleans (True = not null)."""
+    bits = np.unpackbits(np.frombuffer(array.buffers()[0], dtype=np.uint8), bitorder="little")
+    return bits[array.offset : array.offset + len(array)].astype(bool)
+
+
+def _uint8(column: pa.ChunkedArray) -> np.ndarray:
+    """Return a cache's uint8 tag column as one numpy array (it has no nulls)."""
+    import pyarrow as pa
+
+    if column.type != pa.uint8() or column.null_count:
+        raise ReadError("a missing-value tag column of this wstats cache is damaged; "
+                        "convert again")
+    out = np.empty(len(column), dtype=np.uint8)
+    at = 0
+    for chunk in column.chunks:  # a loop over row groups, not rows
+        n = len(chunk)
+        out[at : at + n] = np.frombuffer(chunk.buffers()[1], dtype=np.uint8, count=n,
+                                         offset=chunk.offset)
+        at += n
+    return out
 
 
 def _describe(col: RawColumn) -> dict[str, Any]:
