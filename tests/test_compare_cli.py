@@ -227,3 +227,46 @@ def test_analysis_file_runs_a_comparison(survey: Path, tmp_path: Path) -> None:
     assert [r["p_adjusted"] for r in out["differences"]] == pytest.approx(
         [r["p_adjusted"] for r in lib.differences.records()], nan_ok=True)
     assert out["settings"]["standard"] == "us2000-adults18"
+
+
+@pytest.mark.parametrize("command", ["compare", "bounds"])
+def test_commands_without_a_dask_path_refuse_the_engine_in_one_line(
+        survey: Path, command: str, capsys: pytest.CaptureFixture[str]) -> None:
+    # the Dask engine either gives the in-memory numbers or says what it lacks (issue 16)
+    args = [command, str(survey), "Q", "--codebook", str(survey.parent / "cb.toml"),
+            "--engine", "dask", *(["--by", "G"] if command == "compare" else [])]
+    code = main(args)
+    err = capsys.readouterr().err
+    assert code != 0 and len(err.strip().splitlines()) == 1
+    assert f"{command} does not run on the Dask engine yet" in err
+    assert "leave out --engine dask" in err
+
+
+def test_reasons_leave_not_applicable_out_of_the_asked_by_default(tmp_path: Path) -> None:
+    # NCES Statistical Standards, Standard 1-3: the denominator excludes rows outside the
+    # item's universe; not_applicable is such a reason by default, as in `nonresponse`
+    from wstats import nonresponse
+    from wstats.decoding.load import read
+
+    rng = np.random.default_rng(5)
+    n = 400
+    pd.DataFrame({"W": rng.uniform(1, 3, n), "ST": np.repeat([0.0, 1.0], n // 2),
+                  "CL": np.tile(np.repeat([0.0, 1.0, 2.0, 3.0], 50), 2),
+                  "G": rng.choice([1.0, 2.0], n),
+                  "Q": rng.choice([1.0, 2.0, 7.0, 8.0], n, p=[.5, .3, .05, .15])}
+                 ).to_csv(tmp_path / "s.csv", index=False)
+    (tmp_path / "cb.toml").write_text(
+        '[variables.Q]\nkind = "categorical"\n'
+        'codes = { 7 = "dont_know", 8 = "not_applicable" }\n', encoding="utf-8")
+    ds = read(tmp_path / "s.csv", ["W", "ST", "CL", "G", "Q"], tmp_path / "cb.toml")
+    r = compare(ds, DESIGN, ["Q"], by="G", reasons=True)
+    nr = nonresponse(ds, DESIGN, ["Q"], by=["G"])
+    rate = next(row for row in r.differences.rows if row["statistic"] == "nonresponse-rate")
+    got = nr.frame["nonresponse_rate"].to_numpy()
+    assert np.isclose(rate["estimate_a"], got[1]) and np.isclose(rate["estimate_b"], got[2])
+    # by hand: don't know among the rows whose reason is not not_applicable, weighted
+    q, w, g = ds["Q"].reasons, ds["W"].values, ds["G"].values
+    asked = q != ds.vocabulary.code("not_applicable")
+    dk = q == ds.vocabulary.code("dont_know")
+    first = (g == 1) & asked
+    assert np.isclose(rate["estimate_a"], w[first & dk].sum() / w[first].sum())

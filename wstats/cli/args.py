@@ -251,12 +251,13 @@ def add_compare_args(p: argparse.ArgumentParser) -> None:
                         "up (default) or Satterthwaite's from each period's own df")
     g.add_argument("--reasons", action="store_true",
                    help="also compare item nonresponse and its reasons across the groups")
-    g.add_argument("--not-asked", default="skipped", metavar="REASONS",
-                   help="with --reasons: reasons that put a row outside the item, like a skip "
-                        "(default skipped; e.g. skipped,not_applicable)")
+    g.add_argument("--not-asked", default="skipped,not_applicable", metavar="REASONS",
+                   help="with --reasons: reasons that put a row outside the item's universe "
+                        "(default skipped,not_applicable, as in nonresponse)")
     _add_subpopulation_options(g)
     g.add_argument("--level", type=float, default=0.95, help="confidence level (default 0.95)")
     _add_age_options(g)
+    _add_engine_options(p)
     _add_output_options(p, ("table", "csv", "json", "markdown"))
 
 
@@ -359,6 +360,7 @@ def add_bounds_args(p: argparse.ArgumentParser) -> None:
     p.add_argument("--level", type=float, default=0.95, help="confidence level (default 0.95)")
     p.add_argument("--standard", default="nchs-2017", metavar="NAME",
                    help="reliability standard: nchs-2017 (default), rse-30, none")
+    _add_engine_options(p)
     _add_output_options(p, ("table", "csv", "json", "markdown"))
 
 

@@ -91,7 +91,16 @@ def _reliability_name(args: argparse.Namespace) -> str:
     return "nchs-2017"
 
 
+def _in_memory_only(args: argparse.Namespace, command: str, what: str) -> None:
+    """Refuse --engine dask for a command the Dask engine does not run yet, saying why."""
+    if args.engine != "memory":
+        raise UsageError(f"{command} does not run on the Dask engine yet ({what} need the "
+                         "rows in memory); leave out --engine dask to run it in memory")
+
+
 def _run_compare(args: argparse.Namespace) -> int:
+    _in_memory_only(args, "compare", "the covariance of the group estimates and Rao-Scott's "
+                    "design effects")
     parse_rows(args.rows)
     paths = data_paths(args)  # several files: a glob, a folder or paths before VAR
     _check_outputs(args, [*paths, args.codebook, args.standard])
@@ -158,6 +167,7 @@ def _run_nonresponse(args: argparse.Namespace) -> int:
 
 
 def _run_bounds(args: argparse.Namespace) -> int:
+    _in_memory_only(args, "bounds", "the bounds")
     parse_rows(args.rows)
     paths = data_paths(args)
     _check_outputs(args, [*paths, args.codebook])

@@ -16,6 +16,7 @@ from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
+from wstats.decoding.reasons import NOT_ASKED
 from wstats.errors import EstimationError, UsageError, did_you_mean
 from wstats.estimation.contrasts import ADJUSTMENTS, adjust_p
 from wstats.estimation.covariance import Covariance, joint_covariance
@@ -95,7 +96,7 @@ def compare(
     level: float = 0.95,
     age_adjust: str | None = None,
     standard: str | Standard | None = None,
-    not_asked: Sequence[str] = ("skipped",),
+    not_asked: Sequence[str] = NOT_ASKED,
     period_df: str = "sum",
 ) -> Comparison:
     """Compare groups: differences with design-based SEs, global tests, trends, reasons.
