@@ -449,3 +449,19 @@ def test_the_methods_paragraph_says_how_files_were_pooled() -> None:
             "proportional to its rows (period1 0.5, period2 0.5), so totals describe an "
             "average period, not the sum of the periods; strata and PSUs were kept distinct "
             "per file, so the files count as independent samples.") in text
+
+
+def test_a_change_between_two_of_three_periods_has_their_own_df() -> None:
+    # REFERENCES §16: df of a change d1 + d2 by default: the two periods compared, not every
+    # file's df (here d = (3 strata x 3 PSUs - 3) = 6 per period: 12, not the pooled 18);
+    # the global test across all periods keeps the pooled design's df (sum over files)
+    from wstats.reports.compare import compare
+
+    data = _pooled(_period(80), _period(81), _period(82))
+    result = compare(data, DESIGN, ["y"], by="_file")
+    per = estimate(data, DESIGN, ["y"], by=["_file"])
+    d = list(per.design["pool"]["df_per_file"].values())
+    assert d == [6.0, 6.0, 6.0]
+    assert [row["df"] for row in result.differences.rows] == [12.0, 12.0]
+    wald = next(row for row in result.tests.rows if row["test"] == "wald")
+    assert wald["df2"] == pytest.approx(18 - 3 + 2)

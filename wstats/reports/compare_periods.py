@@ -1,6 +1,7 @@
 """The degrees of freedom of a change between pooled periods (``compare --period-df``).
 
-``sum`` keeps the design df, the files' df added up; ``satterthwaite`` gives each change
+``sum`` gives a change the df of the two periods compared added up, d_a + d_b (with two
+files, the pooled design's df); ``satterthwaite`` gives each change
 (v_a+v_b)^2/(v_a^2/d_a + v_b^2/d_b) from the two periods' variances and own df
 (REFERENCES §16; :func:`wstats.design.pooling.change_df`).
 """
@@ -31,9 +32,13 @@ def period_pair_df(by: str, labels: Sequence[str], design: Mapping[str, Any], ru
     if rule not in PERIOD_DF_RULES:
         raise UsageError(f"period df '{rule}' is not one of {', '.join(PERIOD_DF_RULES)}"
                          f"{did_you_mean(rule, PERIOD_DF_RULES)}")
-    if rule == "sum":
-        return None
     pool = design.get("pool") or {}
+    if rule == "sum":  # d_a + d_b: the two periods compared (all files' df with two files)
+        if by != FILE_COLUMN or not pool.get("df_per_file") or len(pool["df_per_file"]) < 3:
+            return None
+        per = dict(zip(pool["periods"], pool["df_per_file"].values(), strict=True))
+        own = [float(per.get(lab, np.nan)) for lab in labels]
+        return lambda a, b, va, vb: change_df([va, vb], [own[a], own[b]], "sum")
     if by != FILE_COLUMN or not pool.get("df_per_file"):
         raise EstimationError("the Satterthwaite df of a change needs pooled files compared by "
                               "_file, with strata per file and linearization; drop it or use "
