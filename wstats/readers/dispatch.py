@@ -192,10 +192,10 @@ def check_file(path: Path) -> str:
 #: How files of each family begin, and the extension to give them.
 _MAGIC: list[tuple[bytes, str, str, str]] = [
     (b"PAR1", "parquet", "a Parquet file", ".parquet"),
-    (b"$FL2", "sav", "an SPSS system file", ".sav"),
-    (b"$FL3", "sav", "a compressed SPSS system file", ".zsav"),
-    (b"HEADER RECORD*******LIB", "xpt", "a SAS transport file", ".xpt"),
-    (b"<stata_dta>", "dta", "a Stata file", ".dta"),
+    (b"$FL2", "sav", "a .sav system file", ".sav"),
+    (b"$FL3", "sav", "a compressed .zsav system file", ".zsav"),
+    (b"HEADER RECORD*******LIB", "xpt", "a transport (.xpt) file", ".xpt"),
+    (b"<stata_dta>", "dta", "a .dta file", ".dta"),
     (b"\x1f\x8b", "gzip", "gzip-compressed", ".csv.gz"),
 ]
 _FAMILY = {"zsav": "sav", "por": "sav", "tsv": "csv"}
