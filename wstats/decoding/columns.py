@@ -90,10 +90,10 @@ class DecodedColumn:
                  label: str | None = None, kind: str = "continuous",
                  value_labels: dict[float, str] | None = None, raw: np.ndarray | None = None,
                  check: bool = True) -> None:
+        kept = _kept_codes(values, reasons)
         if check:
-            _check(name, values, reasons, vocabulary, kind)
-        self._set(name, values, _kept_codes(values, reasons), vocabulary, label, kind,
-                  value_labels or {}, raw)
+            _check(name, values, reasons, vocabulary, kind, kept)
+        self._set(name, values, kept, vocabulary, label, kind, value_labels or {}, raw)
 
     def _set(self, *fields: Any) -> None:
         for slot, value in zip(self.__slots__, fields, strict=True):
@@ -223,8 +223,11 @@ def _kept_codes(values: np.ndarray, reasons: np.ndarray) -> np.ndarray:
 
 
 def _check(name: str, values: np.ndarray, reasons: np.ndarray, vocabulary: Reasons,
-           kind: str) -> None:
-    """Validate a column's arrays (see the module's invariants); ValueError if broken."""
+           kind: str, kept: np.ndarray) -> None:
+    """Validate a column's arrays (see the module's invariants); ValueError if broken.
+
+    *kept* is ``_kept_codes(values, reasons)`` (the NaN rows' reasons, for numbers).
+    """
     if len(values) != len(reasons):
         raise ValueError(f"{name}: values and reasons differ in length")
     if reasons.dtype != np.int8:
@@ -234,10 +237,12 @@ def _check(name: str, values: np.ndarray, reasons: np.ndarray, vocabulary: Reaso
     if len(reasons) and int(reasons.max(initial=0)) >= len(vocabulary):
         raise ValueError(f"{name}: reason code outside the vocabulary")
     if values.dtype.kind == "f":
-        blank = np.isnan(values)
-        if np.any((reasons != VALID) & ~blank):
+        # counted, not masked: the not-valid rows outside the NaN rows are those beyond the
+        # NaN rows' own not-valid reasons (no mask as long as the column)
+        blank_not_valid = int(np.count_nonzero(kept != VALID))
+        if int(np.count_nonzero(reasons != VALID)) > blank_not_valid:
             raise ValueError(f"{name}: a non-valid row holds a value")
-        if np.any(blank & (reasons == VALID)):
+        if blank_not_valid < len(kept):
             raise ValueError(f"{name}: a valid row holds NaN; give it a reason")
 
 
