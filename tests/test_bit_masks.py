@@ -46,3 +46,8 @@ def test_the_column_check_still_refuses_broken_columns() -> None:
         DecodedColumn("x", values, np.array([0, 0, 0], dtype=np.int8), vocab)
     with pytest.raises(ValueError, match="a non-valid row holds a value"):  # both: as before
         DecodedColumn("x", values, np.array([refused, 0, 0], dtype=np.int8), vocab)
+
+
+def test_lengths_that_differ_are_refused_first() -> None:
+    with pytest.raises(ValueError, match="differ in length"):
+        DecodedColumn("x", np.array([1.0, np.nan]), np.zeros(3, dtype=np.int8), Reasons())
