@@ -90,10 +90,9 @@ class DecodedColumn:
                  label: str | None = None, kind: str = "continuous",
                  value_labels: dict[float, str] | None = None, raw: np.ndarray | None = None,
                  check: bool = True) -> None:
-        if check:
-            _check(name, values, reasons, vocabulary, kind)
-        self._set(name, values, _kept_codes(values, reasons), vocabulary, label, kind,
-                  value_labels or {}, raw)
+        kept = (_checked(name, values, reasons, vocabulary, kind) if check
+                else _kept_codes(values, reasons))
+        self._set(name, values, kept, vocabulary, label, kind, value_labels or {}, raw)
 
     def _set(self, *fields: Any) -> None:
         for slot, value in zip(self.__slots__, fields, strict=True):
@@ -222,9 +221,10 @@ def _kept_codes(values: np.ndarray, reasons: np.ndarray) -> np.ndarray:
     return reasons[np.isnan(values)] if values.dtype.kind == "f" else reasons
 
 
-def _check(name: str, values: np.ndarray, reasons: np.ndarray, vocabulary: Reasons,
-           kind: str) -> None:
-    """Validate a column's arrays (see the module's invariants); ValueError if broken."""
+def _checked(name: str, values: np.ndarray, reasons: np.ndarray, vocabulary: Reasons,
+             kind: str) -> np.ndarray:
+    """Validate a column's arrays (see the module's invariants) and return the reason codes
+    it keeps (:func:`_kept_codes`); ValueError if broken."""
     if len(values) != len(reasons):
         raise ValueError(f"{name}: values and reasons differ in length")
     if reasons.dtype != np.int8:
@@ -233,12 +233,16 @@ def _check(name: str, values: np.ndarray, reasons: np.ndarray, vocabulary: Reaso
         raise ValueError(f"{name}: unknown kind {kind!r}")
     if len(reasons) and int(reasons.max(initial=0)) >= len(vocabulary):
         raise ValueError(f"{name}: reason code outside the vocabulary")
+    kept = _kept_codes(values, reasons)
     if values.dtype.kind == "f":
-        blank = np.isnan(values)
-        if np.any((reasons != VALID) & ~blank):
+        # counted, not masked: the not-valid rows outside the NaN rows are those beyond the
+        # NaN rows' own not-valid reasons (no mask as long as the column)
+        blank_not_valid = int(np.count_nonzero(kept != VALID))
+        if int(np.count_nonzero(reasons != VALID)) > blank_not_valid:
             raise ValueError(f"{name}: a non-valid row holds a value")
-        if np.any(blank & (reasons == VALID)):
+        if blank_not_valid < len(kept):
             raise ValueError(f"{name}: a valid row holds NaN; give it a reason")
+    return kept
 
 
 @dataclass(frozen=True, eq=False)

@@ -292,9 +292,16 @@ class GroupSum:
     def __matmul__(self, block: npt.ArrayLike) -> Array:
         """Return the group sums of the rows of a 1-D or 2-D *block*."""
         b = np.asarray(block, dtype=np.float64)
-        out = np.zeros((self.shape[0], *b.shape[1:]))
-        np.add.at(out, self.target, b[self.source])
-        return out
+        n, picked = self.shape[0], b[self.source]
+        if b.ndim == 1:
+            return np.asarray(np.bincount(self.target, weights=picked, minlength=n),
+                              dtype=np.float64)  # float64 already: for the type checker
+        # bincount adds in row order, as np.add.at does (the same sums to the bit), several
+        # times faster; one key per (group, column) cell
+        width = int(np.prod(b.shape[1:]))
+        key = (self.target[:, np.newaxis] * width + np.arange(width)).ravel()
+        out = np.bincount(key, weights=picked.ravel(), minlength=n * width)
+        return np.asarray(out, dtype=np.float64).reshape(n, *b.shape[1:])
 
 
 class _RowSums:

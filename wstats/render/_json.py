@@ -7,7 +7,6 @@ so the output is strict JSON. Suppressed estimates have their numbers nulled (se
 
 from __future__ import annotations
 
-import json
 import math
 from collections.abc import Iterable, Mapping
 from typing import TYPE_CHECKING, Any
@@ -86,8 +85,9 @@ def _clean(value: Any) -> Any:
 
 def _dump(data: Mapping[str, Any]) -> str:
     """Serialise with stable key order (provenance keys sorted) and a final newline."""
+    from wstats.render._json_text import indented
     from wstats.reports.provenance import normalize
 
-    out = dict(_clean(dict(data)))
-    out["provenance"] = normalize(out["provenance"])
-    return json.dumps(out, indent=2, ensure_ascii=False, allow_nan=False) + "\n"
+    out = {str(k): v for k, v in data.items()}  # the results are cleaned as they are written
+    out["provenance"] = normalize(_clean(out["provenance"]))
+    return indented(out) + "\n"
