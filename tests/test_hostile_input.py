@@ -682,7 +682,8 @@ def test_numbers_made_text_by_na(run_cli: Run, folder: Path) -> None:
 
 
 @pytest.mark.parametrize(("real", "named", "words"), [
-    ("parquet", "csv", "Parquet"), ("sav", "parquet", ".sav system file"), ("xpt", "csv", "transport"),
+    ("parquet", "csv", "Parquet"), ("sav", "parquet", ".sav system file"),
+    ("xpt", "csv", "transport"),
 ])
 def test_file_that_is_not_what_its_name_says(run_cli: Run, survey_files: dict[str, Path],
                                              folder: Path, real: str, named: str,
