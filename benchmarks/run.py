@@ -165,6 +165,7 @@ def commands(files: dict[str, Path], double: dict[str, Path], raw_a: list[str],
                str(double["codebook"]), *DESIGN, "--format", "json"],
         "H": [*_wstats(), "--help"],
         "L": [*_wstats(), "columns", xpt],
+        "K": [*_wstats(), "look", xpt, "sl_hours", "hs_rate", "--codebook", cb],
         "Acold": [*_wstats(), "estimate", xpt, *TEN, *tail],
         "Ccold": ["dd", f"if={xpt}", "of=/dev/null", "bs=16M", "iflag=direct", "status=none"],
     }
@@ -316,7 +317,8 @@ def main() -> None:
                     for f in (files, double))
         reasons_mb = (one, two)
     out = {"ratios": ratios(res), **memory(res, items, raw_a, reasons_mb)}
-    for case, what, limit in (("H", "wstats --help", 0.3), ("L", "wstats columns FILE", 0.5)):
+    for case, what, limit in (("H", "wstats --help", 0.3), ("L", "wstats columns FILE", 0.5),
+                              ("K", "wstats look FILE 2 VARs", 0.5)):
         if case in res:
             t = res[case]["median"]
             print(f"start-up: {what} {t:.3f} s (target < {limit}): "
