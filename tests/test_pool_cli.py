@@ -180,3 +180,19 @@ def test_compare_periods_from_the_command_line(periods: Path) -> None:
     assert [i["name"] for i in out["provenance"]["inputs"]][:3] == [
         "period1.xpt", "period2.xpt", "period3.xpt"]
     assert any(t["test"].startswith("trend") for t in out["tests"])
+
+
+@pytest.mark.parametrize(("options", "said"), [
+    ((), "3 files pooled (equal weights; totals per period)"),
+    (("--pool", "rows"), "3 files pooled (weights by row count; totals per period)"),
+    (("--pool", "0.5,0.25,0.25"), "(weights × 0.5, 0.25, 0.25; totals per period)"),
+    (("--shared-psus",), "(equal weights, strata and PSUs shared; totals per period)"),
+])
+def test_the_design_line_says_how_the_files_were_pooled(
+        periods: Path, options: tuple[str, ...], said: str) -> None:
+    # "rows weights" / "factors weights" read badly, and shared PSUs went unmentioned
+    done = run_wstats("estimate", "period*.xpt", "sl_hours", "--codebook",
+                      "tbchs_codebook.toml", *options, cwd=periods)
+    assert done.returncode == 0, done.stderr
+    design = " ".join(done.stdout.split("(korn-graubard")[0].split())
+    assert said in design

@@ -319,10 +319,8 @@ def design_line(design: Mapping[str, Any], settings: Mapping[str, Any], level: f
     if df:
         parts.append(df)
     pool = design.get("pool")
-    if pool:  # several files: which factors, and that totals are per period
-        rule, k = pool.get("rule"), len(pool.get("factors") or {})
-        parts.append(f"{k} file{'' if k == 1 else 's'} pooled ({rule} weights; totals per "
-                     "period)")
+    if pool:
+        parts.append(_pool_text(pool))
     if settings.get("engine") == "dask":
         parts.append("Dask engine")
     method = settings.get("proportion_ci")
@@ -331,6 +329,22 @@ def design_line(design: Mapping[str, Any], settings: Mapping[str, Any], level: f
     where = settings.get("where")
     sub = f"; subpopulation {where} (full design kept)" if where else ""
     return ("Design: " + ", ".join(parts) + "; " + ci if parts else ci) + sub
+
+
+def _pool_text(pool: Mapping[str, Any]) -> str:
+    """Return ``3 files pooled (equal weights; totals per period)`` and its variants."""
+    factors = dict(pool.get("factors") or {})
+    k = len(factors)
+    rule = pool.get("rule")
+    if rule == "equal":
+        how = "equal weights"
+    elif rule == "rows":
+        how = "weights by row count"
+    else:
+        how = "weights × " + ", ".join(f"{float(f):g}" for f in factors.values())
+    if pool.get("strata") == "shared across files":
+        how += ", strata and PSUs shared"
+    return f"{k} file{'' if k == 1 else 's'} pooled ({how}; totals per period)"
 
 
 def _df_text(design: Mapping[str, Any], settings: Mapping[str, Any]) -> str:
