@@ -357,8 +357,10 @@ def add_bounds_args(p: argparse.ArgumentParser) -> None:
     p.add_argument("--unknown", default="dont_know,refused", metavar="REASONS",
                    help="reasons whose answers are unknown (default dont_know,refused)")
     p.add_argument("--level", type=float, default=0.95, help="confidence level (default 0.95)")
-    p.add_argument("--standard", default="nchs-2017", metavar="NAME",
+    p.add_argument("--reliability", default="nchs-2017", metavar="NAME",
                    help="reliability standard: nchs-2017 (default), rse-30, none")
+    # the name estimate uses for the same thing; --standard names a standard population there
+    p.add_argument("--standard", dest="reliability", action=_OldName, help=argparse.SUPPRESS)
     _add_output_options(p, ("table", "csv", "json", "markdown"))
 
 
