@@ -33,3 +33,20 @@ def test_bounds_takes_the_reliability_option_that_estimate_takes(
     assert code == 0
     assert "--standard is the old name of --reliability" in err
     assert [r["suppress"] for r in json.loads(out)["results"]] == hidden["bounds"]
+
+
+def test_the_methods_of_run_name_the_substituted_codes_as_a_table_does(
+    survey: Path, capsys: pytest.CaptureFixture[str]
+) -> None:
+    folder = survey.parent
+    with (folder / "cb.toml").open("a", encoding="utf-8") as f:
+        f.write('\n[variables.H]\nkind = "count"\ncodes = { 3 = 0 }\n')
+    (folder / "a.toml").write_text(
+        'data = "s.csv"\ncodebook = "cb.toml"\n[[estimates]]\nname = "e"\n'
+        'variables = ["H", "X"]\noutput = "e.json"\n[methods]\nestimates = "e"\n'
+        'output = "m.txt"\n[[table]]\nrows = ["H", "X"]\noutput = "t.md"\n', encoding="utf-8")
+    code, _, err = _run(capsys, "run", folder / "a.toml")
+    assert code == 0, err
+    said = "Codes meaning none were counted as the value zero (H: 3 → 0)"
+    assert said in (folder / "t.md").read_text(encoding="utf-8")
+    assert said in (folder / "m.txt").read_text(encoding="utf-8")
