@@ -50,3 +50,21 @@ def test_the_methods_of_run_name_the_substituted_codes_as_a_table_does(
     said = "Codes meaning none were counted as the value zero (H: 3 → 0)"
     assert said in (folder / "t.md").read_text(encoding="utf-8")
     assert said in (folder / "m.txt").read_text(encoding="utf-8")
+
+
+@pytest.mark.parametrize(("argv", "said"), [
+    (["estimate", "s.csv", "Q", "--nope"],
+     "wstats: error: wstats estimate: unrecognized arguments: --nope "
+     "(see 'wstats estimate --help')"),
+    (["codebook", "check", "s.csv", "cb.toml", "--nope"],
+     "wstats: error: wstats codebook check: unrecognized arguments: --nope "
+     "(see 'wstats codebook check --help')"),
+    (["--nope"], "wstats: error: unrecognized arguments: --nope (see 'wstats --help')"),
+])
+def test_an_unknown_option_names_the_command_whose_help_lists_the_options(
+    survey: Path, capsys: pytest.CaptureFixture[str], argv: list[str], said: str
+) -> None:
+    # it used to read "wstats: error: wstats: unrecognized arguments ... (see 'wstats --help')"
+    code, _, err = _run(capsys, *argv)
+    assert code == 2
+    assert err == said

@@ -373,8 +373,18 @@ class Parser(argparse.ArgumentParser):
         # taken as a value, it gets the message that explains the range syntax.
         self._negative_number_matcher = re.compile(r"^-\d+(:-?\d*)?$|^-\d*\.\d+$")
 
+    def parse_known_args(self, args: Any = None, namespace: Any = None) -> Any:
+        # Refused by the innermost parser that saw them, so that the message names the
+        # subcommand ('wstats estimate: unrecognized arguments'), not the top program.
+        parsed, extra = super().parse_known_args(args, namespace)
+        if extra:
+            self.error(f"unrecognized arguments: {' '.join(extra)}")
+        return parsed, extra
+
     def error(self, message: str) -> Any:
-        raise UsageError(f"{self.prog}: {message} (see '{self.prog} --help')")
+        # 'wstats: error:' is printed before it; a subcommand's mistake names the subcommand
+        where = "" if self.prog == "wstats" else f"{self.prog}: "
+        raise UsageError(f"{where}{message} (see '{self.prog} --help')")
 
 
 def one_line(message: str) -> str:
