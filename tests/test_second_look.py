@@ -68,3 +68,33 @@ def test_an_unknown_option_names_the_command_whose_help_lists_the_options(
     code, _, err = _run(capsys, *argv)
     assert code == 2
     assert err == said
+
+
+def test_an_interval_with_a_negative_end_is_written_with_to() -> None:
+    from wstats.reports.cells import interval
+
+    assert interval("0.12", "0.50") == "0.12–0.50"
+    assert interval("-0.10", "-0.02") == "-0.10 to -0.02"  # not "-0.10–-0.02"
+    assert interval("-0.10", "0.02") == "-0.10 to 0.02"
+    assert interval("", "0.02") == ""
+    assert interval("0.12", "0.50", words=True) == "0.12 to 0.50"  # a column of differences
+
+
+def test_compare_reads_like_estimate_design_line_first_and_a_level_ci_header(
+    survey: Path, capsys: pytest.CaptureFixture[str]
+) -> None:
+    code, out, err = _run(capsys, "compare", survey, "X", "--by", "G", "--codebook",
+                          survey.parent / "cb.toml", "--level", "0.9")
+    assert code == 0, err
+    lines = out.splitlines()
+    assert lines[0] == "Differences between levels of G"
+    assert lines[1].startswith("Design: weight W, 4 strata, 12 PSUs")
+    assert out.count("Design: weight W") == 1
+    header = next(line for line in lines if "B - A" in line and "SE" in line)
+    assert "90% CI" in header and "Interval" not in header
+    row = lines[lines.index(header) + 2]
+    assert " to " in row and "–" not in row  # one style in the column of differences
+    # only the tests that were made are explained
+    notes = " ".join(out.split())
+    assert "Wald F: all group means" in notes
+    assert "Rao-Scott" not in notes and "quadratic t" not in notes
