@@ -98,3 +98,14 @@ def test_compare_reads_like_estimate_design_line_first_and_a_level_ci_header(
     notes = " ".join(out.split())
     assert "Wald F: all group means" in notes
     assert "Rao-Scott" not in notes and "quadratic t" not in notes
+
+
+def test_the_demo_names_the_period_files_and_its_hint_fits_80_columns(tmp_path: Path) -> None:
+    from conftest import run_wstats
+
+    done = run_wstats("demo", "--rows", "3000", "--periods", "2", cwd=tmp_path)
+    assert done.returncode == 0, done.stderr
+    tail = done.stdout.splitlines()[-3:]
+    assert tail[0] == "Also 2 periods of the survey to pool (period1.xpt, period2.xpt):"
+    assert tail[1].strip() == "wstats estimate 'wstats-demo/period*.xpt' sl_hours --by _file \\"
+    assert max(len(line) for line in tail) <= 80  # the default folder name
