@@ -109,3 +109,21 @@ def test_the_demo_names_the_period_files_and_its_hint_fits_80_columns(tmp_path: 
     assert tail[0] == "Also 2 periods of the survey to pool (period1.xpt, period2.xpt):"
     assert tail[1].strip() == "wstats estimate 'wstats-demo/period*.xpt' sl_hours --by _file \\"
     assert max(len(line) for line in tail) <= 80  # the default folder name
+
+
+def test_a_table_says_why_its_quantile_and_total_rows_have_no_p_value(
+    survey: Path, capsys: pytest.CaptureFixture[str]
+) -> None:
+    spec = survey.parent / "t.toml"
+    spec.write_text(
+        'data = "s.csv"\ncodebook = "cb.toml"\nrows = ["X", { variable = "Y", statistic = '
+        '"quantile" }, { variable = "AGE", statistic = "total" }]\n'
+        '[columns]\nby = ["G"]\np_value = true\n', encoding="utf-8")
+    code, out, err = _run(capsys, "table", spec)
+    assert code == 0, err
+    assert "same Wald F on the adjusted values; totals and quantiles: no test." in " ".join(
+        out.split())
+    spec.write_text(spec.read_text(encoding="utf-8").replace(
+        ', { variable = "AGE", statistic = "total" }', ""), encoding="utf-8")
+    out = _run(capsys, "table", spec)[1]
+    assert "adjusted values; quantiles: no test." in " ".join(out.split())
