@@ -127,3 +127,32 @@ def test_a_table_says_why_its_quantile_and_total_rows_have_no_p_value(
         ', { variable = "AGE", statistic = "total" }', ""), encoding="utf-8")
     out = _run(capsys, "table", spec)[1]
     assert "adjusted values; quantiles: no test." in " ".join(out.split())
+
+
+def test_bounds_refuse_a_count_as_estimate_does_unless_named_categorical(
+    survey: Path, capsys: pytest.CaptureFixture[str]
+) -> None:
+    args = [survey, "AGE", "--codebook", survey.parent / "cb.toml"]
+    for command in ("estimate", "bounds"):
+        extra = ["--statistics", "proportion"] if command == "estimate" else []
+        code, out, err = _run(capsys, command, *args, *extra)
+        assert code != 0 and out == "", command  # bounds used to print 72 ages
+        assert "a proportion of 'AGE' needs a categorical variable" in err
+        assert "--categorical AGE" in err
+    code, out, err = _run(capsys, "bounds", *args, "--categorical", "AGE", "--format", "json")
+    assert code == 0, err
+    assert len({r["level"] for r in json.loads(out)["results"]}) > 10
+    (survey.parent / "a.toml").write_text(
+        'data = "s.csv"\ncodebook = "cb.toml"\n[[bounds]]\nvariables = ["AGE"]\n'
+        'categorical = ["AGE"]\noutput = "b.csv"\n', encoding="utf-8")
+    assert _run(capsys, "run", survey.parent / "a.toml")[0] == 0
+
+
+def test_bounds_from_python_refuse_a_continuous_variable(survey: Path) -> None:
+    import wstats
+    from wstats.errors import EstimationError
+
+    data = wstats.read(survey, codebook=survey.parent / "cb.toml")
+    with pytest.raises(EstimationError, match="needs a categorical variable"):
+        wstats.bounds(data, wstats.Design("W"), ["X"])
+    assert len(wstats.bounds(data, wstats.Design("W"), ["Q"])) == 2

@@ -293,7 +293,7 @@ class _Runner:
         o = job.options
         frame = bounds(self.data, self.design, o["variables"], by=o["by"], where=o.get("where"),
                        level=o["level"], reasons=o["reasons"],
-                       reliability=STANDARDS[o["reliability"]])
+                       reliability=STANDARDS[o["reliability"]], categorical=o["categorical"])
         prov = self.provenance(frame.attrs["design"])
         return [(out, _as_bytes(BOUNDS_RENDERERS[out.fmt](frame, provenance=prov), prov))
                 for out in job.outputs]

@@ -354,6 +354,8 @@ def add_bounds_args(p: argparse.ArgumentParser) -> None:
     p.add_argument("--by", nargs="+", action="extend", metavar="COL", default=[],
                    help="domains: levels of these variables, crossed")
     p.add_argument("--where", metavar="EXPR", help="row condition defining a subpopulation")
+    p.add_argument("--categorical", nargs="+", action="extend", metavar="COL", default=[],
+                   help="treat these variables as categorical (a proportion per level)")
     p.add_argument("--unknown", default="dont_know,refused", metavar="REASONS",
                    help="reasons whose answers are unknown (default dont_know,refused)")
     p.add_argument("--level", type=float, default=0.95, help="confidence level (default 0.95)")

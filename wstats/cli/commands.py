@@ -169,7 +169,7 @@ def _run_bounds(args: argparse.Namespace) -> int:
                                                 args.where, args.data))
     frame = bounds(data, design, args.variables, by=args.by, where=args.where,
                    level=args.level, reasons=tuple(split_list([args.unknown])),
-                   reliability=_standard(args.reliability))
+                   reliability=_standard(args.reliability), categorical=args.categorical)
     _emit(frame, "bounds", args, paths, args.codebook)
     return 0
 
