@@ -10,7 +10,7 @@ One registry per result type maps a format name to ``f(table, provenance=None)``
 
 Results show themselves in a Python session through these registries: importing this
 package registers :func:`wstats.render._show.show_text` and ``show_html`` with
-:mod:`wstats.estimation.display`.
+:mod:`wstats.readers.display`.
 
 Text formats return ``str``, ``xlsx`` returns ``bytes`` and ``terminal`` a rich renderable.
 Every written format carries the provenance record (``provenance=None`` falls back to the
@@ -215,8 +215,8 @@ def _show_html(obj: Any) -> str | None:
 
 
 def _register_display() -> None:
-    """Let results show themselves (see :mod:`wstats.estimation.display`)."""
-    from wstats.estimation.display import register
+    """Let results show themselves (see :mod:`wstats.readers.display`)."""
+    from wstats.readers.display import register
 
     register(_show_text, _show_html)
 

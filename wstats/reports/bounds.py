@@ -14,9 +14,9 @@ import numpy as np
 
 from wstats.decoding.columns import Dataset, DecodedColumn, require_dataset
 from wstats.decoding.reasons import VALID
-from wstats.estimation.display import as_html, as_text
 from wstats.estimation.results import _plain
 from wstats.estimation.statistics import check_statistic
+from wstats.readers.display import as_html, as_text
 from wstats.reports.nonresponse import _UNKNOWN, _augmented, _check_variables, _indicator, _rows
 
 if TYPE_CHECKING:

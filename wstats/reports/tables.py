@@ -15,7 +15,7 @@ from typing import TYPE_CHECKING, Any
 
 from wstats.decoding.reasons import NOT_ASKED
 from wstats.errors import AnalysisError, did_you_mean
-from wstats.estimation.display import as_html, as_text
+from wstats.readers.display import as_html, as_text
 from wstats.reports.table_layout import TableColumn, _is_na, _label, _Layout, _records
 from wstats.reports.table_specs import STATISTICS, RowSpec, TableSpec, load_table_spec
 from wstats.reports.table_tests import table_methods_sentences, table_p_values
