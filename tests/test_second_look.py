@@ -156,3 +156,25 @@ def test_bounds_from_python_refuse_a_continuous_variable(survey: Path) -> None:
     with pytest.raises(EstimationError, match="needs a categorical variable"):
         wstats.bounds(data, wstats.Design("W"), ["X"])
     assert len(wstats.bounds(data, wstats.Design("W"), ["Q"])) == 2
+
+
+def test_compare_reasons_and_nonresponse_agree_on_who_was_asked(
+    survey: Path, capsys: pytest.CaptureFixture[str]
+) -> None:
+    # not_applicable is outside the item's universe by default (issue 19): compare --reasons
+    # used to count it as nonresponse, so its rates disagreed with the nonresponse command's
+    with (survey.parent / "cb.toml").open("a", encoding="utf-8") as f:
+        f.write('\n[variables.H]\nkind = "categorical"\ncodes = { 3 = "not_applicable" }\n')
+    args = [survey, "Q", "H", "--codebook", survey.parent / "cb.toml", "--format", "json"]
+    code, out, err = _run(capsys, "nonresponse", *args, "--by", "G")
+    assert code == 0, err
+    rates = {(r["variable"], f'{float((r.get("group") or {}).get("G") or 0):g}'):
+             r["nonresponse_rate"] for r in json.loads(out)["results"]}
+    code, out, err = _run(capsys, "compare", *args, "--by", "G", "--reasons")
+    assert code == 0, err
+    rows = [r for r in json.loads(out)["differences"] if r["statistic"] == "nonresponse-rate"]
+    assert {r["variable"] for r in rows} == {"Q", "H"}
+    for r in rows:
+        for side in ("a", "b"):
+            asked = rates[(r["variable"], f'{float(r[f"group_{side}"]):g}')]
+            assert r[f"estimate_{side}"] == pytest.approx(asked, abs=1e-12)

@@ -256,7 +256,7 @@ class _Parser(_Spec):
                                     ("none", "holm", "bh")),
             "trend": self.flag(entry.get("trend", False), f"{key} trend"),
             "reasons": self.flag(entry.get("reasons", False), f"{key} reasons"),
-            "not_asked": tuple(self.names(entry.get("not_asked", ["skipped"]),
+            "not_asked": tuple(self.names(entry.get("not_asked", list(NOT_ASKED)),
                                           f"{key} not_asked")),
             "categorical": self.names(entry.get("categorical", []), f"{key} categorical"),
             **self.age(entry, key),

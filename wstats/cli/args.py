@@ -251,9 +251,9 @@ def add_compare_args(p: argparse.ArgumentParser) -> None:
                         "up (default) or Satterthwaite's from each period's own df")
     g.add_argument("--reasons", action="store_true",
                    help="also compare item nonresponse and its reasons across the groups")
-    g.add_argument("--not-asked", default="skipped", metavar="REASONS",
+    g.add_argument("--not-asked", default="skipped,not_applicable", metavar="REASONS",
                    help="with --reasons: reasons that put a row outside the item, like a skip "
-                        "(default skipped; e.g. skipped,not_applicable)")
+                        "(default skipped,not_applicable, as for nonresponse)")
     _add_subpopulation_options(g)
     g.add_argument("--level", type=float, default=0.95, help="confidence level (default 0.95)")
     _add_age_options(g)

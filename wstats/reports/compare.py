@@ -16,6 +16,7 @@ from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
+from wstats.decoding.reasons import NOT_ASKED
 from wstats.errors import EstimationError, UsageError, did_you_mean
 from wstats.estimation.contrasts import ADJUSTMENTS, adjust_p
 from wstats.estimation.covariance import Covariance, joint_covariance
@@ -95,7 +96,7 @@ def compare(
     level: float = 0.95,
     age_adjust: str | None = None,
     standard: str | Standard | None = None,
-    not_asked: Sequence[str] = ("skipped",),
+    not_asked: Sequence[str] = NOT_ASKED,
     period_df: str = "sum",
 ) -> Comparison:
     """Compare groups: differences with design-based SEs, global tests, trends, reasons.
@@ -121,7 +122,8 @@ def compare(
     age_adjust : the age variable: group estimates are directly age-adjusted.
     standard : standard population for ``age_adjust`` (a built-in name, a TOML file path or
         a :class:`~wstats.estimation.standards.Standard`).
-    not_asked : reasons meaning the item was not asked (left out of nonresponse rates).
+    not_asked : reasons meaning the item was not asked (left out of nonresponse rates);
+        default skipped and not_applicable, as in :func:`wstats.nonresponse`.
 
     Returns
     -------

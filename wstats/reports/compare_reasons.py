@@ -15,7 +15,7 @@ from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
-from wstats.decoding.reasons import DONT_KNOW, REFUSED, VALID
+from wstats.decoding.reasons import DONT_KNOW, NOT_ASKED, REFUSED, VALID
 from wstats.estimation.covariance import joint_covariance
 from wstats.estimation.influence import indicator_influence
 from wstats.reports.compare_rows import difference_rows, rao_scott_table
@@ -34,7 +34,9 @@ def reason_rows(data: Dataset, plan: Any, name: str, not_asked: Sequence[str]
     """Return the nonresponse-rate difference rows and the reason x group test of *name*."""
     eng = plan.groups
     reasons = eng.column(data, name).reasons
-    skip = [data.vocabulary.code(r) for r in dict.fromkeys(("skipped", *not_asked))]
+    # a default reason the codebook's vocabulary lacks is simply absent, as in nonresponse
+    skip = [data.vocabulary.code(r) for r in dict.fromkeys(("skipped", *not_asked))
+            if r in data.vocabulary or r not in NOT_ASKED]
     asked = ~np.isin(reasons, skip)
     g = plan.n_groups
     inf = indicator_influence(eng.sums, np.where(asked, (reasons != VALID).astype(np.int64), -1),
