@@ -178,3 +178,17 @@ def test_compare_reasons_and_nonresponse_agree_on_who_was_asked(
         for side in ("a", "b"):
             asked = rates[(r["variable"], f'{float(r[f"group_{side}"]):g}')]
             assert r[f"estimate_{side}"] == pytest.approx(asked, abs=1e-12)
+
+
+def test_only_estimate_help_speaks_of_standard_as_a_reliability_standard(
+    capsys: pytest.CaptureFixture[str]
+) -> None:
+    from wstats.cli.main import main
+
+    helps = {}
+    for command in ("estimate", "compare"):
+        with pytest.raises(SystemExit):
+            main([command, "--help"])
+        helps[command] = " ".join(capsys.readouterr().out.split())
+    assert "without --age-adjust: the reliability standard" in helps["estimate"]
+    assert "reliability standard" not in helps["compare"]  # compare has none to choose

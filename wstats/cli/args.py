@@ -199,7 +199,7 @@ def add_estimate_args(p: argparse.ArgumentParser) -> None:
                    help="interval for proportions (default korn-graubard)")
     g.add_argument("--reliability", default=None, metavar="NAME",
                    help="reliability standard: nchs-2017 (default), rse-30, none")
-    _add_age_options(g)
+    _add_age_options(g, estimate=True)
     g.add_argument("--plot", metavar="FILE", help="also draw estimates across domains (.png/.svg)")
     _add_engine_options(p)
     _add_output_options(p, OUTPUT_FORMATS)
@@ -222,13 +222,15 @@ def _add_subpopulation_options(g: Any) -> None:
                    help="treat these variables as categorical (a proportion per level)")
 
 
-def _add_age_options(g: Any) -> None:
+def _add_age_options(g: Any, estimate: bool = False) -> None:
     g.add_argument("--age-adjust", metavar="AGEVAR",
                    help="directly age-adjust over the levels of AGEVAR (needs --standard)")
+    # estimate's --standard once named the reliability standard; only there is it read so
     g.add_argument("--standard", metavar="NAME|FILE.toml",
                    help="standard population for --age-adjust: us2000-11, us2000-adults18, "
-                        "us2000-adults20 or a TOML file (without --age-adjust in estimate: "
-                        "the reliability standard, as --reliability)")
+                        "us2000-adults20 or a TOML file" + (
+                            " (without --age-adjust: the reliability standard, as "
+                            "--reliability)" if estimate else ""))
 
 
 def add_compare_args(p: argparse.ArgumentParser) -> None:
