@@ -196,3 +196,15 @@ def test_the_design_line_says_how_the_files_were_pooled(
     assert done.returncode == 0, done.stderr
     design = " ".join(done.stdout.split("(korn-graubard")[0].split())
     assert said in design
+
+
+@pytest.mark.parametrize("command", ["estimate", "nonresponse"])
+def test_a_chart_of_pooled_files_names_every_file_in_its_provenance(
+        periods: Path, tmp_path: Path, command: str) -> None:
+    pytest.importorskip("matplotlib")
+    chart = tmp_path / "c.svg"
+    done = run_wstats(command, "period*.xpt", "sl_hours", "--by", "_file", "--codebook",
+                      "tbchs_codebook.toml", "--plot", chart, cwd=periods)
+    assert done.returncode == 0, done.stderr  # it was a traceback (a list taken for a path)
+    text = chart.read_text(encoding="utf-8")
+    assert all(f"period{k}.xpt" in text for k in (1, 2, 3))

@@ -78,7 +78,7 @@ def _run_estimate(args: argparse.Namespace) -> int:
         from wstats.reports.plots import plot_domains
 
         plot_domains(table, Path(args.plot), overwrite=args.overwrite,
-                     provenance=_provenance(table, [args.data], args.codebook))
+                     provenance=_provenance(table, paths, args.codebook))
     return 0
 
 
@@ -153,7 +153,7 @@ def _run_nonresponse(args: argparse.Namespace) -> int:
         from wstats.reports.plots import plot_reasons
 
         plot_reasons(table, Path(args.plot), overwrite=args.overwrite,
-                     provenance=_provenance(table, [args.data], args.codebook))
+                     provenance=_provenance(table, paths, args.codebook))
     return 0
 
 
