@@ -192,3 +192,17 @@ def test_only_estimate_help_speaks_of_standard_as_a_reliability_standard(
         helps[command] = " ".join(capsys.readouterr().out.split())
     assert "without --age-adjust: the reliability standard" in helps["estimate"]
     assert "reliability standard" not in helps["compare"]  # compare has none to choose
+
+
+@pytest.mark.parametrize("argv", [["look", "s*.csv", "Q"], ["columns", "s*.csv"],
+                                  ["convert", "s*.csv", "out.parquet"]])
+def test_a_pattern_given_to_a_one_file_command_says_which_commands_pool(
+    survey: Path, capsys: pytest.CaptureFixture[str], monkeypatch: pytest.MonkeyPatch,
+    argv: list[str]
+) -> None:
+    monkeypatch.chdir(survey.parent)
+    code, _, err = _run(capsys, *argv)
+    assert code != 0
+    assert err == ("wstats: error: data file 's*.csv' does not exist: a pattern pools several "
+                   "files only in estimate, compare, nonresponse, bounds, table and run; name "
+                   "one file here")
