@@ -206,3 +206,28 @@ def test_a_pattern_given_to_a_one_file_command_says_which_commands_pool(
     assert err == ("wstats: error: data file 's*.csv' does not exist: a pattern pools several "
                    "files only in estimate, compare, nonresponse, bounds, table and run; name "
                    "one file here")
+
+
+@pytest.mark.parametrize(("options", "said"), [
+    (["--quantiles", "0.9"], "wstats: error: --quantiles 0.9 needs --statistics quantile "
+     "(e.g. --statistics quantile --quantiles 0.9)"),  # a mean was shown instead
+    (["--statistics", "quantile", "--quantiles", "abc"],  # a ValueError traceback
+     "wstats: error: --quantiles 'abc' is not a comma list of probabilities between 0 and 1 "
+     "(e.g. --quantiles 0.25,0.5,0.75)"),
+])
+def test_quantile_options_that_would_be_ignored_or_crash_are_refused(
+    survey: Path, capsys: pytest.CaptureFixture[str], options: list[str], said: str
+) -> None:
+    code, out, err = _run(capsys, "estimate", survey, "X", "--codebook",
+                          survey.parent / "cb.toml", *options)
+    assert (code, out, err) == (2, "", said)
+
+
+def test_quantiles_given_with_the_statistic_still_work(
+    survey: Path, capsys: pytest.CaptureFixture[str]
+) -> None:
+    code, out, err = _run(capsys, "estimate", survey, "X", "--codebook",
+                          survey.parent / "cb.toml", "--statistics", "quantile",
+                          "--quantiles", "0.25,0.75", "--format", "json")
+    assert code == 0, err
+    assert [r["p"] for r in json.loads(out)["results"]] == [0.25, 0.75]

@@ -191,7 +191,7 @@ def add_estimate_args(p: argparse.ArgumentParser) -> None:
     g.add_argument("--stats", dest="statistics", action=_OldName, help=argparse.SUPPRESS)
     g.add_argument("--ratio", nargs="+", action="extend", metavar="NUM/DEN", default=[],
                    help="ratio of two variables, e.g. --ratio VISITS/PERSONS")
-    g.add_argument("--quantiles", metavar="P,P", default="0.5",
+    g.add_argument("--quantiles", metavar="P,P", default=None,
                    help="probabilities for --statistics quantile (default 0.5)")
     g.add_argument("--level", type=float, default=0.95, help="confidence level (default 0.95)")
     g.add_argument("--proportion-ci", default="korn-graubard",
@@ -275,6 +275,23 @@ class _OldName(argparse.Action):
         warnings.warn(f"{option_string} is the old name of {new}; it still works for now, "
                       f"but write {new}", WstatsWarning, stacklevel=2)
         setattr(namespace, self.dest, values)
+
+
+def quantile_list(text: str | None, statistics: Sequence[str]) -> list[float]:
+    """Return the probabilities of --quantiles (default 0.5), checked against --statistics.
+
+    Given without a quantile to estimate, they would be ignored and a mean shown instead.
+    """
+    if text is None:
+        return [0.5]
+    if "quantile" not in statistics:
+        raise UsageError(f"--quantiles {text} needs --statistics quantile (e.g. --statistics "
+                         f"quantile --quantiles {text})")
+    try:
+        return [float(q) for q in text.split(",") if q.strip()]
+    except ValueError:
+        raise UsageError(f"--quantiles '{text}' is not a comma list of probabilities between "
+                         "0 and 1 (e.g. --quantiles 0.25,0.5,0.75)") from None
 
 
 def ratio_pair(text: str) -> tuple[str, str]:

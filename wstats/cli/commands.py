@@ -21,6 +21,7 @@ from wstats.cli.args import (
     format_for,
     needed_columns,
     parse_rows,
+    quantile_list,
     ratio_pair,
     split_list,
 )
@@ -50,6 +51,8 @@ __all__ = ["COMMANDS"]
 
 def _run_estimate(args: argparse.Namespace) -> int:
     parse_rows(args.rows)  # usage mistakes first, before any file is touched
+    statistics = split_list([args.statistics])
+    quantiles = quantile_list(args.quantiles, statistics)
     paths = data_paths(args)
     _check_outputs(args, [*paths, args.codebook])
     from wstats.estimation.estimate import estimate
@@ -66,9 +69,9 @@ def _run_estimate(args: argparse.Namespace) -> int:
                         [*variables, *[x for r in ratios for x in r], *args.by, *age])
     table = estimate(
         data, design, variables, engine=args.engine, codebook=codebook,
-        scheduler=args.scheduler, statistics=split_list([args.statistics]) or None, by=args.by,
+        scheduler=args.scheduler, statistics=statistics or None, by=args.by,
         where=args.where, categorical=args.categorical, ratios=ratios,
-        quantiles=[float(q) for q in split_list([args.quantiles])], level=args.level,
+        quantiles=quantiles, level=args.level,
         proportion_ci=args.proportion_ci, reliability=_standard(_reliability_name(args)),
         margins=args.margins, age_adjust=args.age_adjust,
         standard=args.standard if args.age_adjust else None,
