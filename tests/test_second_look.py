@@ -231,3 +231,14 @@ def test_quantiles_given_with_the_statistic_still_work(
                           "--quantiles", "0.25,0.75", "--format", "json")
     assert code == 0, err
     assert [r["p"] for r in json.loads(out)["results"]] == [0.25, 0.75]
+
+
+@pytest.mark.parametrize("by", [[], ["G"]])
+def test_margins_without_a_crossed_by_is_refused_not_ignored(
+    survey: Path, capsys: pytest.CaptureFixture[str], by: list[str]
+) -> None:
+    by_args = ["--by", *by] if by else []
+    code, out, err = _run(capsys, "estimate", survey, "X", "--codebook",
+                          survey.parent / "cb.toml", *by_args, "--margins")
+    assert code == 2 and out == ""
+    assert err.startswith("wstats: error: --margins adds each by-variable alone to a crossed")

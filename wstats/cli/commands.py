@@ -53,6 +53,10 @@ def _run_estimate(args: argparse.Namespace) -> int:
     parse_rows(args.rows)  # usage mistakes first, before any file is touched
     statistics = split_list([args.statistics])
     quantiles = quantile_list(args.quantiles, statistics)
+    if args.margins and len(args.by) < 2:  # nothing to add: it would be silently ignored
+        raise UsageError("--margins adds each by-variable alone to a crossed --by A B; with "
+                         f"{len(args.by)} by-variable{'' if len(args.by) == 1 else 's'} there "
+                         "is no crossing: leave --margins out")
     paths = data_paths(args)
     _check_outputs(args, [*paths, args.codebook])
     from wstats.estimation.estimate import estimate
