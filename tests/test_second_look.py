@@ -242,3 +242,14 @@ def test_margins_without_a_crossed_by_is_refused_not_ignored(
                           survey.parent / "cb.toml", *by_args, "--margins")
     assert code == 2 and out == ""
     assert err.startswith("wstats: error: --margins adds each by-variable alone to a crossed")
+
+
+@pytest.mark.parametrize("command", ["compare", "bounds"])
+def test_the_dask_engine_on_an_in_memory_command_says_where_it_runs(
+    survey: Path, capsys: pytest.CaptureFixture[str], command: str
+) -> None:
+    code, _, err = _run(capsys, command, survey, "Q", "--by", "G", "--engine", "dask")
+    assert code == 2
+    assert err == (f"wstats: error: wstats {command}: --engine: this command runs in memory "
+                   "only; the Dask engine serves estimate and nonresponse (docs/scale.md) "
+                   f"(see 'wstats {command} --help')")

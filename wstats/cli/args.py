@@ -398,6 +398,9 @@ class Parser(argparse.ArgumentParser):
         # Refused by the innermost parser that saw them, so that the message names the
         # subcommand ('wstats estimate: unrecognized arguments'), not the top program.
         parsed, extra = super().parse_known_args(args, namespace)
+        if any(a == "--engine" or a.startswith("--engine=") for a in extra):
+            self.error("--engine: this command runs in memory only; the Dask engine serves "
+                       "estimate and nonresponse (docs/scale.md)")
         if extra:
             self.error(f"unrecognized arguments: {' '.join(extra)}")
         return parsed, extra
