@@ -253,3 +253,13 @@ def test_the_dask_engine_on_an_in_memory_command_says_where_it_runs(
     assert err == (f"wstats: error: wstats {command}: --engine: this command runs in memory "
                    "only; the Dask engine serves estimate and nonresponse (docs/scale.md) "
                    f"(see 'wstats {command} --help')")
+
+
+@pytest.mark.parametrize("command", ["estimate", "nonresponse", "compare", "bounds"])
+def test_screens_written_to_a_pipe_have_no_padding_at_line_ends(
+    survey: Path, capsys: pytest.CaptureFixture[str], command: str
+) -> None:
+    code, out, err = _run(capsys, command, survey, "Q", "--by", "G", "--codebook",
+                          survey.parent / "cb.toml")
+    assert code == 0, err
+    assert [line for line in out.splitlines() if line != line.rstrip()] == []

@@ -43,6 +43,7 @@ __all__ = [
     "TABLE_RENDERERS",
     "plain_text",
     "render_check",
+    "strip_line_ends",
     "with_provenance",
     "write_table",
 ]
@@ -179,7 +180,12 @@ def plain_text(renderable: Any, provenance: Mapping[str, Any] | None = None,
     buf = io.StringIO()
     Console(file=buf, width=width, color_system=None, force_terminal=False,
             legacy_windows=False).print(renderable)
-    return with_provenance(buf.getvalue(), "text", provenance)
+    return with_provenance(strip_line_ends(buf.getvalue()), "text", provenance)
+
+
+def strip_line_ends(text: str) -> str:
+    """Return *text* without the spaces the table layout pads each line with."""
+    return "\n".join(line.rstrip() for line in text.split("\n"))
 
 
 def with_provenance(text: str, fmt: str, provenance: Mapping[str, Any] | None) -> str:
