@@ -277,23 +277,6 @@ class _OldName(argparse.Action):
         setattr(namespace, self.dest, values)
 
 
-def quantile_list(text: str | None, statistics: Sequence[str]) -> list[float]:
-    """Return the probabilities of --quantiles (default 0.5), checked against --statistics.
-
-    Given without a quantile to estimate, they would be ignored and a mean shown instead.
-    """
-    if text is None:
-        return [0.5]
-    if "quantile" not in statistics:
-        raise UsageError(f"--quantiles {text} needs --statistics quantile (e.g. --statistics "
-                         f"quantile --quantiles {text})")
-    try:
-        return [float(q) for q in text.split(",") if q.strip()]
-    except ValueError:
-        raise UsageError(f"--quantiles '{text}' is not a comma list of probabilities between "
-                         "0 and 1 (e.g. --quantiles 0.25,0.5,0.75)") from None
-
-
 def ratio_pair(text: str) -> tuple[str, str]:
     num, sep, den = text.partition("/")
     if not sep or not num or not den:

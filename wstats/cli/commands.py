@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import argparse
 import sys
+from collections.abc import Sequence
 from pathlib import Path
 from typing import Any
 
@@ -21,7 +22,6 @@ from wstats.cli.args import (
     format_for,
     needed_columns,
     parse_rows,
-    quantile_list,
     ratio_pair,
     split_list,
 )
@@ -52,7 +52,7 @@ __all__ = ["COMMANDS"]
 def _run_estimate(args: argparse.Namespace) -> int:
     parse_rows(args.rows)  # usage mistakes first, before any file is touched
     statistics = split_list([args.statistics])
-    quantiles = quantile_list(args.quantiles, statistics)
+    quantiles = _quantiles(args.quantiles, statistics)
     if args.margins and len(args.by) < 2:  # nothing to add: it would be silently ignored
         raise UsageError("--margins adds each by-variable alone to a crossed --by A B; with "
                          f"{len(args.by)} by-variable{'' if len(args.by) == 1 else 's'} there "
@@ -87,6 +87,23 @@ def _run_estimate(args: argparse.Namespace) -> int:
         plot_domains(table, Path(args.plot), overwrite=args.overwrite,
                      provenance=_provenance(table, paths, args.codebook))
     return 0
+
+
+def _quantiles(text: str | None, statistics: Sequence[str]) -> list[float]:
+    """Return the probabilities of --quantiles (default 0.5), checked against --statistics.
+
+    Given without a quantile to estimate, they would be ignored and a mean shown instead.
+    """
+    if text is None:
+        return [0.5]
+    if "quantile" not in statistics:
+        raise UsageError(f"--quantiles {text} needs --statistics quantile (e.g. --statistics "
+                         f"quantile --quantiles {text})")
+    try:
+        return [float(q) for q in text.split(",") if q.strip()]
+    except ValueError:
+        raise UsageError(f"--quantiles '{text}' is not a comma list of probabilities between "
+                         "0 and 1 (e.g. --quantiles 0.25,0.5,0.75)") from None
 
 
 def _reliability_name(args: argparse.Namespace) -> str:
