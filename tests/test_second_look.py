@@ -263,3 +263,21 @@ def test_screens_written_to_a_pipe_have_no_padding_at_line_ends(
                           survey.parent / "cb.toml")
     assert code == 0, err
     assert [line for line in out.splitlines() if line != line.rstrip()] == []
+
+
+def test_an_estimate_block_writes_its_intervals_in_one_style() -> None:
+    from wstats.estimation.results import EstimateTable
+    from wstats.render._grid import estimate_grid
+
+    rows = {"variable": ["d", "d"], "statistic": ["mean", "mean"], "level": [None, None],
+            "p": [None, None], "g": [1.0, 2.0], "estimate": [0.5, 0.1],
+            "se": [0.1, 0.1], "ci_low": [0.3, -0.1], "ci_high": [0.7, 0.3], "df": [9.0, 9.0],
+            "cv": [0.2, 1.0], "deff": [1.0, 1.0], "deff_weight": [1.0, 1.0],
+            "n_eff": [50.0, 50.0], "n": [50, 50], "weighted_n": [50.0, 50.0],
+            "reasons": [{}, {}], "flags": [(), ()], "suppress": [False, False]}
+    import pandas as pd
+
+    table = EstimateTable.from_frame(pd.DataFrame(rows), by=["g"], level=0.95,
+                                     design={"weight": "w"}, settings={})
+    cis = [r[3] for r in estimate_grid(table).rows if len(r) > 1]
+    assert cis == ["0.3 to 0.7", "-0.1 to 0.3"]  # not "0.3–0.7" above "-0.1 to 0.3"

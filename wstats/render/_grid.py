@@ -163,11 +163,13 @@ def estimate_grid(table: EstimateTable) -> Grid:
         pct = stat == "proportion"
         se_dec = 2 if pct else auto_decimals(_median_se(sub))
         dec = 1 if pct else max(0, se_dec - 1)
+        # one interval style per block: "lo to hi" for all once any limit is negative
+        words = bool((sub["ci_low"].astype(float) < 0).any())
         last: tuple[str, ...] | None = None
         for row in sub.to_dict(orient="records"):
             domain = tuple(group_text(row[b]) for b in by)
             cells = [*domain, *([_level_text(row)] if has_level else [])]
-            cells += _number_cells(row, notes, dec, se_dec, pct)
+            cells += _number_cells(row, notes, dec, se_dec, pct, words)
             # a domain's n and reasons are the same on each of its level rows: shown once
             once = pct and domain == last
             cells += ["", ""] if once else [fmt_count(row["n"]),
@@ -205,7 +207,8 @@ def _level_text(row: Mapping[str, Any]) -> str:
 
 
 def _number_cells(
-    row: Mapping[str, Any], notes: FlagNotes, dec: int, se_dec: int, pct: bool
+    row: Mapping[str, Any], notes: FlagNotes, dec: int, se_dec: int, pct: bool,
+    words: bool = False,
 ) -> list[str]:
     """Return Estimate, SE and CI cells (percent scale for proportions; marks; suppression)."""
     marks = notes.mark(tuple(row["flags"] or ()), bool(row["suppress"]))
@@ -220,7 +223,7 @@ def _number_cells(
     lo = fmt_number(float(row["ci_low"]) * k, dec, grouping=True)
     hi = fmt_number(float(row["ci_high"]) * k, dec, grouping=True)
     return [with_marks(text, marks), fmt_number(float(row["se"]) * k, se_dec, grouping=True),
-            interval(lo, hi)]
+            interval(lo, hi, words=words)]
 
 
 def nonresponse_grid(table: NonresponseLike) -> Grid:
