@@ -281,3 +281,14 @@ def test_an_estimate_block_writes_its_intervals_in_one_style() -> None:
                                      design={"weight": "w"}, settings={})
     cis = [r[3] for r in estimate_grid(table).rows if len(r) > 1]
     assert cis == ["0.3 to 0.7", "-0.1 to 0.3"]  # not "0.3–0.7" above "-0.1 to 0.3"
+
+
+def test_compare_names_its_subpopulation_as_the_other_commands_do(
+    survey: Path, capsys: pytest.CaptureFixture[str]
+) -> None:
+    args = [survey, "X", "--codebook", survey.parent / "cb.toml", "--where", "AGE >= 40"]
+    code, out, err = _run(capsys, "compare", *args, "--by", "G")
+    assert code == 0, err
+    assert "subpopulation AGE >= 40 (full design kept)" in " ".join(out.split())
+    code, out, err = _run(capsys, "compare", *args, "--by", "G", "--format", "json")
+    assert json.loads(out)["settings"]["where"] == "AGE >= 40"

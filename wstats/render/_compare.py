@@ -168,7 +168,8 @@ def compare_grids(result: Comparison) -> tuple[Grid, Grid]:
                  [_difference_cells(r, decimals[(r["variable"], r["statistic"])])
                   for r in diffs], notes)
     # the design line under the title, as in every other command's output
-    diff = replace(diff, caption=design_line(result.design, {}, result.level))
+    diff = replace(diff, caption=design_line(
+        result.design, {"where": result.settings.get("where")}, result.level))
     keep_test = set()
     if not any(r["test"] == "rao-scott" for r in result.tests.rows):
         keep_test |= {"mean_deff", "deff_cv2"}

@@ -161,7 +161,7 @@ def compare(
     settings = {"pairs": pairs, "reference": plan.labels[plan.pairs[0][0]],
                 "adjust_p": adjust_p,
                 "df_rule": "design" if plan.pair_df is None else "satterthwaite (periods)",
-                "level": level,
+                "level": level, "where": where,
                 "standard": plan.standard, "age_adjust": age_adjust,
                 "deff_at": "independence fit", "wald_df2": "d - k + 2"}
     return Comparison(RowTable(tuple(diff_rows), DIFFERENCE_COLUMNS),
