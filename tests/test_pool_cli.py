@@ -208,3 +208,13 @@ def test_a_chart_of_pooled_files_names_every_file_in_its_provenance(
     assert done.returncode == 0, done.stderr  # it was a traceback (a list taken for a path)
     text = chart.read_text(encoding="utf-8")
     assert all(f"period{k}.xpt" in text for k in (1, 2, 3))
+
+
+def test_satterthwaite_period_df_are_named_in_the_notes(periods: Path) -> None:
+    done = run_wstats("compare", "period*.xpt", "sl_hours", "--by", "_file", "--codebook",
+                      "tbchs_codebook.toml", "--period-df", "satterthwaite", cwd=periods)
+    assert done.returncode == 0, done.stderr
+    text = " ".join(done.stdout.split())
+    # the notes said "on the design degrees of freedom" while t used Satterthwaite's df
+    assert "t and two-sided p on Satterthwaite degrees of freedom from each period's" in text
+    assert "on the design degrees of freedom" not in text

@@ -96,8 +96,8 @@ def compare_notes(result: Comparison) -> tuple[str, ...]:
     s = result.settings
     notes = ["B - A: group B's value minus group A's; proportions and "
              "nonresponse rates in percent, their differences in percentage points. SE from "
-             "the full design covariance of the two estimates; t and two-sided p on the "
-             "design degrees of freedom.",
+             "the full design covariance of the two estimates; t and two-sided p on "
+             + _df_words(result) + ".",
              *_test_notes(result),
              "A difference that is not significant is not evidence that the groups are equal; "
              "many comparisons raise the chance of a false positive."]
@@ -120,6 +120,19 @@ def compare_notes(result: Comparison) -> tuple[str, ...]:
                     for f in r.get("flags") or ()})
     notes += [f"{f}: {FLAGS[f]}" for f in fired if f in FLAGS]
     return tuple(notes)
+
+
+def _df_words(result: Comparison) -> str:
+    """Return which degrees of freedom the t of a difference uses."""
+    if result.settings.get("df_rule") != "satterthwaite (periods)":
+        return "the design degrees of freedom"
+    dfs = [float(r["df"]) for r in result.differences.rows
+           if r.get("df") is not None and math.isfinite(float(r["df"]))]
+    span = (f" ({fmt_number(min(dfs), 0)} to {fmt_number(max(dfs), 0)})"
+            if dfs and round(min(dfs)) != round(max(dfs)) else
+            f" ({fmt_number(dfs[0], 0)})" if dfs else "")
+    return ("Satterthwaite degrees of freedom from each period's own design df" + span
+            + ", not the design df above")
 
 
 _TEST_NOTES = {
