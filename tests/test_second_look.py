@@ -292,3 +292,16 @@ def test_compare_names_its_subpopulation_as_the_other_commands_do(
     assert "subpopulation AGE >= 40 (full design kept)" in " ".join(out.split())
     code, out, err = _run(capsys, "compare", *args, "--by", "G", "--format", "json")
     assert json.loads(out)["settings"]["where"] == "AGE >= 40"
+
+
+def test_a_long_group_name_stays_over_its_own_columns() -> None:
+    from wstats.render._grid import Column, Grid, Span
+    from wstats.render._panels import _span_line
+
+    g = Grid("T", (Column("label", "", "l"), Column("all", "All"), Column("m", "Male")),
+             (("a", "1.0", "2.0"),), ("data",), spans=(Span("Sex recorded at interview", 2, 3),))
+    lines = _span_line(g, [0, 1, 2], {0: 10, 1: 10, 2: 10}).plain.split("\n")
+    male = 10 + 2 + 10 + 2  # where the Male column starts
+    # it used to reach left over the All column: "Sex recorded at interview" in one line
+    assert all(line[:male].strip() == "" for line in lines)
+    assert " ".join(line.strip() for line in lines) == "Sex recorded at interview"
