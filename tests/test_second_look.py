@@ -305,3 +305,20 @@ def test_a_long_group_name_stays_over_its_own_columns() -> None:
     # it used to reach left over the All column: "Sex recorded at interview" in one line
     assert all(line[:male].strip() == "" for line in lines)
     assert " ".join(line.strip() for line in lines) == "Sex recorded at interview"
+
+
+def test_a_long_value_label_wraps_instead_of_splitting_the_table_at_80_columns(
+    survey: Path, capsys: pytest.CaptureFixture[str], monkeypatch: pytest.MonkeyPatch
+) -> None:
+    cb = survey.parent / "cb.toml"
+    cb.write_text(cb.read_text(encoding="utf-8").replace(
+        'labels = { 1 = "Yes", 2 = "No" }',
+        'labels = { 1 = "Yes", 2 = "Never drives or rides in a car at all" }'), encoding="utf-8")
+    monkeypatch.setenv("COLUMNS", "80")
+    code, out, err = _run(capsys, "estimate", survey, "Q", "--codebook", cb)
+    assert code == 0, err
+    lines = out.splitlines()
+    assert max(len(line) for line in lines) <= 80
+    # one header line with every column; it used to be two blocks, the second "Not valid" only
+    headers = [line for line in lines if line.startswith("Level")]
+    assert len(headers) == 1 and headers[0].split()[-2:] == ["Not", "valid"]
