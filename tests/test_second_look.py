@@ -322,3 +322,16 @@ def test_a_long_value_label_wraps_instead_of_splitting_the_table_at_80_columns(
     # one header line with every column; it used to be two blocks, the second "Not valid" only
     headers = [line for line in lines if line.startswith("Level")]
     assert len(headers) == 1 and headers[0].split()[-2:] == ["Not", "valid"]
+
+
+@pytest.mark.parametrize("command", ["estimate", "bounds"])
+def test_an_empty_domain_reads_n_a_not_suppressed_for_unreliability(
+    survey: Path, capsys: pytest.CaptureFixture[str], command: str
+) -> None:
+    code, out, err = _run(capsys, command, survey, "Q", "--codebook", survey.parent / "cb.toml",
+                          "--where", "AGE > 200", "--reliability", "none")
+    assert code == 0, err
+    # there is nothing to hide: it said "[suppressed] ... does not meet the reliability
+    # standard" even with --reliability none
+    assert "[suppressed]" not in out and "n/a ‡" in out
+    assert "rule empty: no records in the domain" in " ".join(out.split())

@@ -211,8 +211,11 @@ def _number_cells(
     words: bool = False,
 ) -> list[str]:
     """Return Estimate, SE and CI cells (percent scale for proportions; marks; suppression)."""
-    marks = notes.mark(tuple(row["flags"] or ()), bool(row["suppress"]))
-    if row["suppress"]:
+    flags = tuple(row["flags"] or ())
+    # an empty domain has nothing to hide: "n/a", as nonresponse shows it, not "[suppressed]"
+    empty = "empty" in flags
+    marks = notes.mark(flags, bool(row["suppress"]) and not empty)
+    if row["suppress"] and not empty:
         return [with_marks(SUPPRESSED, marks), "", ""]
     k = 100.0 if pct else 1.0
     est = float(row["estimate"]) * k
