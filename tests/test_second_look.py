@@ -335,3 +335,27 @@ def test_an_empty_domain_reads_n_a_not_suppressed_for_unreliability(
     # standard" even with --reliability none
     assert "[suppressed]" not in out and "n/a ‡" in out
     assert "rule empty: no records in the domain" in " ".join(out.split())
+
+
+def test_a_histogram_of_whole_numbers_has_whole_bins_with_separators() -> None:
+    import numpy as np
+
+    from wstats.reports.look_parts import _round_edges
+
+    # day counts 0..30 in at most 12 bins: width 5, not 2.5 (a bin '2.5 to 5' holds 3 and 4)
+    assert _round_edges(0.0, 30.0, 12, whole=True).tolist() == [0, 5, 10, 15, 20, 25, 30]
+    assert np.allclose(np.diff(_round_edges(0.0, 30.0, 12)), 2.5)  # measurements keep 2.5
+    assert _round_edges(0.0, 3.0, 12, whole=True).tolist() == [0, 1, 2, 3]
+
+
+def test_look_bins_of_large_values_carry_thousands_separators(tmp_path: Path) -> None:
+    import numpy as np
+    import pandas as pd
+
+    import wstats
+
+    frame = pd.DataFrame({"amount": np.arange(0.0, 20000.0, 7.0)})
+    frame.to_csv(tmp_path / "a.csv", index=False)
+    looked = wstats.look(tmp_path / "a.csv", ["amount"])
+    labels = [b.text for b in looked.variables[0].bars]
+    assert labels[-1] == "18,000 to 20,000"  # as the summary writes "max 19,999"
