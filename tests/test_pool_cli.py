@@ -218,3 +218,15 @@ def test_satterthwaite_period_df_are_named_in_the_notes(periods: Path) -> None:
     # the notes said "on the design degrees of freedom" while t used Satterthwaite's df
     assert "t and two-sided p on Satterthwaite degrees of freedom from each period's" in text
     assert "on the design degrees of freedom" not in text
+
+
+def test_a_where_that_selects_no_row_is_said_on_dask_as_in_memory(periods: Path) -> None:
+    pytest.importorskip("distributed")
+    args = ["estimate", "period*.xpt", "sl_hours", "--codebook", "tbchs_codebook.toml",
+            "--where", "dm_age > 200"]
+    said = ("wstats: warning: where 'dm_age > 200' selects no row of period1.xpt + period2.xpt + "
+            "period3.xpt, so every estimate has n = 0 and no value; check the condition")
+    for engine in ("memory", "dask"):  # the Dask engine used to say nothing
+        done = run_wstats(*args, "--engine", engine, cwd=periods)
+        assert done.returncode == 0, done.stderr
+        assert said in " ".join(done.stderr.split()), engine
