@@ -359,3 +359,14 @@ def test_look_bins_of_large_values_carry_thousands_separators(tmp_path: Path) ->
     looked = wstats.look(tmp_path / "a.csv", ["amount"])
     labels = [b.text for b in looked.variables[0].bars]
     assert labels[-1] == "18,000 to 20,000"  # as the summary writes "max 19,999"
+
+
+def test_a_three_level_trend_is_explained_without_a_quadratic_contrast(
+    survey: Path, capsys: pytest.CaptureFixture[str]
+) -> None:
+    code, out, err = _run(capsys, "compare", survey, "X", "--by", "H", "--trend", "--codebook",
+                          survey.parent / "cb.toml")
+    assert code == 0, err
+    text = " ".join(out.split())
+    assert "quadratic t" not in text  # three levels: a linear contrast only
+    assert "linear t: orthogonal-polynomial trend contrast across the ordered levels." in text

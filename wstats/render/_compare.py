@@ -141,14 +141,17 @@ _TEST_NOTES = {
     "rao-scott": "Rao-Scott F: independence of the variable and the groups, second-order "
                  "(Satterthwaite) corrected, with the design effects taken at the independence "
                  "fit; deff: their mean (delta-bar), a2: their squared coefficient of variation.",
-    "trend-linear": "linear t, quadratic t: orthogonal-polynomial trend contrasts across the "
-                    "ordered levels.",
+    "trend-linear": "linear t: orthogonal-polynomial trend contrast across the ordered levels.",
+    "trend-quadratic": "linear t, quadratic t: orthogonal-polynomial trend contrasts across the "
+                       "ordered levels.",
 }
 
 
 def _test_notes(result: Comparison) -> list[str]:
     """Return one note per kind of test the comparison holds (none for absent tests)."""
     done = {str(r["test"]) for r in result.tests.rows}
+    if "trend-quadratic" in done:  # one sentence for both trend contrasts
+        done.discard("trend-linear")
     return [" ".join(text for key, text in _TEST_NOTES.items() if key in done)] if done else []
 
 
