@@ -10,7 +10,7 @@ import pandas as pd
 import pytest
 
 import wstats
-import wstats.estimation.display
+import wstats.readers.display
 from conftest import survey_frame, write_survey
 from wstats.render import (
     BOUNDS_RENDERERS,
@@ -73,7 +73,7 @@ def test_comparison_shows_itself(results: dict) -> None:
 
 def test_without_the_render_layer_a_result_shows_a_summary(
         results: dict, monkeypatch: pytest.MonkeyPatch) -> None:
-    monkeypatch.setattr(wstats.estimation.display, "_HOOKS", {})
+    monkeypatch.setattr(wstats.readers.display, "_HOOKS", {})
     assert repr(results["estimate"]).startswith("EstimateTable(")
     assert repr(results["nonresponse"]).startswith("NonresponseTable(")
     assert results["estimate"]._repr_html_() is None
@@ -82,6 +82,9 @@ def test_without_the_render_layer_a_result_shows_a_summary(
 def test_first_look_results_show_themselves(tmp_path: Path) -> None:
     path = write_survey(survey_frame(), tmp_path / "s.sav")
     view = wstats.describe_columns(path, search=["sleep"])
-    assert "SLEEP" in show_text(view)  # a readers-layer record: no hook, the renderer draws it
+    # it used to print as FileOverview(path=..., columns=(ColumnFacts(...),))
+    assert repr(view) == show_text(view) and "SLEEP" in repr(view)
+    assert "SLEEP" in (view._repr_html_() or "")
     looked = wstats.look(path, ["SMOKE"])
     assert repr(looked) == show_text(looked) and "Yes" in repr(looked)
+    assert "Yes" in (looked._repr_html_() or "")

@@ -180,3 +180,53 @@ def test_compare_periods_from_the_command_line(periods: Path) -> None:
     assert [i["name"] for i in out["provenance"]["inputs"]][:3] == [
         "period1.xpt", "period2.xpt", "period3.xpt"]
     assert any(t["test"].startswith("trend") for t in out["tests"])
+
+
+@pytest.mark.parametrize(("options", "said"), [
+    ((), "3 files pooled (equal weights; totals per period)"),
+    (("--pool", "rows"), "3 files pooled (weights by row count; totals per period)"),
+    (("--pool", "0.5,0.25,0.25"), "(weights × 0.5, 0.25, 0.25; totals per period)"),
+    (("--shared-psus",), "(equal weights, strata and PSUs shared; totals per period)"),
+])
+def test_the_design_line_says_how_the_files_were_pooled(
+        periods: Path, options: tuple[str, ...], said: str) -> None:
+    # "rows weights" / "factors weights" read badly, and shared PSUs went unmentioned
+    done = run_wstats("estimate", "period*.xpt", "sl_hours", "--codebook",
+                      "tbchs_codebook.toml", *options, cwd=periods)
+    assert done.returncode == 0, done.stderr
+    design = " ".join(done.stdout.split("(korn-graubard")[0].split())
+    assert said in design
+
+
+@pytest.mark.parametrize("command", ["estimate", "nonresponse"])
+def test_a_chart_of_pooled_files_names_every_file_in_its_provenance(
+        periods: Path, tmp_path: Path, command: str) -> None:
+    pytest.importorskip("matplotlib")
+    chart = tmp_path / "c.svg"
+    done = run_wstats(command, "period*.xpt", "sl_hours", "--by", "_file", "--codebook",
+                      "tbchs_codebook.toml", "--plot", chart, cwd=periods)
+    assert done.returncode == 0, done.stderr  # it was a traceback (a list taken for a path)
+    text = chart.read_text(encoding="utf-8")
+    assert all(f"period{k}.xpt" in text for k in (1, 2, 3))
+
+
+def test_satterthwaite_period_df_are_named_in_the_notes(periods: Path) -> None:
+    done = run_wstats("compare", "period*.xpt", "sl_hours", "--by", "_file", "--codebook",
+                      "tbchs_codebook.toml", "--period-df", "satterthwaite", cwd=periods)
+    assert done.returncode == 0, done.stderr
+    text = " ".join(done.stdout.split())
+    # the notes said "on the design degrees of freedom" while t used Satterthwaite's df
+    assert "t and two-sided p on Satterthwaite degrees of freedom from each period's" in text
+    assert "on the design degrees of freedom" not in text
+
+
+def test_a_where_that_selects_no_row_is_said_on_dask_as_in_memory(periods: Path) -> None:
+    pytest.importorskip("distributed")
+    args = ["estimate", "period*.xpt", "sl_hours", "--codebook", "tbchs_codebook.toml",
+            "--where", "dm_age > 200"]
+    said = ("wstats: warning: where 'dm_age > 200' selects no row of period1.xpt + period2.xpt + "
+            "period3.xpt, so every estimate has n = 0 and no value; check the condition")
+    for engine in ("memory", "dask"):  # the Dask engine used to say nothing
+        done = run_wstats(*args, "--engine", engine, cwd=periods)
+        assert done.returncode == 0, done.stderr
+        assert said in " ".join(done.stderr.split()), engine

@@ -61,7 +61,7 @@ def __getattr__(name: str) -> Any:
     except KeyError:
         raise AttributeError(f"module 'wstats' has no attribute {name!r}") from None
     value = getattr(importlib.import_module(module), name)
-    importlib.import_module("wstats.render")  # results show themselves (estimation/display.py)
+    importlib.import_module("wstats.render")  # results show themselves (readers/display.py)
     globals()[name] = value
     return value
 

@@ -293,7 +293,7 @@ class _Runner:
         o = job.options
         frame = bounds(self.data, self.design, o["variables"], by=o["by"], where=o.get("where"),
                        level=o["level"], reasons=o["reasons"],
-                       reliability=STANDARDS[o["reliability"]])
+                       reliability=STANDARDS[o["reliability"]], categorical=o["categorical"])
         prov = self.provenance(frame.attrs["design"])
         return [(out, _as_bytes(BOUNDS_RENDERERS[out.fmt](frame, provenance=prov), prov))
                 for out in job.outputs]
@@ -327,7 +327,7 @@ class _Runner:
         """Write the methods paragraph of the estimates an entry names."""
         from wstats.estimation.reliability import STANDARDS
         from wstats.render import with_provenance
-        from wstats.reports.methods import methods_paragraph
+        from wstats.reports.methods import codebook_recodes, methods_paragraph
         from wstats.reports.nonresponse import nonresponse
 
         source = self.a_job("estimates", job.options.get("estimates"))
@@ -345,7 +345,8 @@ class _Runner:
         for o_ in job.outputs:
             text = methods_paragraph(
                 table.design, table.settings, counts, rng, self.a.data.name,
-                STANDARDS[o["reliability"]], o_.fmt)
+                STANDARDS[o["reliability"]], o_.fmt,
+                recodes=codebook_recodes(self.codebook, o["variables"]))
             prov = self.provenance(table.design)
             out.append((o_, with_provenance(text + "\n", o_.fmt, prov).encode("utf-8")))
             self.results.setdefault(("methods", job.name), text)

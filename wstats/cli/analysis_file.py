@@ -29,7 +29,7 @@ JOB_KEYS: dict[str, tuple[str, ...]] = {
     "estimates": ("name", *_DOMAIN, "statistics", "categorical", "ratios", "quantiles",
                   "proportion_ci", "reliability", "margins", *_OUT),
     "nonresponse": ("name", *_DOMAIN, "count_invalid", "sort_worst", "not_asked", *_OUT),
-    "bounds": ("name", *_DOMAIN, "reasons", "reliability", *_OUT),
+    "bounds": ("name", *_DOMAIN, "reasons", "reliability", "categorical", *_OUT),
     "compare": ("name", *_DOMAIN, "reference", "pairs", "adjust_p", "trend", "reasons",
                 "not_asked", "categorical", "age_adjust", "standard", *_OUT),
     "table": ("spec", "title", "rows", "columns", "where", "cells", "intervals", "notes",
@@ -207,6 +207,7 @@ class _Parser(_Spec):
             opts["reasons"] = self.names(entry.get("reasons", ["dont_know", "refused"]),
                                          f"{key} reasons", empty=False)
             opts["reliability"] = self.reliability(key, entry)
+            opts["categorical"] = self.names(entry.get("categorical", []), f"{key} categorical")
         return opts
 
     def estimate_options(self, key: str, entry: Mapping[str, Any]) -> dict[str, Any]:
@@ -255,7 +256,7 @@ class _Parser(_Spec):
                                     ("none", "holm", "bh")),
             "trend": self.flag(entry.get("trend", False), f"{key} trend"),
             "reasons": self.flag(entry.get("reasons", False), f"{key} reasons"),
-            "not_asked": tuple(self.names(entry.get("not_asked", ["skipped"]),
+            "not_asked": tuple(self.names(entry.get("not_asked", list(NOT_ASKED)),
                                           f"{key} not_asked")),
             "categorical": self.names(entry.get("categorical", []), f"{key} categorical"),
             **self.age(entry, key),

@@ -191,7 +191,7 @@ def add_estimate_args(p: argparse.ArgumentParser) -> None:
     g.add_argument("--stats", dest="statistics", action=_OldName, help=argparse.SUPPRESS)
     g.add_argument("--ratio", nargs="+", action="extend", metavar="NUM/DEN", default=[],
                    help="ratio of two variables, e.g. --ratio VISITS/PERSONS")
-    g.add_argument("--quantiles", metavar="P,P", default="0.5",
+    g.add_argument("--quantiles", metavar="P,P", default=None,
                    help="probabilities for --statistics quantile (default 0.5)")
     g.add_argument("--level", type=float, default=0.95, help="confidence level (default 0.95)")
     g.add_argument("--proportion-ci", default="korn-graubard",
@@ -199,7 +199,7 @@ def add_estimate_args(p: argparse.ArgumentParser) -> None:
                    help="interval for proportions (default korn-graubard)")
     g.add_argument("--reliability", default=None, metavar="NAME",
                    help="reliability standard: nchs-2017 (default), rse-30, none")
-    _add_age_options(g)
+    _add_age_options(g, estimate=True)
     g.add_argument("--plot", metavar="FILE", help="also draw estimates across domains (.png/.svg)")
     _add_engine_options(p)
     _add_output_options(p, OUTPUT_FORMATS)
@@ -222,13 +222,15 @@ def _add_subpopulation_options(g: Any) -> None:
                    help="treat these variables as categorical (a proportion per level)")
 
 
-def _add_age_options(g: Any) -> None:
+def _add_age_options(g: Any, estimate: bool = False) -> None:
     g.add_argument("--age-adjust", metavar="AGEVAR",
                    help="directly age-adjust over the levels of AGEVAR (needs --standard)")
+    # estimate's --standard once named the reliability standard; only there is it read so
     g.add_argument("--standard", metavar="NAME|FILE.toml",
                    help="standard population for --age-adjust: us2000-11, us2000-adults18, "
-                        "us2000-adults20 or a TOML file (without --age-adjust in estimate: "
-                        "the reliability standard, as --reliability)")
+                        "us2000-adults20 or a TOML file" + (
+                            " (without --age-adjust: the reliability standard, as "
+                            "--reliability)" if estimate else ""))
 
 
 def add_compare_args(p: argparse.ArgumentParser) -> None:
@@ -355,11 +357,15 @@ def add_bounds_args(p: argparse.ArgumentParser) -> None:
     p.add_argument("--by", nargs="+", action="extend", metavar="COL", default=[],
                    help="domains: levels of these variables, crossed")
     p.add_argument("--where", metavar="EXPR", help="row condition defining a subpopulation")
+    p.add_argument("--categorical", nargs="+", action="extend", metavar="COL", default=[],
+                   help="treat these variables as categorical (a proportion per level)")
     p.add_argument("--unknown", default="dont_know,refused", metavar="REASONS",
                    help="reasons whose answers are unknown (default dont_know,refused)")
     p.add_argument("--level", type=float, default=0.95, help="confidence level (default 0.95)")
-    p.add_argument("--standard", default="nchs-2017", metavar="NAME",
+    p.add_argument("--reliability", default="nchs-2017", metavar="NAME",
                    help="reliability standard: nchs-2017 (default), rse-30, none")
+    # the name estimate uses for the same thing; --standard names a standard population there
+    p.add_argument("--standard", dest="reliability", action=_OldName, help=argparse.SUPPRESS)
     _add_engine_options(p)
     _add_output_options(p, ("table", "csv", "json", "markdown"))
 
@@ -373,8 +379,21 @@ class Parser(argparse.ArgumentParser):
         # taken as a value, it gets the message that explains the range syntax.
         self._negative_number_matcher = re.compile(r"^-\d+(:-?\d*)?$|^-\d*\.\d+$")
 
+    def parse_known_args(self, args: Any = None, namespace: Any = None) -> Any:
+        # Refused by the innermost parser that saw them, so that the message names the
+        # subcommand ('wstats estimate: unrecognized arguments'), not the top program.
+        parsed, extra = super().parse_known_args(args, namespace)
+        if any(a == "--engine" or a.startswith("--engine=") for a in extra):
+            self.error("--engine: this command runs in memory only; the Dask engine serves "
+                       "estimate and nonresponse (docs/scale.md)")
+        if extra:
+            self.error(f"unrecognized arguments: {' '.join(extra)}")
+        return parsed, extra
+
     def error(self, message: str) -> Any:
-        raise UsageError(f"{self.prog}: {message} (see '{self.prog} --help')")
+        # 'wstats: error:' is printed before it; a subcommand's mistake names the subcommand
+        where = "" if self.prog == "wstats" else f"{self.prog}: "
+        raise UsageError(f"{where}{message} (see '{self.prog} --help')")
 
 
 def one_line(message: str) -> str:

@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import argparse
 import sys
+from collections.abc import Sequence
 from pathlib import Path
 from typing import Any
 
@@ -50,6 +51,12 @@ __all__ = ["COMMANDS"]
 
 def _run_estimate(args: argparse.Namespace) -> int:
     parse_rows(args.rows)  # usage mistakes first, before any file is touched
+    statistics = split_list([args.statistics])
+    quantiles = _quantiles(args.quantiles, statistics)
+    if args.margins and len(args.by) < 2:  # nothing to add: it would be silently ignored
+        raise UsageError("--margins adds each by-variable alone to a crossed --by A B; with "
+                         f"{len(args.by)} by-variable{'' if len(args.by) == 1 else 's'} there "
+                         "is no crossing: leave --margins out")
     paths = data_paths(args)
     _check_outputs(args, [*paths, args.codebook])
     from wstats.estimation.estimate import estimate
@@ -66,9 +73,9 @@ def _run_estimate(args: argparse.Namespace) -> int:
                         [*variables, *[x for r in ratios for x in r], *args.by, *age])
     table = estimate(
         data, design, variables, engine=args.engine, codebook=codebook,
-        scheduler=args.scheduler, statistics=split_list([args.statistics]) or None, by=args.by,
+        scheduler=args.scheduler, statistics=statistics or None, by=args.by,
         where=args.where, categorical=args.categorical, ratios=ratios,
-        quantiles=[float(q) for q in split_list([args.quantiles])], level=args.level,
+        quantiles=quantiles, level=args.level,
         proportion_ci=args.proportion_ci, reliability=_standard(_reliability_name(args)),
         margins=args.margins, age_adjust=args.age_adjust,
         standard=args.standard if args.age_adjust else None,
@@ -78,8 +85,25 @@ def _run_estimate(args: argparse.Namespace) -> int:
         from wstats.reports.plots import plot_domains
 
         plot_domains(table, Path(args.plot), overwrite=args.overwrite,
-                     provenance=_provenance(table, [args.data], args.codebook))
+                     provenance=_provenance(table, paths, args.codebook))
     return 0
+
+
+def _quantiles(text: str | None, statistics: Sequence[str]) -> list[float]:
+    """Return the probabilities of --quantiles (default 0.5), checked against --statistics.
+
+    Given without a quantile to estimate, they would be ignored and a mean shown instead.
+    """
+    if text is None:
+        return [0.5]
+    if "quantile" not in statistics:
+        raise UsageError(f"--quantiles {text} needs --statistics quantile (e.g. --statistics "
+                         f"quantile --quantiles {text})")
+    try:
+        return [float(q) for q in text.split(",") if q.strip()]
+    except ValueError:
+        raise UsageError(f"--quantiles '{text}' is not a comma list of probabilities between "
+                         "0 and 1 (e.g. --quantiles 0.25,0.5,0.75)") from None
 
 
 def _reliability_name(args: argparse.Namespace) -> str:
@@ -162,7 +186,7 @@ def _run_nonresponse(args: argparse.Namespace) -> int:
         from wstats.reports.plots import plot_reasons
 
         plot_reasons(table, Path(args.plot), overwrite=args.overwrite,
-                     provenance=_provenance(table, [args.data], args.codebook))
+                     provenance=_provenance(table, paths, args.codebook))
     return 0
 
 
@@ -179,7 +203,7 @@ def _run_bounds(args: argparse.Namespace) -> int:
                                                 args.where, args.data))
     frame = bounds(data, design, args.variables, by=args.by, where=args.where,
                    level=args.level, reasons=tuple(split_list([args.unknown])),
-                   reliability=_standard(args.standard))
+                   reliability=_standard(args.reliability), categorical=args.categorical)
     _emit(frame, "bounds", args, paths, args.codebook)
     return 0
 

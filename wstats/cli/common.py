@@ -131,4 +131,13 @@ def _not_an_input(output: str, inputs: Sequence[str | None]) -> None:
 def _print_rich(renderable: Any) -> None:
     from rich.console import Console
 
-    Console(soft_wrap=False).print(renderable)
+    console = Console(soft_wrap=False)
+    if console.is_terminal:
+        console.print(renderable)
+        return
+    from wstats.render import strip_line_ends
+
+    # into a file or a pipe: no padding at line ends (diffs, logs and copied text stay clean)
+    with console.capture() as captured:
+        console.print(renderable)
+    sys.stdout.write(strip_line_ends(captured.get()))

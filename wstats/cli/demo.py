@@ -49,8 +49,11 @@ def run_demo(folder: Path, *, overwrite: bool = False, rows: int | None = None,
         from demo.periods import write_periods
 
         pooled = write_periods(folder, periods=periods, rows=rows)
-        show(f"\nPooled periods: wstats estimate '{folder / 'period*.xpt'}' sl_hours --by _file "
-             f"--codebook {folder / 'tbchs_codebook.toml'}")
+        names = [p.name for p in pooled if p.suffix == ".xpt"]
+        # two lines of at most 80 characters for the default folder, still one command
+        show(f"\nAlso {len(names)} periods of the survey to pool ({', '.join(names)}):\n"
+             f"  wstats estimate '{folder / 'period*.xpt'}' sl_hours --by _file \\\n"
+             f"    --codebook {folder / 'tbchs_codebook.toml'}")
     return sorted({*survey, *outputs, *pooled})
 
 

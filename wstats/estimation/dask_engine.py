@@ -31,7 +31,7 @@ from wstats.decoding.stacking import (
     is_several,
     period_stems,
 )
-from wstats.errors import EngineError
+from wstats.errors import EngineError, WstatsWarning
 
 if TYPE_CHECKING:
     from wstats.decoding.codebook import Codebook
@@ -123,6 +123,12 @@ def summed_estimate(
     if files is not None:
         total.labels[FILE_COLUMN] = {float(k + 1): s for k, s in enumerate(files.labels)}
         _warn_pooling(total, files)
+    if where and not bool((total.main["rows"] * total.main["_in"]).sum()):
+        import warnings  # as the in-memory engine says it
+
+        from wstats.estimation.domains import no_row_note
+        names = " + ".join(Path(p).name for p in paths)  # as a pooled Dataset names them
+        warnings.warn(no_row_note(where, names, check=True), WstatsWarning, stacklevel=2)
     bound, lam = summed_design(total.main, design, files, len(req.replicates))
     from wstats.estimation.from_sums import pieces_from_sums
 
@@ -158,7 +164,6 @@ def _warn_pooling(total: PartSums, files: PeriodFiles) -> None:
     import warnings
 
     from wstats.design.pooling import NOT_IN_FILE, warn_weight_sums
-    from wstats.errors import WstatsWarning
 
     for name, lacking in sorted(total.absent.items()):
         warnings.warn(f"variable '{name}' is not in {', '.join(files.names[k] for k in lacking)}"

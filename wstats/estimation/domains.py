@@ -20,7 +20,7 @@ if TYPE_CHECKING:
     Index = npt.NDArray[np.int64]
     Bool = npt.NDArray[np.bool_]
 
-__all__ = ["Domains", "empty_where_note", "no_cell"]
+__all__ = ["Domains", "empty_where_note", "no_cell", "no_row_note"]
 
 @dataclass(frozen=True, eq=False)
 class Domains:
@@ -69,9 +69,7 @@ def empty_where_note(where: str, expr: Expression, data: Dataset) -> str:
     When it tests a variable for a number that the codebook turns into a missing reason,
     the number is no longer a value of the variable: say so, and how to select by reason.
     """
-    source = f" of {data.source}" if data.source else ""
-    note = (f"where '{where}' selects no row{source}, so every estimate has n = 0 and no "
-            "value")
+    note = no_row_note(where, data.source or "")
     codes = data.metadata.get("reason_codes", {})
     for name, value in expr.compared_codes():
         reason = codes.get(name, {}).get(value)
@@ -79,4 +77,14 @@ def empty_where_note(where: str, expr: Expression, data: Dataset) -> str:
             return (f"{note}; {value:g} is a code the codebook turns into the reason "
                     f"'{reason}' for {name}, so it is no longer a value of {name}: select "
                     f"those rows with reason({name}, \"{reason}\")")
-    return note + "; check the condition against the values in the data"
+    return note + _CHECK
+
+
+_CHECK = "; check the condition against the values in the data"
+
+
+def no_row_note(where: str, source: str, check: bool = False) -> str:
+    """Return the start of the note on a ``where`` that selects no row of *source*."""
+    of = f" of {source}" if source else ""
+    return (f"where '{where}' selects no row{of}, so every estimate has n = 0 and no value"
+            + (_CHECK if check else ""))

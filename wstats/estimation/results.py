@@ -15,7 +15,7 @@ from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
-from wstats.estimation.display import as_html, as_text
+from wstats.readers.display import as_html, as_text
 
 if TYPE_CHECKING:
     import numpy.typing as npt

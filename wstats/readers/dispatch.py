@@ -166,6 +166,11 @@ def check_file(path: Path) -> str:
     try:
         mode = path.stat().st_mode
     except FileNotFoundError:
+        if any(ch in path.name for ch in "*?["):  # a pattern reached a one-file command
+            raise ReadError(
+                f"data file '{path}' does not exist: a pattern pools several files only in "
+                "estimate, compare, nonresponse, bounds, table and run; name one file here"
+            ) from None
         raise ReadError(f"data file '{path}' does not exist; check the path") from None
     except OSError as exc:
         raise ReadError(f"data file '{path}' cannot be opened: {exc.strerror}") from exc

@@ -26,6 +26,7 @@ import numpy as np
 
 from wstats.errors import ReadError
 from wstats.readers.dispatch import file_columns, format_of, read_raw
+from wstats.readers.display import as_html, as_text
 from wstats.readers.raw import RawColumn
 
 __all__ = ["TILE_COLUMNS", "ColumnFacts", "FileOverview", "describe_columns",
@@ -101,6 +102,14 @@ class FileOverview:
             row["has_value_labels"] = c.value_labels > 0
             out.append(row)
         return out
+
+    def __repr__(self) -> str:
+        """Show the columns as the terminal does (``wstats columns``)."""
+        return as_text(self, f"FileOverview({self.path}: {len(self.columns)} columns)")
+
+    def _repr_html_(self) -> str | None:
+        """Show the columns in a notebook (the terminal text, pre-formatted)."""
+        return as_html(self)
 
 
 def describe_columns(path: str | os.PathLike[str], search: Sequence[str] = (),

@@ -10,7 +10,7 @@ One registry per result type maps a format name to ``f(table, provenance=None)``
 
 Results show themselves in a Python session through these registries: importing this
 package registers :func:`wstats.render._show.show_text` and ``show_html`` with
-:mod:`wstats.estimation.display`.
+:mod:`wstats.readers.display`.
 
 Text formats return ``str``, ``xlsx`` returns ``bytes`` and ``terminal`` a rich renderable.
 Every written format carries the provenance record (``provenance=None`` falls back to the
@@ -43,6 +43,7 @@ __all__ = [
     "TABLE_RENDERERS",
     "plain_text",
     "render_check",
+    "strip_line_ends",
     "with_provenance",
     "write_table",
 ]
@@ -179,7 +180,12 @@ def plain_text(renderable: Any, provenance: Mapping[str, Any] | None = None,
     buf = io.StringIO()
     Console(file=buf, width=width, color_system=None, force_terminal=False,
             legacy_windows=False).print(renderable)
-    return with_provenance(buf.getvalue(), "text", provenance)
+    return with_provenance(strip_line_ends(buf.getvalue()), "text", provenance)
+
+
+def strip_line_ends(text: str) -> str:
+    """Return *text* without the spaces the table layout pads each line with."""
+    return "\n".join(line.rstrip() for line in text.split("\n"))
 
 
 def with_provenance(text: str, fmt: str, provenance: Mapping[str, Any] | None) -> str:
@@ -215,8 +221,8 @@ def _show_html(obj: Any) -> str | None:
 
 
 def _register_display() -> None:
-    """Let results show themselves (see :mod:`wstats.estimation.display`)."""
-    from wstats.estimation.display import register
+    """Let results show themselves (see :mod:`wstats.readers.display`)."""
+    from wstats.readers.display import register
 
     register(_show_text, _show_html)
 

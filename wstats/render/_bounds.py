@@ -46,9 +46,14 @@ def _pct(x: Any) -> str:
 
 def _cells(r: Mapping[str, Any], notes: FlagNotes) -> list[str]:
     """Return Estimate, CI, Lower, Upper, Unknown and n of one row (suppressed: hidden)."""
-    suppress = bool(r.get("suppress", False))
-    marks = notes.mark(tuple(r.get("flags") or ()), suppress)
+    flags = tuple(r.get("flags") or ())
+    # an empty domain has nothing to hide: "n/a", as nonresponse shows it, not "[suppressed]"
+    empty = "empty" in flags
+    suppress = bool(r.get("suppress", False)) and not empty
+    marks = notes.mark(flags, suppress)
     n = fmt_count(r["n_valid"])
+    if empty:
+        return [_with_marks("n/a", marks), "", "", "", "", n]
     if suppress:
         return [_with_marks(SUPPRESSED, marks), "", "", "", _pct(r["unknown_share"]), n]
     ci = interval(fmt_number(100 * float(r["ci_low"]), 1), fmt_number(100 * float(r["ci_high"]), 1))

@@ -10,6 +10,7 @@ from __future__ import annotations
 import json
 import math
 from collections.abc import Mapping
+from dataclasses import replace
 from typing import TYPE_CHECKING, Any
 
 from wstats.render._grid import Column, Grid, default_provenance, design_line
@@ -28,7 +29,7 @@ _DIFF_COLUMNS = (
     Column("group_a", "Group A", "l"), Column("group_b", "Group B", "l"),
     Column("estimate_a", "A"), Column("estimate_b", "B"),
     Column("difference", "B - A"), Column("se", "SE"),
-    Column("ci", "Interval"), Column("t", "t"), Column("p", "p"),
+    Column("ci", "CI"), Column("t", "t"), Column("p", "p"),
     Column("p_adjusted", "p adjusted"), Column("flags", "Flags", "l"))
 _TEST_COLUMNS = (
     Column("variable", "Variable", "l"), Column("test", "Test", "l"),
@@ -66,7 +67,7 @@ def _difference_cells(row: Mapping[str, Any], d: int) -> tuple[str, ...]:
                                  else "mean")
     return (row["variable"], str(level), str(row["group_a"]), str(row["group_b"]),
             num["estimate_a"], num["estimate_b"], num["difference"], num["se"],
-            interval(num["ci_low"], num["ci_high"]), fmt_number(row["t"], 2),
+            interval(num["ci_low"], num["ci_high"], words=True), fmt_number(row["t"], 2),
             p_text(row["p"]), p_text(row["p_adjusted"]), ", ".join(row.get("flags") or ()))
 
 
@@ -93,17 +94,11 @@ def compare_notes(result: Comparison) -> tuple[str, ...]:
     from wstats.reports.compare_rows import FLAGS
 
     s = result.settings
-    notes = [design_line(result.design, {}, result.level),
-             "B - A: group B's value minus group A's; proportions and "
+    notes = ["B - A: group B's value minus group A's; proportions and "
              "nonresponse rates in percent, their differences in percentage points. SE from "
-             "the full design covariance of the two estimates; t and two-sided p on the "
-             "design degrees of freedom.",
-             "Wald F: all group means (or adjusted values) equal, on (k-1, d-k+2) degrees of "
-             "freedom. Rao-Scott F: independence of the variable and the groups, second-order "
-             "(Satterthwaite) corrected, with the design effects taken at the independence fit; "
-             "deff: their mean (delta-bar), a2: their squared coefficient of variation. "
-             "linear t, quadratic t: orthogonal-polynomial trend contrasts across the ordered "
-             "levels.",
+             "the full design covariance of the two estimates; t and two-sided p on "
+             + _df_words(result) + ".",
+             *_test_notes(result),
              "A difference that is not significant is not evidence that the groups are equal; "
              "many comparisons raise the chance of a false positive."]
     if s.get("adjust_p") and s["adjust_p"] != "none":
@@ -125,6 +120,39 @@ def compare_notes(result: Comparison) -> tuple[str, ...]:
                     for f in r.get("flags") or ()})
     notes += [f"{f}: {FLAGS[f]}" for f in fired if f in FLAGS]
     return tuple(notes)
+
+
+def _df_words(result: Comparison) -> str:
+    """Return which degrees of freedom the t of a difference uses."""
+    if result.settings.get("df_rule") != "satterthwaite (periods)":
+        return "the design degrees of freedom"
+    dfs = [float(r["df"]) for r in result.differences.rows
+           if r.get("df") is not None and math.isfinite(float(r["df"]))]
+    span = (f" ({fmt_number(min(dfs), 0)} to {fmt_number(max(dfs), 0)})"
+            if dfs and round(min(dfs)) != round(max(dfs)) else
+            f" ({fmt_number(dfs[0], 0)})" if dfs else "")
+    return ("Satterthwaite degrees of freedom from each period's own design df" + span
+            + ", not the design df above")
+
+
+_TEST_NOTES = {
+    "wald": "Wald F: all group means (or adjusted values) equal, on (k-1, d-k+2) degrees of "
+            "freedom.",
+    "rao-scott": "Rao-Scott F: independence of the variable and the groups, second-order "
+                 "(Satterthwaite) corrected, with the design effects taken at the independence "
+                 "fit; deff: their mean (delta-bar), a2: their squared coefficient of variation.",
+    "trend-linear": "linear t: orthogonal-polynomial trend contrast across the ordered levels.",
+    "trend-quadratic": "linear t, quadratic t: orthogonal-polynomial trend contrasts across the "
+                       "ordered levels.",
+}
+
+
+def _test_notes(result: Comparison) -> list[str]:
+    """Return one note per kind of test the comparison holds (none for absent tests)."""
+    done = {str(r["test"]) for r in result.tests.rows}
+    if "trend-quadratic" in done:  # one sentence for both trend contrasts
+        done.discard("trend-linear")
+    return [" ".join(text for key, text in _TEST_NOTES.items() if key in done)] if done else []
 
 
 def compare_grids(result: Comparison) -> tuple[Grid, Grid]:
@@ -150,9 +178,14 @@ def compare_grids(result: Comparison) -> tuple[Grid, Grid]:
     if len(firsts) == 1:  # every row against one reference level: say it once
         drop.add("group_a")
         notes = (f"A: {firsts.pop()}, the reference level; B: the level compared with it.",)
-    diff = _grid(f"Differences between levels of {result.by}{tail}", _DIFF_COLUMNS, drop,
+    columns = tuple(Column("ci", f"{_level_text(result.level)}% CI") if c.key == "ci" else c
+                    for c in _DIFF_COLUMNS)
+    diff = _grid(f"Differences between levels of {result.by}{tail}", columns, drop,
                  [_difference_cells(r, decimals[(r["variable"], r["statistic"])])
                   for r in diffs], notes)
+    # the design line under the title, as in every other command's output
+    diff = replace(diff, caption=design_line(
+        result.design, {"where": result.settings.get("where")}, result.level))
     keep_test = set()
     if not any(r["test"] == "rao-scott" for r in result.tests.rows):
         keep_test |= {"mean_deff", "deff_cv2"}
@@ -161,6 +194,11 @@ def compare_grids(result: Comparison) -> tuple[Grid, Grid]:
     tests = _grid(f"Tests across levels of {result.by}{tail}", _TEST_COLUMNS, keep_test,
                   [_test_cells(r) for r in result.tests.rows], compare_notes(result))
     return diff, tests
+
+
+def _level_text(level: float) -> str:
+    """Return 95 for 0.95, 99.5 for 0.995."""
+    return fmt_number(level * 100, 1).rstrip("0").rstrip(".")
 
 
 def _grid(title: str, columns: tuple[Column, ...], drop: set[str],
@@ -198,7 +236,8 @@ def _by_variable(g: Grid) -> Grid:
             kinds.append("section")
         rows.append(row[1:])
         kinds.append("data")
-    return Grid(g.title, g.columns[1:], tuple(rows), tuple(kinds), g.notes)
+    return Grid(g.title, g.columns[1:], tuple(rows), tuple(kinds), g.notes,
+                caption=g.caption)
 
 
 def compare_markdown(result: Comparison, provenance: Mapping[str, Any] | None = None) -> str:

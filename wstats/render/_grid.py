@@ -163,11 +163,13 @@ def estimate_grid(table: EstimateTable) -> Grid:
         pct = stat == "proportion"
         se_dec = 2 if pct else auto_decimals(_median_se(sub))
         dec = 1 if pct else max(0, se_dec - 1)
+        # one interval style per block: "lo to hi" for all once any limit is negative
+        words = bool((sub["ci_low"].astype(float) < 0).any())
         last: tuple[str, ...] | None = None
         for row in sub.to_dict(orient="records"):
             domain = tuple(group_text(row[b]) for b in by)
             cells = [*domain, *([_level_text(row)] if has_level else [])]
-            cells += _number_cells(row, notes, dec, se_dec, pct)
+            cells += _number_cells(row, notes, dec, se_dec, pct, words)
             # a domain's n and reasons are the same on each of its level rows: shown once
             once = pct and domain == last
             cells += ["", ""] if once else [fmt_count(row["n"]),
@@ -205,11 +207,15 @@ def _level_text(row: Mapping[str, Any]) -> str:
 
 
 def _number_cells(
-    row: Mapping[str, Any], notes: FlagNotes, dec: int, se_dec: int, pct: bool
+    row: Mapping[str, Any], notes: FlagNotes, dec: int, se_dec: int, pct: bool,
+    words: bool = False,
 ) -> list[str]:
     """Return Estimate, SE and CI cells (percent scale for proportions; marks; suppression)."""
-    marks = notes.mark(tuple(row["flags"] or ()), bool(row["suppress"]))
-    if row["suppress"]:
+    flags = tuple(row["flags"] or ())
+    # an empty domain has nothing to hide: "n/a", as nonresponse shows it, not "[suppressed]"
+    empty = "empty" in flags
+    marks = notes.mark(flags, bool(row["suppress"]) and not empty)
+    if row["suppress"] and not empty:
         return [with_marks(SUPPRESSED, marks), "", ""]
     k = 100.0 if pct else 1.0
     est = float(row["estimate"]) * k
@@ -220,7 +226,7 @@ def _number_cells(
     lo = fmt_number(float(row["ci_low"]) * k, dec, grouping=True)
     hi = fmt_number(float(row["ci_high"]) * k, dec, grouping=True)
     return [with_marks(text, marks), fmt_number(float(row["se"]) * k, se_dec, grouping=True),
-            interval(lo, hi)]
+            interval(lo, hi, words=words)]
 
 
 def nonresponse_grid(table: NonresponseLike) -> Grid:
@@ -319,10 +325,8 @@ def design_line(design: Mapping[str, Any], settings: Mapping[str, Any], level: f
     if df:
         parts.append(df)
     pool = design.get("pool")
-    if pool:  # several files: which factors, and that totals are per period
-        rule, k = pool.get("rule"), len(pool.get("factors") or {})
-        parts.append(f"{k} file{'' if k == 1 else 's'} pooled ({rule} weights; totals per "
-                     "period)")
+    if pool:
+        parts.append(_pool_text(pool))
     if settings.get("engine") == "dask":
         parts.append("Dask engine")
     method = settings.get("proportion_ci")
@@ -331,6 +335,22 @@ def design_line(design: Mapping[str, Any], settings: Mapping[str, Any], level: f
     where = settings.get("where")
     sub = f"; subpopulation {where} (full design kept)" if where else ""
     return ("Design: " + ", ".join(parts) + "; " + ci if parts else ci) + sub
+
+
+def _pool_text(pool: Mapping[str, Any]) -> str:
+    """Return ``3 files pooled (equal weights; totals per period)`` and its variants."""
+    factors = dict(pool.get("factors") or {})
+    k = len(factors)
+    rule = pool.get("rule")
+    if rule == "equal":
+        how = "equal weights"
+    elif rule == "rows":
+        how = "weights by row count"
+    else:
+        how = "weights × " + ", ".join(f"{float(f):g}" for f in factors.values())
+    if pool.get("strata") == "shared across files":
+        how += ", strata and PSUs shared"
+    return f"{k} file{'' if k == 1 else 's'} pooled ({how}; totals per period)"
 
 
 def _df_text(design: Mapping[str, Any], settings: Mapping[str, Any]) -> str:

@@ -64,40 +64,41 @@ def _layout(widths: list[int], width: int) -> list[tuple[int, list[int]]]:
 
 
 def _span_line(g: Grid, cols: list[int], sized: dict[int, int]) -> RenderableType:
-    """Return the line naming each group over its columns, centred in a rule.
+    """Return the line(s) naming each group over its own columns, centred in a rule.
 
-    A name longer than its columns reaches left into blank space (the row labels' part of
-    the line, or a group without a name) before it is shortened with an ellipsis.
+    A name longer than its columns is wrapped onto more lines over them (bottom-aligned), so
+    it never reaches over a neighbour such as the whole-population column.
     """
     from rich.text import Text
 
     group = {i: s.text for s in g.spans for i in range(s.start, s.stop)}
-    line = [" "] * (sized[0] + _GAP)
-    free, k = 0, 1  # free: the first cell no name has taken
+    blocks: list[tuple[int, int, list[str]]] = []  # (start, span, lines)
+    pos, k = sized[0] + _GAP, 1
     while k < len(cols):
         name, j = group.get(cols[k]), k
         while j < len(cols) and group.get(cols[j]) == name:
             j += 1
         span = sum(sized[c] for c in cols[k:j]) + _GAP * (j - k - 1)
-        start = len(line)
-        line += [" "] * span
         if name:
-            text = _ruled(name, span, room=start + span - free)
-            line[start + span - len(text):start + span] = list(text)
-            free = start + span
-        line += [" "] * _GAP
+            blocks.append((pos, span, _ruled(name, span)))
+        pos += span + _GAP
         k = j
-    return Text("".join(line).rstrip())
+    height = max((len(b[2]) for b in blocks), default=1)
+    lines = [[" "] * pos for _ in range(height)]
+    for start, span, texts in blocks:
+        for n, text in enumerate(texts, start=height - len(texts)):
+            lines[n][start:start + span] = list(text.center(span))
+    return Text("\n".join("".join(line).rstrip() for line in lines))
 
 
-def _ruled(name: str, span: int, room: int) -> str:
-    """Return *name* centred in a rule of *span* cells, or as much as *room* allows."""
+def _ruled(name: str, span: int) -> list[str]:
+    """Return *name* centred in a rule of *span* cells, or wrapped to lines of *span*."""
+    import textwrap
+
     if len(name) + 2 <= span:
         fill = span - len(name) - 2
-        return "─" * (fill // 2) + f" {name} " + "─" * (fill - fill // 2)
-    if len(name) <= room:
-        return name
-    return name[: max(room - 1, 0)] + "…"
+        return ["─" * (fill // 2) + f" {name} " + "─" * (fill - fill // 2)]
+    return textwrap.wrap(name, max(span, 1)) or [""]
 
 
 def _table(g: Grid, cols: list[int], sized: dict[int, int], rows: Sequence[tuple[str, ...]],

@@ -1,7 +1,7 @@
 """Results drawn for a Python session: ``repr`` is the terminal table, ``_repr_html_`` the
 ``--format html`` renderer (pre-formatted terminal text for results without an HTML format).
 
-:mod:`wstats.render` registers these two functions with :mod:`wstats.estimation.display` when
+:mod:`wstats.render` registers these two functions with :mod:`wstats.readers.display` when
 it is imported; the results ask there, since they cannot import the render layer.
 """
 

@@ -34,6 +34,7 @@ __all__ = [
 
 _SHORT = 16  # label columns up to this width are kept on one line
 _WRAP_AT = 14  # a wrappable text column is given at least this width
+_LABEL_WRAP = 20  # a long label column is wrapped to this width rather than split the table
 _PAD = 2  # what rich adds per column: the separator and one space of padding on the left
 #: Longest cell text shown; longer labels (a CSV cell of a million characters) are cut here,
 #: so that drawing takes time in proportion to the table, not to the text (machine formats
@@ -138,9 +139,21 @@ def _column_blocks(
     # a Level column that is empty in this block (means beside proportions) is left out
     base = [i for i in range(lead) if g.columns[i].key != "level"
             or any(i < len(r) and r[i] for r in rows)]
+    blocks = _split(base, range(lead, len(g.columns)), need, width)
+    if len(blocks) > 1:  # long labels (value labels of a file) wrap before columns split off
+        narrow = [min(n, _LABEL_WRAP + _PAD) if i in base and n - _PAD > _SHORT else n
+                  for i, n in enumerate(need)]
+        fewer = _split(base, range(lead, len(g.columns)), narrow, width)
+        blocks = fewer if len(fewer) < len(blocks) else blocks
+    return blocks
+
+
+def _split(base: list[int], others: Iterable[int], need: list[int], width: int
+           ) -> list[list[int]]:
+    """Return blocks of column indexes, each *base* plus the others that fit *width*."""
     current, used = list[int](), sum(need[i] for i in base)
     blocks: list[list[int]] = []
-    for i in range(lead, len(g.columns)):
+    for i in others:
         if current and used + need[i] - _PAD > width:
             blocks.append(base + current)
             current, used = [], sum(need[i] for i in base)

@@ -14,8 +14,9 @@ import numpy as np
 
 from wstats.decoding.columns import Dataset, DecodedColumn, require_dataset
 from wstats.decoding.reasons import VALID
-from wstats.estimation.display import as_html, as_text
 from wstats.estimation.results import _plain
+from wstats.estimation.statistics import check_statistic
+from wstats.readers.display import as_html, as_text
 from wstats.reports.nonresponse import _UNKNOWN, _augmented, _check_variables, _indicator, _rows
 
 if TYPE_CHECKING:
@@ -38,6 +39,7 @@ def bounds(
     level: float = 0.95,
     reasons: Sequence[str] = ("dont_know", "refused"),
     reliability: ReliabilityStandard | None = None,
+    categorical: Sequence[str] = (),
 ) -> pd.DataFrame:
     """Worst-case bounds for the proportions of a categorical item under item nonresponse.
 
@@ -55,13 +57,16 @@ def bounds(
     ----------
     data : decoded dataset.
     design : the sample design.
-    variables : one categorical item or several (treated as categorical whatever their kind).
+    variables : one categorical item or several (categorical, binary or text by their kind,
+        fully value-labelled, or named in *categorical*); a continuous or count variable is
+        refused, as for a proportion in :func:`wstats.estimate`.
     by : domain variables (the population row comes first in each variable's block).
     where : condition defining the population domain.
     level : confidence level of the valid-case interval.
     reasons : reasons whose rows could have held any level (default don't know and refused).
     reliability : the reliability standard, as for :func:`wstats.estimate` (None: the
         default); a valid-case estimate it suppresses is suppressed here too, with its bounds.
+    categorical : variables to treat as categorical whatever their kind.
 
     Returns
     -------
@@ -84,6 +89,8 @@ def bounds(
     from wstats.estimation.estimate import estimate
 
     names = _check_variables(data, [variables] if isinstance(variables, str) else variables)
+    for v in names:  # one proportion per distinct value of a count is never what was meant
+        check_statistic("proportion", data[v], categorical)
     codes = np.array([data.vocabulary.code(r) for r in reasons], dtype=np.int8)
     extra = {f"{v}{_UNKNOWN}": _unknown_column(data[v], codes) for v in names}
     aug = _augmented(data, extra)

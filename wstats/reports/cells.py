@@ -228,6 +228,15 @@ def with_marks(text: str, marks: str) -> str:
     return f"{text} {marks}" if text and marks else (text or marks)
 
 
-def interval(lo: str, hi: str) -> str:
-    """Return ``lo–hi`` with an en dash, or '' when either end is missing."""
-    return f"{lo}{_DASH}{hi}" if lo and hi else ""
+def interval(lo: str, hi: str, *, words: bool = False) -> str:
+    """Return ``lo–hi`` with an en dash, or '' when either end is missing.
+
+    A negative end, or ``words=True`` (a column of differences, which often span zero),
+    reads as ``-0.10 to -0.02``: a dash between two minus signs (``-0.10–-0.02``) is easily
+    misread.
+    """
+    if not (lo and hi):
+        return ""
+    if words or lo.startswith("-") or hi.startswith("-"):
+        return f"{lo} to {hi}"
+    return f"{lo}{_DASH}{hi}"

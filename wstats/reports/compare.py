@@ -122,7 +122,8 @@ def compare(
     age_adjust : the age variable: group estimates are directly age-adjusted.
     standard : standard population for ``age_adjust`` (a built-in name, a TOML file path or
         a :class:`~wstats.estimation.standards.Standard`).
-    not_asked : reasons meaning the item was not asked (left out of nonresponse rates).
+    not_asked : reasons meaning the item was not asked (left out of nonresponse rates);
+        default skipped and not_applicable, as in :func:`wstats.nonresponse`.
 
     Returns
     -------
@@ -160,7 +161,7 @@ def compare(
     settings = {"pairs": pairs, "reference": plan.labels[plan.pairs[0][0]],
                 "adjust_p": adjust_p,
                 "df_rule": "design" if plan.pair_df is None else "satterthwaite (periods)",
-                "level": level,
+                "level": level, "where": where,
                 "standard": plan.standard, "age_adjust": age_adjust,
                 "deff_at": "independence fit", "wald_df2": "d - k + 2"}
     return Comparison(RowTable(tuple(diff_rows), DIFFERENCE_COLUMNS),

@@ -34,7 +34,7 @@ def reason_rows(data: Dataset, plan: Any, name: str, not_asked: Sequence[str]
     """Return the nonresponse-rate difference rows and the reason x group test of *name*."""
     eng = plan.groups
     reasons = eng.column(data, name).reasons
-    # a default reason the data never met is left out; a name the caller gave must exist
+    # a default reason the codebook's vocabulary lacks is simply absent, as in nonresponse
     skip = [data.vocabulary.code(r) for r in dict.fromkeys(("skipped", *not_asked))
             if r in data.vocabulary or r not in NOT_ASKED]
     asked = ~np.isin(reasons, skip)

@@ -8,7 +8,7 @@ from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
-from wstats.estimation.display import as_html, as_text
+from wstats.readers.display import as_html, as_text
 
 if TYPE_CHECKING:
     import pandas as pd

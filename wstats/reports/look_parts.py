@@ -219,27 +219,35 @@ def _histogram(y: np.ndarray, w: np.ndarray, dist: _Distribution,
         return ()
     if len(dist.levels) <= bins:
         return _levels(dist, {})
-    edges = _round_edges(float(dist.levels[0]), float(dist.levels[-1]), bins)
+    whole = bool(np.all(np.mod(dist.levels, 1) == 0))  # counts, ages: whole-number bins
+    edges = _round_edges(float(dist.levels[0]), float(dist.levels[-1]), bins, whole)
     weighted, _ = np.histogram(y, bins=edges, weights=w)
     counts, _ = np.histogram(y, bins=edges)
     total = float(weighted.sum()) or float("nan")
-    return tuple(Bar(f"{lo:g} to {hi:g}", float(lo), float(hi), float(s / total), int(k))
+    return tuple(Bar(f"{lo:,g} to {hi:,g}", float(lo), float(hi), float(s / total), int(k))
                  for lo, hi, s, k in zip(edges[:-1].tolist(), edges[1:].tolist(),
                                          weighted.tolist(), counts.tolist(), strict=True))
 
 
-def _round_edges(low: float, high: float, bins: int) -> np.ndarray:
+def _round_edges(low: float, high: float, bins: int, whole: bool = False) -> np.ndarray:
     """Return equal-width bin edges of a round width (1, 2, 2.5 or 5 times a power of ten),
-    at most *bins* bins, covering [low, high]; each bin is [a, b), the last [a, b]."""
+    at most *bins* bins, covering [low, high]; each bin is [a, b), the last [a, b].
+
+    *whole*: the values are whole numbers, so the width is too (no 2.5, nothing below 1):
+    a bin '2.5 to 5' of day counts would hold 3 and 4 and read as if it held halves.
+    """
     raw = (high - low) / bins
     power = 10.0 ** np.floor(np.log10(raw))
-    step = next(f * power for f in (1.0, 2.0, 2.5, 5.0, 10.0) if f * power >= raw)
+    factors = (1.0, 2.0, 5.0, 10.0) if whole and power >= 1 else (1.0, 2.0, 2.5, 5.0, 10.0)
+    if whole and power < 1:
+        power = 1.0
+    step = next(f * power for f in factors if f * power >= raw)
     start = np.floor(low / step) * step
     count = max(int(np.ceil((high - start) / step)), 1)
     while start + (count - 1) * step > high:  # no empty bin past the top
         count -= 1
     if count > bins:  # the floor of low moved the edges down: one step wider
-        step = next(f * power for f in (2.0, 2.5, 5.0, 10.0, 20.0) if f * power > step)
+        step = next(f * power for f in (*factors[1:], 20.0) if f * power > step)
         start = np.floor(low / step) * step
         count = max(int(np.ceil((high - start) / step)), 1)
     edges: np.ndarray = start + step * np.arange(count + 1)

@@ -5,7 +5,7 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 from typing import Any
 
-from wstats.estimation.display import as_text
+from wstats.readers.display import as_html, as_text
 
 __all__ = ["CATEGORICAL", "Bar", "CodeRow", "LookResult", "VariableLook"]
 
@@ -122,6 +122,10 @@ class LookResult:
     def __repr__(self) -> str:
         """Show the look as the terminal does."""
         return as_text(self, f"LookResult({self.path}: {[v.name for v in self.variables]})")
+
+    def _repr_html_(self) -> str | None:
+        """Show the look in a notebook (the terminal text, pre-formatted)."""
+        return as_html(self)
 
 
 def _record(v: VariableLook) -> dict[str, Any]:

@@ -9,10 +9,13 @@ documentation and the publishing agency's standards come first.
 from __future__ import annotations
 
 from collections.abc import Iterable, Mapping, Sequence
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 from wstats.decoding.reasons import NOT_ASKED
 from wstats.errors import UsageError
+
+if TYPE_CHECKING:
+    from wstats.decoding.codebook import Codebook
 
 __all__ = ["escape_latex", "escape_markdown", "methods_paragraph"]
 
@@ -281,3 +284,20 @@ def _number(x: Any) -> str:
     if v == float("inf"):
         return "infinite"
     return str(int(v)) if v.is_integer() else f"{v:g}"
+
+
+def codebook_recodes(codebook: Codebook | None, variables: Iterable[str]) -> list[str]:
+    """Return the codebook's value substitutions for *variables*, for ``recodes=``.
+
+    Examples: ``["fd_fruit: 888 → 0"]`` (a code meaning none counted as zero).
+    """
+    if codebook is None:
+        return []
+    out = []
+    for name in dict.fromkeys(variables):
+        if name not in codebook.variables:
+            continue
+        for code, rule in sorted(codebook.codes_for(name, None).numeric.items()):
+            if rule.reason is None and rule.value is not None:
+                out.append(f"{name}: {code:g} → {rule.value:g}")
+    return out

@@ -41,9 +41,9 @@ import numpy as np
 from wstats.decoding.columns import Dataset, DecodedColumn, require_dataset
 from wstats.decoding.reasons import NOT_ASKED, VALID
 from wstats.errors import EstimationError
-from wstats.estimation.display import as_html, as_text
 from wstats.estimation.reliability import NONRESPONSE_RULES
 from wstats.estimation.results import _plain
+from wstats.readers.display import as_html, as_text
 
 if TYPE_CHECKING:
     import numpy.typing as npt

@@ -60,8 +60,15 @@ def p_value_note(spec: TableSpec) -> str:
             "second-order corrected F test of independence (design effects at the independence "
             "fit), shown on the line of its first level; for a mean the design-based Wald F "
             "that the means are equal, adjusted for the design degrees of freedom (k-1, "
-            "d-k+2); for an age-adjusted row the same Wald F on the adjusted values. Not "
-            "adjusted for multiple comparisons.")
+            "d-k+2); for an age-adjusted row the same Wald F on the adjusted values"
+            + _untested(spec) + ". Not adjusted for multiple comparisons.")
+
+
+def _untested(spec: TableSpec) -> str:
+    """Return '; totals and quantiles: no test' for the kinds of rows the table has."""
+    kinds = [k for k in ("total", "quantile") if any(r.statistic == k for r in spec.rows)]
+    words = {"total": "totals", "quantile": "quantiles"}
+    return f"; {' and '.join(words[k] for k in kinds)}: no test" if kinds else ""
 
 
 def table_methods_sentences(spec: TableSpec) -> list[str]:

@@ -15,7 +15,7 @@ from typing import TYPE_CHECKING, Any
 
 from wstats.decoding.reasons import NOT_ASKED
 from wstats.errors import AnalysisError, did_you_mean
-from wstats.estimation.display import as_html, as_text
+from wstats.readers.display import as_html, as_text
 from wstats.reports.table_layout import TableColumn, _is_na, _label, _Layout, _records
 from wstats.reports.table_specs import STATISTICS, RowSpec, TableSpec, load_table_spec
 from wstats.reports.table_tests import table_methods_sentences, table_p_values
@@ -271,7 +271,7 @@ def _domain_sizes(
 
 def _methods(spec: TableSpec, est: EstimateTable, codebook: Codebook | None) -> str:
     """Write the methods paragraph from what the estimates used."""
-    from wstats.reports.methods import methods_paragraph
+    from wstats.reports.methods import codebook_recodes, methods_paragraph
 
     whole = est.frame[[all(_is_na(r.get(b)) for b in spec.by)
                        for r in _records(est.frame)]]
@@ -291,22 +291,9 @@ def _methods(spec: TableSpec, est: EstimateTable, codebook: Codebook | None) -> 
                 if k not in ("standard", "standard_source", "age_adjust")}
     text = methods_paragraph(
         est.design, settings, totals, (min(rates), max(rates)) if rates else None,
-        spec.data.name, spec.reliability, recodes=_recodes(spec, codebook),
+        spec.data.name, spec.reliability,
+        recodes=codebook_recodes(codebook, [r.variable for r in spec.rows]),
     )
     return " ".join([text, *table_methods_sentences(spec)])
-
-
-def _recodes(spec: TableSpec, codebook: Codebook | None) -> list[str]:
-    """Return the codebook's value substitutions for the rows, e.g. ``EXER: 888 → 0``."""
-    if codebook is None:
-        return []
-    out = []
-    for name in dict.fromkeys(r.variable for r in spec.rows):
-        if name not in codebook.variables:
-            continue
-        for code, rule in sorted(codebook.codes_for(name, None).numeric.items()):
-            if rule.reason is None and rule.value is not None:
-                out.append(f"{name}: {code:g} → {rule.value:g}")
-    return out
 
 

@@ -1,7 +1,9 @@
 """How results show themselves in a Python session: as the terminal table, or as HTML.
 
-Results (estimate tables here; nonresponse, bounds, publication tables and looks in the
-reports layer) live below the renderers, so they cannot import them. Instead the render
+Results (a file's columns in the readers layer, estimate tables in estimation; nonresponse,
+bounds, publication tables and looks in reports) live below the renderers, so they cannot
+import them; this module sits in the lowest layer that holds a result, so that every one can
+ask here. Instead the render
 layer registers, when it is imported, one function that draws any result as terminal text
 and one that draws it as HTML; a result's ``__repr__`` and ``_repr_html_`` ask here. The
 public door (``wstats/__init__.py``) imports the render layer as soon as any public name is
