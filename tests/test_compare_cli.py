@@ -238,8 +238,7 @@ def test_commands_without_a_dask_path_refuse_the_engine_in_one_line(
     code = main(args)
     err = capsys.readouterr().err
     assert code != 0 and len(err.strip().splitlines()) == 1
-    assert f"{command} does not run on the Dask engine yet" in err
-    assert "leave out --engine dask" in err
+    assert f"{command} runs in memory only" in err and "leave out --engine dask" in err
 
 
 def test_reasons_leave_not_applicable_out_of_the_asked_by_default(tmp_path: Path) -> None:

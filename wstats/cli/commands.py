@@ -118,8 +118,9 @@ def _reliability_name(args: argparse.Namespace) -> str:
 def _in_memory_only(args: argparse.Namespace, command: str, what: str) -> None:
     """Refuse --engine dask for a command the Dask engine does not run yet, saying why."""
     if args.engine != "memory":
-        raise UsageError(f"{command} does not run on the Dask engine yet ({what} need the "
-                         "rows in memory); leave out --engine dask to run it in memory")
+        raise UsageError(f"{command} runs in memory only ({what} need the rows in memory); "
+                         "the Dask engine serves estimate and nonresponse (docs/scale.md): "
+                         "leave out --engine dask")
 
 
 def _run_compare(args: argparse.Namespace) -> int:
