@@ -43,14 +43,25 @@ def test_estimate_repr_is_the_terminal_table_with_the_design_line(results: dict)
     assert show_text(table, width=100) == plain_text(ESTIMATE_RENDERERS["terminal"](table),
                                                      None, 100).rstrip("\n")
     assert "Design: weight WT" in text and "SLEEP" in text and "array(" not in text
-    assert table._repr_html_() == ESTIMATE_RENDERERS["html"](table)
+    page = ESTIMATE_RENDERERS["html"](table)
+    shown = table._repr_html_()
+    # a notebook cell gets the page's table in a div, its style scoped to that div (common
+    # practice, no source: a style left global would restyle every table of the notebook)
+    assert "<html" not in shown and "<!DOCTYPE" not in shown and "<table>" in shown
+    table_part = page[page.index("<table>"):page.index("</table>") + len("</table>")]
+    assert table_part in shown
+    style = shown[shown.index("<style>") + 7:shown.index("</style>")]
+    selectors = [sel for rule in style.split("}") if rule for sel in rule.split("{")[0].split(",")]
+    assert selectors and all(sel.startswith(".wstats-result ") for sel in selectors)
 
 
 def test_nonresponse_repr_and_html(results: dict) -> None:
     table = results["nonresponse"]
     assert repr(table) == show_text(table)
     assert "Design: weight WT" in repr(table) and "nonresponse" in repr(table)
-    assert table._repr_html_() == NONRESPONSE_RENDERERS["html"](table)
+    page = NONRESPONSE_RENDERERS["html"](table)
+    assert page[page.index("<table>"):page.index("</table>")] in table._repr_html_()
+    assert '<div class="wstats-result">' in table._repr_html_()
 
 
 def test_bounds_frame_shows_the_bounds_table_and_stays_a_frame(results: dict) -> None:

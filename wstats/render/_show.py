@@ -8,11 +8,12 @@ it is imported; the results ask there, since they cannot import the render layer
 from __future__ import annotations
 
 import html
+import re
 import shutil
 from collections.abc import MutableMapping
 from typing import Any
 
-__all__ = ["show_html", "show_text"]
+__all__ = ["notebook_fragment", "show_html", "show_text"]
 
 #: result type name -> registry of :mod:`wstats.render`
 _SHOWN = {"EstimateTable": "estimate", "NonresponseTable": "nonresponse",
@@ -54,6 +55,25 @@ def show_html(obj: Any) -> str | None:
         return None
     registry = _registry(kind)
     if "html" in registry:
-        drawn: str = registry["html"](obj)
-        return drawn
+        return notebook_fragment(registry["html"](obj))
     return f"<pre>{html.escape(show_text(obj) or '')}</pre>"
+
+
+_RULE = re.compile(r"([^{}]+)\{([^{}]*)\}")
+
+
+def notebook_fragment(page: str) -> str:
+    """Return an ``--format html`` page as a fragment for a notebook cell.
+
+    The page's body goes in a ``<div class="wstats-result">`` and its style rules are scoped
+    to that div, so that they do not restyle every other table of the notebook.
+    """
+    style = re.search(r"<style>(.*?)</style>", page, re.S)
+    body = re.search(r"<body>(.*)</body>", page, re.S)
+    inner = body.group(1).strip() if body else page
+    rules = "".join(
+        ",".join(f".wstats-result {sel.strip()}" for sel in m.group(1).split(","))
+        + "{" + m.group(2) + "}" for m in _RULE.finditer(style.group(1) if style else ""))
+    scoped = f"<style>{rules}</style>\n" if rules else ""
+    return f'{scoped}<div class="wstats-result">\n{inner}\n</div>'
+
