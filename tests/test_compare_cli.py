@@ -136,6 +136,12 @@ def test_estimate_age_adjusted_rows(survey: Path) -> None:
     assert "age-adjusted (standard us2000-adults18)" in md
     records = t.records()
     assert records[-1]["standard"] == "us2000-adults18" and records[0]["standard"] is None
+    # every row has an age group here, so an adjusted row leaves out the rows its crude row
+    # leaves out, by reason (common practice, no source: the same rows enter both)
+    crude = f[f["standard"].isna() & (f["variable"] == "Q")]
+    adjusted = adj[adj["variable"] == "Q"]
+    assert list(adjusted["reasons"]) == list(crude["reasons"])
+    assert sum(crude["reasons"].iloc[0].values()) > 0
 
 
 def test_estimate_age_adjust_empty_cell_names_domain(survey: Path) -> None:

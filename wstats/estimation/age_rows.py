@@ -14,6 +14,7 @@ from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
+from wstats.decoding.reasons import VALID
 from wstats.errors import EstimationError
 from wstats.estimation.age_adjust import (
     AGE_FLAG,
@@ -29,7 +30,7 @@ from wstats.estimation.intervals import wald_t
 if TYPE_CHECKING:
     import numpy.typing as npt
 
-    from wstats.decoding.columns import Dataset
+    from wstats.decoding.columns import Dataset, DecodedColumn
     from wstats.design.declared import Design
     from wstats.estimation.influence import DomainSums
     from wstats.estimation.standards import Standard
@@ -91,6 +92,7 @@ def _rows(data: Dataset, eng: DomainSums, name: str, stat: str, by: tuple[str, .
     df = np.full(len(est), adj.covariance.df)
     low, high = wald_t(est, se, df, level)
     counts = _counts(eng, col.valid, units, n_age)
+    reasons = _reasons(data, eng, col, units, n_age)
     out = []
     for k in range(len(est)):  # loop over domains x levels only
         u = k // len(labels)
@@ -98,7 +100,7 @@ def _rows(data: Dataset, eng: DomainSums, name: str, stat: str, by: tuple[str, .
                "p": np.nan, "estimate": est[k], "se": se[k], "ci_low": low[k],
                "ci_high": high[k], "df": df[k], "deff": np.nan, "deff_weight": np.nan,
                "n_eff": np.nan, "n": int(counts[u, 0]), "weighted_n": counts[u, 1],
-               "reasons": {}, "flags": (AGE_FLAG,) if adj.degenerate[k] else (),
+               "reasons": reasons[u], "flags": (AGE_FLAG,) if adj.degenerate[k] else (),
                "suppress": False, "standard": std}
         row.update(_by_values(eng, by, u))
         out.append(row)
@@ -110,6 +112,16 @@ def _counts(eng: DomainSums, valid: npt.NDArray[np.bool_], units: int, n_age: in
     """Return per unit the valid rows with a known age group and their weight: (U, 2)."""
     c = eng.sums.valid_counts(valid)[1:, :2]
     return np.asarray(c.reshape(units, n_age, 2).sum(axis=1))
+
+
+def _reasons(data: Dataset, eng: DomainSums, col: DecodedColumn, units: int, n_age: int
+             ) -> list[dict[str, int]]:
+    """Return per unit the rows left out by reason, among the rows with a known age group."""
+    names = data.vocabulary.names
+    c = eng.sums.reason_counts(col, len(names))[1:]
+    per_unit = c.reshape(units, n_age, len(names)).sum(axis=1)
+    return [{names[j]: int(row[j]) for j in np.flatnonzero(row) if j != VALID}
+            for row in per_unit]
 
 
 def _by_values(eng: DomainSums, by: tuple[str, ...], unit: int) -> dict[str, Any]:
