@@ -359,3 +359,18 @@ def test_unique_inverse_equals_numpy_unique_for_any_span(values: list[int], stre
     assert uniq.tolist() == ref_uniq.tolist()
     assert inv.tolist() == ref_inv.ravel().tolist()
     assert inv.dtype == np.int32
+
+
+def test_design_from_a_codebook_names_a_bad_key_and_a_missing_weight() -> None:
+    # common practice, no source: the codebook's [design] is checked as spec files' are,
+    # by the one Design.from_table, with the file and key in a one-line message
+    from wstats.decoding.codebook import Codebook
+
+    cb = Codebook.from_dict({"design": {"weight": "W", "strat": "S"}}, source="cb.toml")
+    with pytest.raises(DesignError, match=r"cb\.toml: design\.strat: unknown design key.*"
+                       r"did you mean 'strata'"):
+        Design.from_codebook(cb)
+    bare = Codebook.from_dict({"design": {"strata": "S"}}, source="cb.toml")
+    with pytest.raises(DesignError, match=r"cb\.toml: design\.weight: no weight column"):
+        Design.from_codebook(bare)
+    assert Design.from_codebook(bare, weight="W").strata == "S"

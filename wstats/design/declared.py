@@ -18,7 +18,7 @@ Conventions (each changes numbers):
 
 from __future__ import annotations
 
-from collections.abc import Sequence
+from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, field
 from typing import TYPE_CHECKING, Any
 
@@ -29,7 +29,7 @@ from wstats.design.binding import bind
 from wstats.design.bound import BoundDesign
 from wstats.design.pooling import check_pool_rule
 from wstats.design.replicates import resolve_replicate_columns
-from wstats.errors import DesignError, did_you_mean
+from wstats.errors import DesignError, WstatsError, did_you_mean
 
 if TYPE_CHECKING:
     from pathlib import Path
@@ -156,21 +156,32 @@ class Design:
         >>> Design.from_codebook(cb, psu="P").columns()
         ['W', 'S', 'P']
         """
-        from dataclasses import fields
-
         from wstats.decoding.codebook import Codebook, load_codebook
 
         cb = codebook if isinstance(codebook, Codebook) else load_codebook(codebook)
         merged = {**(cb.design or {}), **{k: v for k, v in overrides.items() if v is not None}}
+        return cls.from_table(merged, f"{cb.source}: design.", DesignError,
+                              'add weight = "COLUMN" to its [design] or pass weight="COLUMN"')
+
+    @classmethod
+    def from_table(cls, table: Mapping[str, Any], where: str,
+                   error: type[WstatsError] = DesignError,
+                   weight_hint: str = 'add weight = "COLUMN" to [design]') -> Design:
+        """Return the Design a ``[design]`` table declares (codebook, spec, analysis file).
+
+        *where* starts each message (the file and ``design.``); *error* is the error class
+        its caller raises; *weight_hint* says where a missing weight goes.
+        """
+        from dataclasses import fields
+
         allowed = [f.name for f in fields(cls) if f.name != "extra"]
-        for key in merged:
+        for key in table:
             if key not in allowed:
-                raise DesignError(f"{cb.source}: [design] {key} is not a design key; allowed: "
-                                  f"{', '.join(allowed)}{did_you_mean(key, allowed)}")
-        if not merged.get("weight"):
-            raise DesignError(f"{cb.source}: [design] names no weight column; add weight = "
-                              '"COLUMN" there or pass weight="COLUMN"')
-        return cls(**merged)
+                raise error(f"{where}{key}: unknown design key; allowed: "
+                            f"{', '.join(allowed)}{did_you_mean(key, allowed)}")
+        if not table.get("weight"):
+            raise error(f"{where}weight: no weight column given; {weight_hint}")
+        return cls(**table)
 
     def columns(
         self, available: Sequence[str] | None = None, source: str = "the data"

@@ -405,12 +405,6 @@ def design_over_codebook(source: Path, codebook: Codebook | None,
     from wstats.design.declared import Design
 
     merged: dict[str, Any] = {**(getattr(codebook, "design", None) or {}), **given}
-    allowed = [f.name for f in fields(Design) if f.name != "extra"]
-    for key in merged:
-        if key not in allowed:
-            raise AnalysisError(f"{source}: design.{key}: unknown design key; allowed: "
-                                f"{', '.join(allowed)}{did_you_mean(key, allowed)}")
-    if not merged.get("weight"):
-        raise AnalysisError(f"{source}: design.weight: no weight column given; add [design] "
-                            'weight = "COLUMN" (or set it in the codebook\'s [design] table)')
-    return Design(**merged)
+    return Design.from_table(merged, f"{source}: design.", AnalysisError,
+                             'add [design] weight = "COLUMN" (or set it in the codebook\'s '
+                             "[design] table)")
