@@ -509,7 +509,6 @@ def test_name_both_variable_and_derived() -> None:
 # --- read() -----------------------------------------------------------------------------
 
 def test_read_csv_with_codebook_reads_only_needed_columns(tmp_path: Path) -> None:
-    pytest.importorskip("wstats.readers.dispatch")
     from wstats.decoding.load import read
 
     data = tmp_path / "s.csv"
@@ -526,7 +525,6 @@ def test_read_csv_with_codebook_reads_only_needed_columns(tmp_path: Path) -> Non
 
 
 def test_read_unknown_column_is_an_error(tmp_path: Path) -> None:
-    pytest.importorskip("wstats.readers.dispatch")
     from wstats.decoding.load import read
     from wstats.errors import ColumnError
 
@@ -543,7 +541,6 @@ def test_one_code_written_twice_with_different_meanings() -> None:
 
 
 def test_read_names_the_derived_variable_whose_input_is_absent(tmp_path: Path) -> None:
-    pytest.importorskip("wstats.readers.dispatch")
     from wstats.decoding.load import read
 
     data = tmp_path / "s.csv"

@@ -215,7 +215,6 @@ def test_packaged_codebook_is_the_generated_one() -> None:
 
 
 def test_codebook_decodes_like_the_demo(written: tuple[dict[str, Path], pd.DataFrame]) -> None:
-    pytest.importorskip("wstats.decoding.codebook")
     from wstats.decoding.codebook import load_codebook
     from wstats.decoding.load import read
 

@@ -382,10 +382,11 @@ def test_collapsed_strata_stay_within_their_file() -> None:
     assert float(per_file.se[1]) == pytest.approx(0.5 * float(alone.se[0]), rel=1e-10)
 
 
-def test_compare_periods_when_compare_is_there() -> None:
+def test_compare_between_two_periods() -> None:
     # REFERENCES §13 (NCES 2006-075 App. A [S]): independent periods, SE(D) = sqrt(v1 + v2);
-    # df of the pooled design = the sum of the files' df (§16). Runs once `compare` is merged.
-    compare_module = pytest.importorskip("wstats.reports.compare")
+    # df d1 + d2, here the pooled design's df (two files, §16)
+    from wstats.reports import compare as compare_module
+
     a, b = _period(60), _period(61, weight=13.0)
     data = _pooled(a, b)
     result = compare_module.compare(data, DESIGN, ["y"], by="_file")
