@@ -20,15 +20,17 @@ from wstats.estimation.domains import Domains, empty_where_note, no_cell
 from wstats.estimation.levels import category_levels, level_index
 
 if TYPE_CHECKING:
+    from collections.abc import Sequence
+
     import numpy.typing as npt
 
-    from wstats.decoding.columns import Dataset
+    from wstats.decoding.columns import Dataset, DecodedColumn
     from wstats.design.bound import BoundDesign
 
     Index = npt.NDArray[np.int64]
     Bool = npt.NDArray[np.bool_]
 
-__all__ = ["MAX_CELLS", "build_domains", "check_names"]
+__all__ = ["MAX_CELLS", "build_domains", "check_names", "cross", "levels_of"]
 
 MAX_CELLS = 10_000  # crossed by-cells allowed in one call
 
@@ -56,15 +58,22 @@ def build_domains(data: Dataset, bound: BoundDesign, by: list[str], where: str |
         inside = ok if bound.rows is None else ok[bound.rows]
         if not inside.any():  # a legitimate, empty answer: say so (and why, if we can)
             warnings.warn(empty_where_note(where, expr, data), WstatsWarning, stacklevel=3)
-    codes: list[Index] = []
-    levels: list[tuple[list[Any], list[Any]]] = []
-    for name in by:
-        col = bound.column(data.columns[name])
-        lv, labels = category_levels(col)
-        display = [lab if v in col.value_labels else _plain(v)
-                   for v, lab in zip(lv, labels, strict=True)]
-        codes.append(level_index(col, lv, col.valid))
-        levels.append((lv, display))
+    parts = [levels_of(bound.column(data.columns[name])) for name in by]
+    levels = [lv for _, lv in parts]
+    return cross(inside, [c for c, _ in parts], levels, by), levels
+
+
+def levels_of(col: DecodedColumn) -> tuple[Index, tuple[list[Any], list[Any]]]:
+    """Return a by-variable's level code per row (-1: none) and its (values, display values)."""
+    lv, labels = category_levels(col)
+    display = [lab if v in col.value_labels else _plain(v)
+               for v, lab in zip(lv, labels, strict=True)]
+    return level_index(col, lv, col.valid), (lv, display)
+
+
+def cross(inside: Bool, codes: list[Index], levels: list[tuple[list[Any], list[Any]]],
+          by: Sequence[str]) -> Domains:
+    """Return the domains of the by-variables' levels crossed (both engines use it)."""
     sizes = [len(v) for v, _ in levels]
     if int(np.prod(sizes)) > MAX_CELLS:
         raise EstimationError(
@@ -72,8 +81,8 @@ def build_domains(data: Dataset, bound: BoundDesign, by: list[str], where: str |
             f"{MAX_CELLS}); group a continuous by-variable into classes first"
         )
     if any(s == 0 for s in sizes):
-        return Domains(inside, no_cell(bound.n_rows), 0), levels
-    return Domains.build(inside, codes, sizes), levels
+        return Domains(inside, no_cell(len(inside)), 0)
+    return Domains.build(inside, codes, sizes)
 
 
 def _plain(v: Any) -> Any:

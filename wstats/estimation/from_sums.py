@@ -19,8 +19,9 @@ import numpy as np
 
 from wstats.decoding.columns import DecodedColumn
 from wstats.decoding.reasons import Reasons
+from wstats.estimation.domain_setup import cross, levels_of
 from wstats.estimation.domains import Domains
-from wstats.estimation.levels import category_levels, level_index
+from wstats.estimation.levels import level_index
 from wstats.estimation.partition_sums import KEYS, PartSums, by_key
 from wstats.estimation.statistics import Context, Piece, _Moments, _piece
 from wstats.estimation.sums import WeightedSums
@@ -65,25 +66,10 @@ def domains_of(frame: pd.DataFrame, by: Sequence[str], labels: dict[str, dict[fl
                text: dict[str, bool]) -> tuple[Domains, list[tuple[list[Any], list[Any]]]]:
     """Return the domains of the groups of *frame* and the by-variables' levels."""
     inside = frame["_in"].to_numpy(dtype=bool)
-    codes: list[Index] = []
-    levels: list[tuple[list[Any], list[Any]]] = []
-    for j, name in enumerate(by):
-        col = _column(name, frame[by_key(j)].to_numpy(), labels.get(name, {}),
-                      text.get(name, False))
-        lv, shown = category_levels(col)
-        display = [lab if v in col.value_labels else _plain(v)
-                   for v, lab in zip(lv, shown, strict=True)]
-        codes.append(level_index(col, lv, col.valid))
-        levels.append((lv, display))
-    sizes = [len(v) for v, _ in levels]
-    if any(s == 0 for s in sizes):
-        return Domains(inside, np.full(len(inside), -1, dtype=np.int64), 0), levels
-    return Domains.build(inside, codes, sizes), levels
-
-
-def _plain(v: Any) -> Any:
-    """Return an integral float as int (a level shown as 3, not 3.0)."""
-    return int(v) if isinstance(v, float) and v.is_integer() else v
+    parts = [levels_of(_column(name, frame[by_key(j)].to_numpy(), labels.get(name, {}),
+                               text.get(name, False))) for j, name in enumerate(by)]
+    levels = [lv for _, lv in parts]
+    return cross(inside, [c for c, _ in parts], levels, by), levels
 
 
 def _column(name: str, values: npt.NDArray[Any], labels: dict[float, str], text: bool
