@@ -8,7 +8,7 @@ grouping variable's name is drawn once over its columns (``──── Sex ─�
 from __future__ import annotations
 
 from collections.abc import Iterator, Sequence
-from typing import TYPE_CHECKING
+from typing import TYPE_CHECKING, Any
 
 from rich.cells import cell_len
 
@@ -114,9 +114,17 @@ def _table(g: Grid, cols: list[int], sized: dict[int, int], rows: Sequence[tuple
         numeric = g.columns[i].align == "r"
         table.add_column(Text(g.columns[i].header), justify="right" if numeric else "left",
                          width=sized[i], no_wrap=numeric, overflow="fold")
+    add_rows(table, rows, kinds, cols)
+    return table
+
+
+def add_rows(table: Any, rows: Sequence[tuple[str, ...]], kinds: Sequence[str],
+             cols: Sequence[int]) -> None:
+    """Add the chosen cells of *rows* to a rich Table, section and summary labels in bold."""
+    from rich.text import Text
+
     for row, kind in zip(rows, kinds, strict=True):
         cells = [Text(row[i] if i < len(row) else "") for i in cols]
         if kind in ("section", "summary"):
             cells[0].stylize("bold")
         table.add_row(*cells)
-    return table

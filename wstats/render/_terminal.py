@@ -22,6 +22,7 @@ from wstats.render._grid import (
     nonresponse_grid,
     publication_grid,
 )
+from wstats.render._panels import add_rows
 
 if TYPE_CHECKING:
     from rich.console import Console, ConsoleOptions, RenderableType, RenderResult
@@ -197,11 +198,7 @@ def _table(
         longest = max((cell_len(r[i]) for r in rows if i < len(r)), default=0)
         table.add_column(Text(headers[i]), justify="right" if numeric else "left",
                          no_wrap=numeric or longest <= _SHORT, overflow="fold")
-    for row, kind in zip(rows, kinds, strict=True):
-        cells = [Text(row[i] if i < len(row) else "") for i in cols]
-        if kind in ("section", "summary"):
-            cells[0].stylize("bold")
-        table.add_row(*cells)
+    add_rows(table, rows, kinds, cols)
     return table
 
 
